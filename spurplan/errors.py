@@ -1,0 +1,72 @@
+"""Exception tree of spurplan.
+
+Every error a user can cause derives from :class:`SpurplanError`; the CLI turns any
+of them into one line on stderr and exit status 2.  The classes also subclass the
+builtin that fits (``ValueError``) so library callers can catch either.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+
+class SpurplanError(Exception):
+    """Root of all errors raised for bad input."""
+
+
+@dataclass(eq=False)
+class UnitError(SpurplanError, ValueError):
+    """A quantity string could not be read with the unit that was expected.
+
+    Parameters
+    ----------
+    value : str
+        The text as given.
+    expected : str
+        What was expected, for example ``"a frequency in Hz, kHz, MHz or GHz"``.
+    """
+
+    value: object
+    expected: str
+
+    def __str__(self) -> str:
+        return f"{self.value!r}: expected {self.expected}"
+
+
+@dataclass(eq=False)
+class LineupError(SpurplanError, ValueError):
+    """A lineup file (or one of its parts) is not valid.
+
+    The message names the file, the stage (name and position), the field, the value
+    and what was expected, so that it can stand alone on one line.
+    """
+
+    message: str
+    file: str | None = None
+    stage: str | None = None
+    field: str | None = None
+
+    def __str__(self) -> str:
+        parts = [p for p in (self.file, self.stage) if p]
+        if self.field:
+            parts.append(f"field '{self.field}'")
+        prefix = ": ".join(parts)
+        return f"{prefix}: {self.message}" if prefix else self.message
+
+
+@dataclass(eq=False)
+class OutOfDataRange(SpurplanError, ValueError):
+    """A response was asked for outside the frequency range that a data file covers."""
+
+    stage: str
+    freq_hz: float
+    data_start_hz: float
+    data_stop_hz: float
+    product: str = ""
+
+    def __str__(self) -> str:
+        what = f"product {self.product} at " if self.product else ""
+        return (
+            f"stage '{self.stage}': {what}{self.freq_hz:.6g} Hz is outside the "
+            f"S-parameter data ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz)"
+        )

@@ -1,0 +1,110 @@
+"""Typed, unit-checked reading of one TOML table, with errors that say where.
+
+:class:`Fields` wraps one table of a lineup file (a ``[[stage]]``, ``[[carrier]]``,
+``[analysis]`` ...).  Each getter parses one key with the parser of
+:mod:`spurplan.units`, and any failure becomes a :class:`~spurplan.errors.LineupError`
+naming the file, the table (stage name and position), the field, the value and what
+was expected.  :meth:`Fields.finish` rejects keys nobody asked for, with a
+did-you-mean, so a misspelt ``oip3`` cannot silently vanish.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from collections.abc import Callable
+from typing import Any
+
+from .errors import LineupError, UnitError
+
+
+class Fields:
+    """Reader for one table.
+
+    Parameters
+    ----------
+    table : dict
+        The parsed TOML table.
+    file : str
+        File name, for messages.
+    where : str
+        The table, for messages, e.g. ``"stage 2 'pa'"``.
+    """
+
+    def __init__(self, table: dict[str, Any], file: str, where: str):
+        if not isinstance(table, dict):
+            raise LineupError(f"expected a table, got {table!r}", file=file, stage=where)
+        self.table = table
+        self.file = file
+        self.where = where
+        self._seen: set[str] = set()
+
+    def error(self, field: str | None, message: str) -> LineupError:
+        """A LineupError located at this table and ``field``."""
+        return LineupError(message, file=self.file, stage=self.where, field=field)
+
+    def has(self, key: str) -> bool:
+        return key in self.table
+
+    def raw(self, key: str, default: Any = None) -> Any:
+        self._seen.add(key)
+        return self.table.get(key, default)
+
+    def quantity(self, key: str, parse: Callable[[object], Any], *, required: bool = False):
+        """Parse ``key`` with a :mod:`spurplan.units` parser; ``None`` when absent."""
+        self._seen.add(key)
+        if key not in self.table:
+            if required:
+                raise self.error(key, "is required")
+            return None
+        try:
+            return parse(self.table[key])
+        except UnitError as exc:
+            raise self.error(key, str(exc)) from None
+
+    def text(self, key: str, *, default: str | None = None, choices: tuple[str, ...] = ()) -> str | None:
+        """A string field, optionally one of ``choices``."""
+        self._seen.add(key)
+        if key not in self.table:
+            return default
+        value = self.table[key]
+        if not isinstance(value, str):
+            raise self.error(key, f"{value!r}: expected a string")
+        if choices and value not in choices:
+            hint = _did_you_mean(value, choices)
+            raise self.error(key, f"{value!r}: expected one of {', '.join(choices)}{hint}")
+        return value
+
+    def integer(self, key: str, *, default: int, low: int, high: int) -> int:
+        """An integer field within ``[low, high]``."""
+        self._seen.add(key)
+        if key not in self.table:
+            return default
+        value = self.table[key]
+        if isinstance(value, bool) or not isinstance(value, int):
+            if isinstance(value, float) and math.isfinite(value) and value.is_integer():
+                value = int(value)
+            else:
+                raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
+        if not low <= value <= high:
+            raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
+        return value
+
+    def boolean(self, key: str, *, default: bool) -> bool:
+        self._seen.add(key)
+        value = self.table.get(key, default)
+        if not isinstance(value, bool):
+            raise self.error(key, f"{value!r}: expected true or false")
+        return value
+
+    def finish(self) -> None:
+        """Raise on the first key that no getter asked for."""
+        for key in self.table:
+            if key not in self._seen:
+                hint = _did_you_mean(key, sorted(self._seen))
+                raise self.error(key, f"unknown key{hint}")
+
+
+def _did_you_mean(word: str, options) -> str:
+    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+    return f" (did you mean '{close[0]}'?)" if close else ""

@@ -1,0 +1,171 @@
+"""Loading and validating a lineup file (TOML, read with :mod:`tomllib`).
+
+This is the boundary: everything is parsed and checked here, so that the engine
+only ever sees well-formed, unit-converted values.  Every problem is one
+:class:`~spurplan.errors.LineupError` whose text names the file, the stage (name
+and position), the field, the value and what was expected.
+
+File layout (key names are the interface: extend, don't rename)::
+
+    [lineup]      name, impedance
+    [[carrier]]   freq, power, bandwidth, phase
+    [[stage]]     kind, name, and the keys of that kind (see spurplan.stages)
+    [analysis]    max_order, combine
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+from . import engine
+from .errors import LineupError
+from .fields import Fields
+from .lineup import COMBINE_MODES, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup
+from .stages import KINDS, LoadContext
+from .units import parse_angle_rad, parse_freq_hz, parse_impedance_ohm, parse_power_dbm
+
+TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis")
+# The torus engine's cost grows as (grid)^tones; beyond this many base tones a
+# check no longer fits a laptop's memory at useful orders.
+MAX_CARRIERS = 3
+
+
+def load(path: str | Path) -> Lineup:
+    """Read and validate a lineup file.
+
+    Parameters
+    ----------
+    path : str or Path
+
+    Returns
+    -------
+    Lineup
+
+    Raises
+    ------
+    LineupError
+        On any problem, with a one-line message.
+    """
+    path = Path(path)
+    name = str(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise LineupError("file not found: expected a lineup file (TOML)", file=name) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise LineupError(f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise LineupError(f"not valid TOML: {exc}", file=name) from None
+    return from_dict(doc, name=name, base_dir=path.parent, source=path)
+
+
+def from_dict(doc: dict, *, name: str = "<lineup>", base_dir: Path = Path("."), source: Path | None = None) -> Lineup:
+    """Validate an already-parsed lineup document (same rules as :func:`load`)."""
+    top = Fields(doc, name, "")
+    for key in TOP_LEVEL_KEYS:
+        top.raw(key)
+    top.finish()
+
+    head = Fields(_table(doc, "lineup", name), name, "[lineup]")
+    title = head.text("name", default=Path(name).stem)
+    r_ohm = head.quantity("impedance", parse_impedance_ohm) or 50.0
+    head.finish()
+
+    carriers = tuple(_carrier(t, name, i) for i, t in enumerate(_array(doc, "carrier", name), start=1))
+    if not carriers:
+        raise LineupError("no [[carrier]] table: expected at least one carrier", file=name)
+    if len(carriers) > MAX_CARRIERS:
+        raise LineupError(f"{len(carriers)} carriers: expected at most {MAX_CARRIERS}", file=name)
+
+    analysis = _analysis(_table(doc, "analysis", name), name)
+    context = LoadContext(r_ohm=r_ohm, base_dir=base_dir)
+    stages = []
+    seen_names: set[str] = set()
+    for i, table in enumerate(_array(doc, "stage", name), start=1):
+        stage = _stage(table, name, i, context)
+        if stage.name in seen_names:
+            raise LineupError(f"{stage.name!r} is used twice: expected unique stage names", file=name, stage=f"stage {i}", field="name")
+        seen_names.add(stage.name)
+        stages.append(stage)
+    _check_size(stages, len(carriers), analysis, name)
+    notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
+    return Lineup(
+        name=title,
+        carriers=carriers,
+        stages=tuple(stages),
+        analysis=analysis,
+        r_ohm=r_ohm,
+        source=source,
+        notes=notes,
+    )
+
+
+def _table(doc: dict, key: str, file: str) -> dict:
+    value = doc.get(key, {})
+    if not isinstance(value, dict):
+        raise LineupError(f"[{key}] must be a table, got {value!r}", file=file)
+    return value
+
+
+def _array(doc: dict, key: str, file: str) -> list:
+    value = doc.get(key, [])
+    if not isinstance(value, list):
+        raise LineupError(f"'{key}' must be an array of tables ([[{key}]]), got {value!r}", file=file)
+    return value
+
+
+def _carrier(table, file: str, index: int) -> Carrier:
+    f = Fields(table, file, f"carrier {index}")
+    freq = f.quantity("freq", parse_freq_hz, required=True)
+    if freq <= 0:
+        raise f.error("freq", f"{f.raw('freq')!r}: expected a frequency > 0 Hz")
+    power = f.quantity("power", parse_power_dbm, required=True)
+    bandwidth = f.quantity("bandwidth", parse_freq_hz)
+    if bandwidth is not None and bandwidth <= 0:
+        raise f.error("bandwidth", f"{f.raw('bandwidth')!r}: expected a bandwidth > 0 Hz")
+    phase = f.quantity("phase", parse_angle_rad) or 0.0
+    f.finish()
+    return Carrier(freq_hz=freq, power_dbm=power, bandwidth_hz=bandwidth, phase_rad=phase)
+
+
+def _analysis(table, file: str) -> Analysis:
+    f = Fields(table, file, "[analysis]")
+    max_order = f.integer("max_order", default=Analysis.max_order, low=1, high=MAX_ORDER_LIMIT)
+    combine = f.text("combine", default="worst", choices=COMBINE_MODES)
+    f.finish()
+    return Analysis(max_order=max_order, combine=combine)
+
+
+def _stage(table, file: str, index: int, context: LoadContext):
+    if not isinstance(table, dict):
+        raise LineupError(f"expected a table, got {table!r}", file=file, stage=f"stage {index}")
+    raw_name = table.get("name")
+    where = f"stage {index} '{raw_name}'" if isinstance(raw_name, str) else f"stage {index}"
+    f = Fields(table, file, where)
+    kind = f.text("kind", choices=tuple(KINDS))
+    if kind is None:
+        raise f.error("kind", f"is required: expected one of {', '.join(KINDS)}")
+    name = f.text("name")
+    if not name or not name.strip():
+        raise f.error("name", "is required: expected a non-empty string")
+    stage = KINDS[kind].from_fields(f, context)
+    f.finish()
+    return stage
+
+
+def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
+    degrees = [s.transfer.degree or 8 for s in stages if s.transfer is not None]
+    degree = max(degrees, default=1)
+    m = analysis.max_order
+    points = engine.alias_free_grid(degree, m, m) ** n_tones
+    if points > engine.MAX_GRID_POINTS:
+        raise LineupError(
+            f"{analysis.max_order}: {n_tones} tones to order {m} with degree-{degree} stages needs "
+            f"{points:.3g} grid points; expected a lower max_order",
+            file=file,
+            stage="[analysis]",
+            field="max_order",
+        )

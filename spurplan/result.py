@@ -1,0 +1,178 @@
+"""Results of a lineup run: product tables at any node, with per-stage attribution.
+
+Contributions of the stages to a product are combined in one of three ways
+(design notes section 3):
+
+``phase``  as modelled: the complex sum, phase-true;
+``worst``  magnitudes add, the conservative default (interconnect phases on a real
+           board are unknown, so this is what a careful engineer signs);
+``power``  powers add (uncorrelated phases).
+
+Carriers are always reported as modelled (phase-true): they are the wanted signal,
+and their compression is part of the model.  Products that share one physical
+frequency (harmonically related tones) are merged into one row, combined the same
+way as the stage contributions.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .spectrum import label, orders, tone_index
+from .units import vpeak_to_dbm
+
+# Rows more than this far below the strongest carrier are numerical noise of the
+# engine (float64 FFTs reach about -300 dBc), not products.
+REPORT_FLOOR_DBC = -200.0
+# Frequencies closer than this (Hz) are one physical frequency.
+SAME_FREQ_HZ = 1e-3
+
+PRODUCT_COLUMNS = [
+    "freq_hz",
+    "level_dbm",
+    "dbc",
+    "order",
+    "mix",
+    "label",
+    "also",
+    "kind",
+    "stage",
+    "model_extrapolated",
+    "not_converged",
+]
+
+
+@dataclass(frozen=True)
+class Result:
+    """What :meth:`Lineup.run` computed.
+
+    Attributes
+    ----------
+    lineup : Lineup
+    mix : ndarray of int, (P, K)
+    freqs_hz : ndarray, (B, P)
+        Signed product frequencies.
+    propagation : spurplan.engine.Propagation
+    """
+
+    lineup: object
+    mix: np.ndarray
+    freqs_hz: np.ndarray
+    propagation: object
+
+    def node_index(self, stage: str | None) -> int:
+        """Node number of a stage output (``None`` is the lineup output)."""
+        if stage is None:
+            return len(self.lineup.stages)
+        return self.lineup.stage_index(stage)
+
+    def source_names(self) -> list[str]:
+        return ["input"] + [s.name for s in self.lineup.stages]
+
+    def carrier_levels_dbm(self, stage: str | None = None, batch: int = 0) -> np.ndarray:
+        """Modelled level (dBm) of each carrier at a node; shape (K,)."""
+        node = self.node_index(stage)
+        tones = tone_index(self.mix)
+        cols = [int(np.nonzero(tones == k)[0][0]) for k in range(self.mix.shape[1])]
+        x = self.propagation.nodes[node, batch, cols]
+        return vpeak_to_dbm(x, self.lineup.r_ohm)
+
+    def products(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
+        """Products at a node as a DataFrame (one row per physical frequency).
+
+        Parameters
+        ----------
+        stage : str or None
+            Stage whose output to report; ``None`` for the lineup output.
+        combine : {"worst", "power", "phase"} or None
+            ``None`` uses the lineup's analysis setting.
+        batch : int
+            Batch element (drive point) to report.
+
+        Returns
+        -------
+        pandas.DataFrame
+            Columns ``PRODUCT_COLUMNS``, sorted by frequency.
+        """
+        import pandas as pd
+
+        return pd.DataFrame(self.product_rows(stage, combine, batch), columns=PRODUCT_COLUMNS)
+
+    def product_rows(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
+        """The rows of :meth:`products` as a dict of columns (lists), without pandas."""
+        combine = combine or self.lineup.analysis.combine
+        node = self.node_index(stage)
+        prop = self.propagation
+        f = self.freqs_hz[batch]
+        # Physical phasors at +|f|: a product at negative m.f is the conjugate.
+        contrib = prop.contributions(node)[:, batch, :]
+        contrib = np.where(f < 0, np.conj(contrib), contrib)
+        freq = np.abs(f)
+        keys = np.round(freq / SAME_FREQ_HZ).astype(np.int64)
+        uniq, group = np.unique(keys, return_inverse=True)
+        n_groups = len(uniq)
+        n_src = contrib.shape[0]
+
+        coherent = np.zeros((n_src, n_groups), dtype=complex)
+        np.add.at(coherent, (slice(None), group), contrib)
+        modelled = np.abs(coherent.sum(axis=0))
+        if combine == "phase":
+            level = modelled
+        elif combine == "worst":
+            level = np.zeros(n_groups)
+            np.add.at(level, group, np.abs(contrib).sum(axis=0))
+        else:
+            power = np.zeros(n_groups)
+            np.add.at(power, group, (np.abs(contrib) ** 2).sum(axis=0))
+            level = np.sqrt(power)
+
+        tones = tone_index(self.mix)
+        is_carrier = np.zeros(n_groups, dtype=bool)
+        np.logical_or.at(is_carrier, group, tones >= 0)
+        level = np.where(is_carrier, modelled, level)
+        # Largest contributor: the input only counts for carriers.
+        strength = np.abs(coherent)
+        strength[0] = np.where(is_carrier, strength[0], -1.0)
+        top_source = np.argmax(strength, axis=0)
+
+        level_dbm = vpeak_to_dbm(level, self.lineup.r_ohm)
+        carriers = self.carrier_levels_dbm(stage, batch)
+        ref = float(np.max(carriers))
+        keep = (level > 0) & (level_dbm - ref > REPORT_FLOOR_DBC)
+
+        order_of = orders(self.mix)
+        extrap = bool(prop.extrapolated[:node, batch].any())
+        not_conv = bool((~prop.converged[:node, batch]).any())
+        names = self.lineup.tone_names
+        sources = self.source_names()
+        cols = {c: [] for c in PRODUCT_COLUMNS}
+        for g in np.nonzero(keep)[0]:
+            members = np.nonzero(group == g)[0]
+            members = members[np.argsort(order_of[members], kind="stable")]
+            signed = [self.mix[i] * (1 if f[i] >= 0 else -1) for i in members]
+            labels = [label(m, names) for m in signed]
+            cols["freq_hz"].append(float(freq[members[0]]))
+            cols["level_dbm"].append(float(level_dbm[g]))
+            cols["dbc"].append(float(level_dbm[g] - ref))
+            cols["order"].append(int(order_of[members[0]]))
+            cols["mix"].append([int(v) for v in signed[0]])
+            cols["label"].append(labels[0])
+            cols["also"].append(" ".join(labels[1:]))
+            cols["kind"].append("carrier" if is_carrier[g] else "product")
+            cols["stage"].append(sources[top_source[g]])
+            cols["model_extrapolated"].append(extrap)
+            cols["not_converged"].append(not_conv)
+        return cols
+
+    @property
+    def extrapolated_stages(self) -> list[str]:
+        """Stages driven beyond where their polynomial holds (batch element 0)."""
+        flags = self.propagation.extrapolated[:, 0]
+        return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]
+
+    @property
+    def unconverged_stages(self) -> list[str]:
+        flags = ~self.propagation.converged[:, 0]
+        return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]

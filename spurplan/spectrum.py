@@ -1,0 +1,106 @@
+"""Products of K base tones: mixing vectors, their frequencies, orders and labels.
+
+A product is a mixing vector ``m`` in Z^K; with base tones at ``f_k`` it sits at
+``m . f`` (folded to ``|m . f|``) and has order ``sum |m_k|``.  A real signal holds
+``m`` and ``-m`` as one physical product, so the engine keeps one representative per
+pair: the *canonical* one, whose first nonzero entry is positive.  That choice does
+not depend on the tone frequencies, so a tuning sweep can move the tones without
+re-indexing anything.
+
+Array conventions used throughout spurplan: product arrays are ``(batch, product)``;
+mixing-vector arrays are ``(product, tone)``.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+
+
+def mixing_vectors(n_tones: int, max_order: int) -> np.ndarray:
+    """All canonical mixing vectors of order 1 to ``max_order``.
+
+    Parameters
+    ----------
+    n_tones : int
+        Number of base tones K.
+    max_order : int
+        Highest order ``sum |m_k|`` kept.
+
+    Returns
+    -------
+    ndarray of int, shape (P, K)
+        Sorted by order, then lexicographically descending, so that the base tones
+        come first (``[1, 0]``, ``[0, 1]``, ...).
+    """
+    rows = []
+    for m in itertools.product(range(-max_order, max_order + 1), repeat=n_tones):
+        order = sum(abs(v) for v in m)
+        if 1 <= order <= max_order and _first_nonzero(m) > 0:
+            rows.append(m)
+    mix = np.array(rows, dtype=np.int64).reshape(-1, n_tones)
+    keys = [(-int(np.abs(r).sum()), *r.tolist()) for r in mix]
+    order = sorted(range(len(rows)), key=lambda i: keys[i], reverse=True)
+    return mix[order]
+
+
+def _first_nonzero(m) -> int:
+    for v in m:
+        if v:
+            return v
+    return 0
+
+
+def orders(mix: np.ndarray) -> np.ndarray:
+    """Order ``sum |m_k|`` of each mixing vector; shape (P,)."""
+    return np.abs(mix).sum(axis=-1)
+
+
+def product_freqs_hz(mix: np.ndarray, tone_freqs_hz: np.ndarray) -> np.ndarray:
+    """Signed product frequencies ``m . f`` in Hz.
+
+    Parameters
+    ----------
+    mix : ndarray of int, shape (P, K)
+    tone_freqs_hz : ndarray, shape (B, K) or (K,)
+        Base-tone frequencies in Hz, per batch element.
+
+    Returns
+    -------
+    ndarray, shape (B, P) (or (P,) for 1-D input)
+    """
+    return np.asarray(tone_freqs_hz, dtype=float) @ mix.T.astype(float)
+
+
+def tone_index(mix: np.ndarray) -> np.ndarray:
+    """Index of the base tone each product *is*, or -1 for true products; shape (P,)."""
+    out = np.full(len(mix), -1, dtype=np.int64)
+    unit = (orders(mix) == 1) & (mix.max(axis=1) == 1)
+    out[unit] = np.argmax(mix[unit], axis=1)
+    return out
+
+
+def label(m, tone_names: list[str]) -> str:
+    """Readable name of a mixing vector, e.g. ``"2f1-f2"``, ``"3f1"``, ``"LO+3f1"``.
+
+    The sign is chosen by the caller (pass the vector whose frequency is positive).
+    """
+    terms = []
+    for coeff, name in zip(m, tone_names, strict=True):
+        coeff = int(coeff)
+        if coeff == 0:
+            continue
+        mag = "" if abs(coeff) == 1 else str(abs(coeff))
+        sign = "-" if coeff < 0 else "+"
+        terms.append((sign, f"{mag}{name}"))
+    if not terms:
+        return "DC"
+    first_sign, first = terms[0]
+    text = ("-" if first_sign == "-" else "") + first
+    return text + "".join(s + t for s, t in terms[1:])
+
+
+def default_tone_names(n_tones: int) -> list[str]:
+    """``["f1", "f2", ...]``: the trade's names for carrier tones."""
+    return [f"f{k + 1}" for k in range(n_tones)]

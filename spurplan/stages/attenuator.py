@@ -1,0 +1,35 @@
+"""Attenuator (pad): a matched, frequency-flat loss."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..fields import Fields
+from ..units import parse_gain_db
+from .base import LoadContext, flat_response
+
+
+@dataclass(frozen=True)
+class Attenuator:
+    """A matched pad of ``loss_db`` (dB, >= 0)."""
+
+    name: str
+    loss_db: float
+
+    transfer = None
+
+    @property
+    def gain_db(self) -> float:
+        return -self.loss_db
+
+    def response(self, freq_hz: np.ndarray) -> np.ndarray:
+        return flat_response(-self.loss_db)(freq_hz)
+
+    @classmethod
+    def from_fields(cls, fields: Fields, context: LoadContext) -> Attenuator:
+        loss = fields.quantity("loss", parse_gain_db, required=True)
+        if loss < 0:
+            raise fields.error("loss", f"{fields.raw('loss')!r}: expected a loss >= 0 dB")
+        return cls(name=fields.raw("name"), loss_db=loss)
