@@ -69,8 +69,8 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     grid = np.zeros((batch,) + (n,) * k, dtype=complex)
     pos = tuple(mix[:, i] % n for i in range(k))
     neg = tuple((-mix[:, i]) % n for i in range(k))
-    grid[(slice(None),) + pos] = 0.5 * x_phasors
-    grid[(slice(None),) + neg] += 0.5 * np.conj(x_phasors)
+    grid[(slice(None), *pos)] = 0.5 * x_phasors
+    grid[(slice(None), *neg)] += 0.5 * np.conj(x_phasors)
     samples = sfft.ifftn(grid, axes=axes, norm="forward").real
     out = sfft.rfftn(transfer(samples), axes=axes, norm="forward")
     # rfftn keeps last-axis indices 0 .. n//2: read m directly where its last entry
@@ -78,8 +78,8 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     last = mix[:, -1]
     direct = last >= 0
     src = np.where(direct[:, None], mix, -mix)
-    idx = tuple(src[:, i] % n for i in range(k - 1)) + (src[:, -1],)
-    coeff = out[(slice(None),) + idx]
+    idx = (*tuple(src[:, i] % n for i in range(k - 1)), src[:, -1])
+    coeff = out[(slice(None), *idx)]
     coeff = np.where(direct[None, :], coeff, np.conj(coeff))
     flat = samples.reshape(batch, -1)
     return 2.0 * coeff, flat.min(axis=1), flat.max(axis=1)
@@ -127,7 +127,7 @@ def apply_memoryless(
     start = alias_free_grid(degree if degree else 4, m_in, m_keep)
     if degree is None:
         start = max(start, 32)
-    n_max = int(round(MAX_GRID_POINTS ** (1.0 / k)))
+    n_max = round(MAX_GRID_POINTS ** (1.0 / k))
 
     spectra, lo, hi, conv = [], [], [], []
     grid_used = start
@@ -256,8 +256,8 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
         x = y
     return Propagation(
         nodes=np.stack(nodes),
-        added=np.stack(added) if added else np.zeros((0,) + x.shape, complex),
-        response=np.stack(resp) if resp else np.zeros((0,) + x.shape, complex),
+        added=np.stack(added) if added else np.zeros((0, *x.shape), complex),
+        response=np.stack(resp) if resp else np.zeros((0, *x.shape), complex),
         extrapolated=np.stack(extrap) if extrap else np.zeros((0, len(x)), bool),
         converged=np.stack(conv) if conv else np.zeros((0, len(x)), bool),
     )

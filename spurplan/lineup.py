@@ -20,7 +20,7 @@ from .units import dbm_to_vpeak
 Combine = Literal["worst", "power", "phase"]
 COMBINE_MODES: tuple[str, ...] = ("worst", "power", "phase")
 DEFAULT_MAX_ORDER = 10
-MAX_ORDER_LIMIT = 25
+MAX_ORDER_LIMIT = 30
 
 
 @dataclass(frozen=True)

@@ -54,7 +54,9 @@ def load(path: str | Path) -> Lineup:
     except FileNotFoundError:
         raise LineupError("file not found: expected a lineup file (TOML)", file=name) from None
     except (OSError, UnicodeDecodeError) as exc:
-        raise LineupError(f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name) from None
+        raise LineupError(
+            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name
+        ) from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -62,7 +64,9 @@ def load(path: str | Path) -> Lineup:
     return from_dict(doc, name=name, base_dir=path.parent, source=path)
 
 
-def from_dict(doc: dict, *, name: str = "<lineup>", base_dir: Path = Path("."), source: Path | None = None) -> Lineup:
+def from_dict(
+    doc: dict, *, name: str = "<lineup>", base_dir: Path = Path("."), source: Path | None = None
+) -> Lineup:
     """Validate an already-parsed lineup document (same rules as :func:`load`)."""
     top = Fields(doc, name, "")
     for key in TOP_LEVEL_KEYS:
@@ -87,7 +91,12 @@ def from_dict(doc: dict, *, name: str = "<lineup>", base_dir: Path = Path("."), 
     for i, table in enumerate(_array(doc, "stage", name), start=1):
         stage = _stage(table, name, i, context)
         if stage.name in seen_names:
-            raise LineupError(f"{stage.name!r} is used twice: expected unique stage names", file=name, stage=f"stage {i}", field="name")
+            raise LineupError(
+                f"{stage.name!r} is used twice: expected unique stage names",
+                file=name,
+                stage=f"stage {i}",
+                field="name",
+            )
         seen_names.add(stage.name)
         stages.append(stage)
     _check_size(stages, len(carriers), analysis, name)

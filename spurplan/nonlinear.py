@@ -114,9 +114,7 @@ class Polynomial:
         """Voltage at which the largest nonlinear term equals the linear one."""
         a1 = abs(self.gain)
         scales = [
-            (a1 / abs(a)) ** (1.0 / (n - 1))
-            for n, a in enumerate(self.coeffs, start=1)
-            if n > 1 and a != 0.0
+            (a1 / abs(a)) ** (1.0 / (n - 1)) for n, a in enumerate(self.coeffs, start=1) if n > 1 and a != 0.0
         ]
         return min(scales) if scales else math.inf
 

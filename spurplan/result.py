@@ -176,3 +176,25 @@ class Result:
     def unconverged_stages(self) -> list[str]:
         flags = ~self.propagation.converged[:, 0]
         return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]
+
+    def summary(self, stage: str | None = None, combine: str | None = None, batch: int = 0) -> dict:
+        """Headline figures of a node: carriers, strongest product, flags, provenance."""
+        from .provenance import provenance
+
+        rows = self.product_rows(stage, combine, batch)
+        products = [i for i, kind in enumerate(rows["kind"]) if kind == "product"]
+        worst = max(products, key=lambda i: rows["level_dbm"][i]) if products else None
+        return {
+            "lineup": self.lineup.name,
+            "node": stage or "output",
+            "combine": combine or self.lineup.analysis.combine,
+            "carrier_dbm": [float(v) for v in self.carrier_levels_dbm(stage, batch)],
+            "n_products": len(products),
+            "strongest": None
+            if worst is None
+            else {c: rows[c][worst] for c in ("label", "freq_hz", "level_dbm", "dbc", "stage")},
+            "model_extrapolated": self.extrapolated_stages,
+            "not_converged": self.unconverged_stages,
+            "notes": list(self.lineup.notes),
+            **provenance(self.lineup),
+        }

@@ -116,9 +116,10 @@ def _clip_levels(poly: Polynomial, rail_v: float) -> tuple[float, float, list[st
         if math.isfinite(turn) and out(turn) <= rail_v:
             levels.append(turn)
             notes.append(
-                f"the {'positive' if side > 0 else 'negative'} rail is set by the "
-                f"polynomial's turning point ({vpeak_to_dbm(out(turn)):.1f} dBm peak), "
-                "below the saturation figure"
+                f"on the {'positive' if side > 0 else 'negative'} swing the intercept "
+                f"polynomial turns over at {out(turn):.3g} V peak output, below the "
+                f"{rail_v:.3g} V rail that the saturation figure asks for; the model "
+                "saturates there"
             )
             continue
         hi = turn if math.isfinite(turn) else rail_v / abs(poly.gain)

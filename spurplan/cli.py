@@ -1,0 +1,171 @@
+"""Command line: parse, call the library, format.  Nothing else lives here.
+
+Only click is imported at module level so that ``spurplan --help`` starts fast;
+numpy and the rest load when a command runs.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import click
+
+from . import __version__
+from .notices import PLANNING_NOTICE, POWER_NOTICE
+
+EPILOG = f"{PLANNING_NOTICE} {POWER_NOTICE}"
+FORMATS = ("table", "csv", "json")
+COMBINES = ("worst", "power", "phase")
+
+PRODUCT_TABLE = [
+    ("freq_hz", "freq (MHz)", None),
+    ("level_dbm", "level (dBm)", ".2f"),
+    ("dbc", "dBc", ".2f"),
+    ("order", "order", "d"),
+    ("label", "product", None),
+    ("kind", "kind", None),
+    ("stage", "largest from", None),
+    ("flags", "flags", None),
+]
+
+BUDGET_TABLE = [
+    ("stage", "stage", None),
+    ("kind", "kind", None),
+    ("gain_db", "gain (dB)", ".2f"),
+    ("cum_gain_db", "cum gain (dB)", ".2f"),
+    ("carrier_in_dbm", "in (dBm)", ".2f"),
+    ("carrier_out_dbm", "out (dBm)", ".2f"),
+    ("compression_db", "compr (dB)", ".2f"),
+    ("oip3_dbm", "OIP3 (dBm)", ".2f"),
+    ("cascade_iip3_dbm", "casc IIP3 (dBm)", ".2f"),
+    ("cascade_oip3_dbm", "casc OIP3 (dBm)", ".2f"),
+    ("p1db_dbm", "P1dB (dBm)", ".2f"),
+    ("p1db_from", "P1dB from", None),
+    ("headroom_db", "headroom (dB)", ".2f"),
+]
+
+
+class _Group(click.Group):
+    """Maps every input error to one line on stderr and exit status 2."""
+
+    def main(self, *args, **kwargs):
+        from .errors import SpurplanError
+
+        try:
+            return super().main(*args, standalone_mode=False, **kwargs)
+        except click.exceptions.Exit as exc:
+            sys.exit(exc.exit_code)
+        except click.exceptions.Abort:
+            click.echo("spurplan: aborted", err=True)
+            sys.exit(130)
+        except click.UsageError as exc:
+            hint = f" (see '{exc.ctx.command_path} --help')" if exc.ctx else ""
+            click.echo(f"spurplan: error: {exc.format_message()}{hint}", err=True)
+            sys.exit(2)
+        except click.ClickException as exc:
+            click.echo(f"spurplan: error: {exc.format_message()}", err=True)
+            sys.exit(2)
+        except SpurplanError as exc:
+            click.echo(f"spurplan: error: {exc}", err=True)
+            sys.exit(2)
+
+
+@click.group(cls=_Group, epilog=EPILOG)
+@click.version_option(__version__, prog_name="spurplan")
+def main():
+    """Plan the spurious emissions of a transmitter lineup.
+
+    Computes every harmonic and intermodulation product at every stage of a
+    lineup (amplifiers, pads, ...) with an exact multi-tone engine, and reports
+    levels, dBc and which stage makes each product.  With no LINEUP, commands use
+    a bundled example.
+    """
+
+
+def _lineup_arg(f):
+    return click.argument("lineup", required=False, type=click.Path(dir_okay=False))(f)
+
+
+def _load(path):
+    from .lineup_file import load
+    from .resources import example_path
+
+    return load(path if path is not None else example_path())
+
+
+def _warn(result) -> None:
+    for note in result.lineup.notes:
+        click.echo(f"spurplan: note: {note}", err=True)
+    if result.extrapolated_stages:
+        click.echo(
+            "spurplan: warning: polynomial model driven past where it holds (1 dB gain deviation) in "
+            + ", ".join(result.extrapolated_stages)
+            + "; rows are flagged model_extrapolated. Add p1db or psat for a saturating model.",
+            err=True,
+        )
+    if result.unconverged_stages:
+        click.echo(
+            "spurplan: warning: model did not converge on the largest grid in "
+            + ", ".join(result.unconverged_stages)
+            + "; rows are flagged not_converged.",
+            err=True,
+        )
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--stage", default=None, help="Report at this stage's output instead of the lineup output.")
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+def spectrum(lineup, stage, fmt, combine):
+    """Print every product (harmonics, intermodulation) at a node of LINEUP."""
+    from .formatting import text_table, to_csv, to_json
+
+    result = _load(lineup).run()
+    if stage is not None:
+        result.node_index(stage)
+    rows = result.product_rows(stage, combine)
+    summary = result.summary(stage, combine)
+    _warn(result)
+    if fmt == "json":
+        click.echo(to_json(summary, "products", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        shown = dict(rows)
+        shown["freq_hz"] = [f"{f / 1e6:.6f}" for f in rows["freq_hz"]]
+        shown["label"] = [f"{a} ({b})" if b else a for a, b in zip(rows["label"], rows["also"], strict=True)]
+        shown["flags"] = [
+            " ".join(t for t, on in (("EXTRAPOLATED", e), ("UNCONVERGED", u)) if on)
+            for e, u in zip(rows["model_extrapolated"], rows["not_converged"], strict=True)
+        ]
+        click.echo(f"{summary['lineup']}: products at {summary['node']} (combine = {summary['combine']})")
+        click.echo(text_table(shown, PRODUCT_TABLE), nl=False)
+        click.echo(PLANNING_NOTICE)
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+def budget(lineup, fmt):
+    """Print the cascade budget of LINEUP: levels, gains, cascaded IP3, P1dB headroom."""
+    from .budget import budget_rows
+    from .formatting import text_table, to_csv, to_json
+    from .provenance import provenance
+
+    result = _load(lineup).run()
+    rows = budget_rows(result)
+    _warn(result)
+    if fmt == "json":
+        summary = {"lineup": result.lineup.name, **provenance(result.lineup)}
+        click.echo(to_json(summary, "stages", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        click.echo(f"{result.lineup.name}: cascade budget (strongest carrier)")
+        click.echo(text_table(rows, BUDGET_TABLE), nl=False)
+        click.echo(PLANNING_NOTICE)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()

@@ -1,0 +1,102 @@
+"""Plain-text tables, CSV and JSON from column dicts (no pandas on the CLI path).
+
+Every command that reports rows offers the same three forms with the same columns
+(design notes section 7).
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+
+
+def _cell(value, fmt: str | None) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "-"
+    if isinstance(value, float) and math.isinf(value):
+        return "inf" if value > 0 else "-inf"
+    if fmt and isinstance(value, (int, float)) and not isinstance(value, bool):
+        return format(value, fmt)
+    if isinstance(value, bool):
+        return "yes" if value else ""
+    if isinstance(value, list):
+        return " ".join(str(v) for v in value)
+    return str(value)
+
+
+def text_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]) -> str:
+    """Align columns for a terminal.
+
+    Parameters
+    ----------
+    columns : dict of str -> list
+        Data by column name.
+    spec : list of (column, header, format)
+        Which columns to show, their headers (with units) and number formats.
+    """
+    header = [h for _, h, _ in spec]
+    n = len(next(iter(columns.values()), []))
+    body = [[_cell(columns[c][i], fmt) for c, _, fmt in spec] for i in range(n)]
+    widths = [max(len(h), *(len(r[j]) for r in body)) if body else len(h) for j, h in enumerate(header)]
+    numeric = [all(_is_number(r[j]) for r in body) if body else False for j in range(len(header))]
+
+    def line(cells):
+        return "  ".join(
+            c.rjust(w) if num else c.ljust(w) for c, w, num in zip(cells, widths, numeric, strict=True)
+        )
+
+    rule = "  ".join("-" * w for w in widths)
+    return "\n".join([line(header), rule] + [line(r) for r in body]).rstrip() + "\n"
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return text in ("-", "inf", "-inf")
+    return True
+
+
+def to_csv(columns: dict[str, list]) -> str:
+    """CSV with a header row; lists (mixing vectors) are written space-separated."""
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    names = list(columns)
+    writer.writerow(names)
+    n = len(next(iter(columns.values()), []))
+    for i in range(n):
+        writer.writerow([_csv_cell(columns[c][i]) for c in names])
+    return buf.getvalue()
+
+
+def _csv_cell(value):
+    if isinstance(value, list):
+        return " ".join(str(v) for v in value)
+    if value is None:
+        return ""
+    return value
+
+
+def rows_of(columns: dict[str, list]) -> list[dict]:
+    """Column dict -> list of row dicts."""
+    names = list(columns)
+    n = len(next(iter(columns.values()), []))
+    return [{c: columns[c][i] for c in names} for i in range(n)]
+
+
+def to_json(summary: dict, rows_key: str, columns: dict[str, list]) -> str:
+    """``{"summary": ..., rows_key: [...]}`` with infinities written as null."""
+    doc = {"summary": summary, rows_key: rows_of(columns)}
+    return json.dumps(_finite(doc), indent=2) + "\n"
+
+
+def _finite(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_finite(v) for v in value]
+    return value
