@@ -84,21 +84,21 @@ def tone_index(mix: np.ndarray) -> np.ndarray:
 def label(m, tone_names: list[str]) -> str:
     """Readable name of a mixing vector, e.g. ``"2f1-f2"``, ``"3f1"``, ``"LO+3f1"``.
 
-    The sign is chosen by the caller (pass the vector whose frequency is positive).
+    Positive terms come first (in tone order), so ``[-1, 2]`` reads ``"2f2-f1"``.  The
+    sign is chosen by the caller (pass the vector whose frequency is positive).
     """
     terms = []
     for coeff, name in zip(m, tone_names, strict=True):
         coeff = int(coeff)
-        if coeff == 0:
-            continue
-        mag = "" if abs(coeff) == 1 else str(abs(coeff))
-        sign = "-" if coeff < 0 else "+"
-        terms.append((sign, f"{mag}{name}"))
+        if coeff:
+            terms.append((coeff < 0, ("" if abs(coeff) == 1 else str(abs(coeff))) + name))
     if not terms:
         return "DC"
-    first_sign, first = terms[0]
-    text = ("-" if first_sign == "-" else "") + first
-    return text + "".join(s + t for s, t in terms[1:])
+    terms.sort(key=lambda t: t[0])
+    text = ""
+    for i, (negative, term) in enumerate(terms):
+        text += ("-" if negative else ("+" if i else "")) + term
+    return text
 
 
 def default_tone_names(n_tones: int) -> list[str]:
