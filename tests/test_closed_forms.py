@@ -43,7 +43,9 @@ def test_single_tone_harmonics_equal_power_reduction_forms():
 
 def test_two_tone_im3_is_3pout_minus_2oip3_at_low_drive():
     # IM3 = 3 Pout - 2 OIP3 (Razavi, RF Microelectronics 2e, ch. 2; from memory); 0.05 dB.
-    lu = lineup([amp(gain="20 dB", oip3="+30 dBm")], carriers=(("100 MHz", "-40 dBm"), ("101 MHz", "-40 dBm")))
+    lu = lineup(
+        [amp(gain="20 dB", oip3="+30 dBm")], carriers=(("100 MHz", "-40 dBm"), ("101 MHz", "-40 dBm"))
+    )
     lv = levels_by_label(lu.run())
     pout = lv["f1"]
     assert pout == pytest.approx(-20.0, abs=0.01)
@@ -73,7 +75,9 @@ def test_hip2_is_ip2_plus_6_02_db():
     assert ohip2 == pytest.approx(50 + 20 * math.log10(2), abs=0.05)
     # Two-tone IM2 at f1+f2 is a2 A1 A2: OIP2 = 2 Pout - P_IM2 (same source).
     lv2 = levels_by_label(
-        lineup([amp(gain="15 dB", oip2="+50 dBm")], carriers=(("50 MHz", "-45 dBm"), ("61 MHz", "-45 dBm"))).run()
+        lineup(
+            [amp(gain="15 dB", oip2="+50 dBm")], carriers=(("50 MHz", "-45 dBm"), ("61 MHz", "-45 dBm"))
+        ).run()
     )
     assert 2 * lv2["f1"] - lv2["f1+f2"] == pytest.approx(50.0, abs=0.05)
 
@@ -156,7 +160,11 @@ def test_three_cubic_stages_reproduce_cascaded_iip3():
 def test_linear_lineup_makes_no_products():
     # A chain of gains and pads is linear (arithmetic): only the carriers come out, at
     # -20 + 10 - 3 + 20 dB.
-    stages = [amp("a", gain="10 dB"), {"kind": "attenuator", "name": "pad", "loss": "3 dB"}, amp("b", gain="20 dB")]
+    stages = [
+        amp("a", gain="10 dB"),
+        {"kind": "attenuator", "name": "pad", "loss": "3 dB"},
+        amp("b", gain="20 dB"),
+    ]
     lu = lineup(stages, carriers=(("100 MHz", "-20 dBm"), ("130 MHz", "-23 dBm")))
     rows = lu.run().product_rows()
     assert rows["kind"] == ["carrier", "carrier"]
