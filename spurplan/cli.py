@@ -96,20 +96,19 @@ def _load(path):
 def _warn(result) -> None:
     for note in result.lineup.notes:
         click.echo(f"spurplan: note: {note}", err=True)
-    if result.extrapolated_stages:
-        click.echo(
-            "spurplan: warning: polynomial model driven past where it holds (1 dB gain deviation) in "
-            + ", ".join(result.extrapolated_stages)
-            + "; rows are flagged model_extrapolated. Add p1db or psat for a saturating model.",
-            err=True,
-        )
-    if result.unconverged_stages:
-        click.echo(
-            "spurplan: warning: model did not converge on the largest grid in "
-            + ", ".join(result.unconverged_stages)
-            + "; rows are flagged not_converged.",
-            err=True,
-        )
+    problems = (
+        (
+            result.extrapolated_stages,
+            "polynomial model driven past where it holds (1 dB gain deviation)",
+            "model_extrapolated. Add p1db or psat for a saturating model",
+        ),
+        (result.unconverged_stages, "model did not converge on the largest grid", "not_converged"),
+    )
+    for stages, what, flag in problems:
+        if stages:
+            click.echo(
+                f"spurplan: warning: {what} in {', '.join(stages)}; rows are flagged {flag}.", err=True
+            )
 
 
 @main.command(epilog=EPILOG)
