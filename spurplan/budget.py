@@ -18,7 +18,7 @@ import math
 import numpy as np
 
 from .stages.amplifier import Amplifier, output_p1db_dbm
-from .units import vpeak_to_dbm
+from .units import ratio_db, vpeak_to_dbm
 
 BUDGET_COLUMNS = [
     "stage",
@@ -68,17 +68,19 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     """The cascade budget of a run, as a dict of columns.
 
     The carrier is the strongest carrier at the lineup input; levels are as
-    modelled (compression included).
+    modelled (compression included); gains are small-signal at the carrier
+    frequency (for a filter, its |S21| there).
     """
     lineup = result.lineup
     stages = lineup.stages
     strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
-    gains = [float(getattr(s, "gain_db", 0.0)) for s in stages]
+    col = _carrier_column(result, strongest)
+    # Small-signal gain at the carrier: the figure for amplifiers, |S21| for filters.
+    gains = [float(v) for v in ratio_db(result.propagation.response[:, batch, col])]
     oip3 = [s.figures.oip3_dbm if isinstance(s, Amplifier) else None for s in stages]
     iip3 = cascade_iip3_dbm(gains, oip3)
     cols = {c: [] for c in BUDGET_COLUMNS}
     cum = 0.0
-    col = _carrier_column(result, strongest)
     for i, stage in enumerate(stages):
         node_in = result.propagation.nodes[i, batch]
         node_out = result.propagation.nodes[i + 1, batch]

@@ -166,5 +166,115 @@ def budget(lineup, fmt):
         click.echo(PLANNING_NOTICE)
 
 
+ELEMENT_TABLE = [
+    ("position", "#", "d"),
+    ("branch", "arm", None),
+    ("part", "part", None),
+    ("g", "g", ".4f"),
+    ("l_nh", "L (nH)", ".4g"),
+    ("c_pf", "C (pF)", ".4g"),
+]
+
+RESPONSE_TABLE = [
+    ("freq_mhz", "freq (MHz)", ".6f"),
+    ("label", "product", None),
+    ("level_in_dbm", "level in (dBm)", ".2f"),
+    ("s21_db", "S21 (dB)", ".3f"),
+    ("s21_deg", "phase (deg)", ".2f"),
+    ("flags", "flags", None),
+]
+
+
+@main.command("filter", epilog=EPILOG)
+@_lineup_arg
+@click.option("--stage", default=None, help="The filter stage of LINEUP to show.")
+@click.option(
+    "--family", type=click.Choice(["butterworth", "chebyshev"]), help="Prototype instead of a lineup stage."
+)
+@click.option("--response", "resp", type=click.Choice(["lowpass", "highpass", "bandpass"]), default="lowpass")
+@click.option("--order", type=int, help="Prototype order.")
+@click.option("--cutoff", help="Prototype cutoff, e.g. '520 MHz'.")
+@click.option("--center", help="Band-pass centre, e.g. '450 MHz'.")
+@click.option("--bandwidth", help="Band-pass bandwidth, e.g. '40 MHz'.")
+@click.option("--ripple", help="Chebyshev ripple, e.g. '0.1 dB'.")
+@click.option("--q-inductor", type=float, help="Unloaded Q of the inductors.")
+@click.option("--q-capacitor", type=float, help="Unloaded Q of the capacitors.")
+@click.option("--impedance", default="50 ohm", show_default=True, help="System impedance for a prototype.")
+@click.option("--carrier", help="With a prototype: show the response at the harmonics of this frequency.")
+@click.option(
+    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw |S21| to this PNG/SVG/PDF file."
+)
+@click.option(
+    "--touchstone", "ts_file", type=click.Path(dir_okay=False), help="Write the network to this .s2p file."
+)
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+def filter_cmd(
+    lineup,
+    stage,
+    family,
+    resp,
+    order,
+    cutoff,
+    center,
+    bandwidth,
+    ripple,
+    q_inductor,
+    q_capacitor,
+    impedance,
+    carrier,
+    plot_file,
+    ts_file,
+    fmt,
+):
+    """Show a filter: element values and its response at the product frequencies.
+
+    Either a filter stage of LINEUP (--stage NAME), or a prototype given on the
+    command line (--family, --order, --cutoff ...).
+    """
+    from .filter_view import prototype_view, stage_view
+    from .formatting import text_table, to_json
+
+    if family is not None:
+        spec = {
+            "family": family,
+            "response": resp,
+            "order": order,
+            "cutoff": cutoff,
+            "center": center,
+            "bandwidth": bandwidth,
+            "ripple": ripple,
+            "q_inductor": q_inductor,
+            "q_capacitor": q_capacitor,
+        }
+        view = prototype_view({k: v for k, v in spec.items() if v is not None}, impedance, carrier)
+    else:
+        if stage is None:
+            raise click.UsageError(
+                "give --stage NAME (a filter stage of LINEUP) or a prototype (--family ...)"
+            )
+        view = stage_view(_load(lineup), stage)
+    if plot_file:
+        view.save_plot(plot_file)
+    if ts_file:
+        view.save_touchstone(ts_file)
+    if fmt == "json":
+        click.echo(to_json(view.summary(), "products", view.response), nl=False)
+        return
+    if fmt == "csv":
+        from .formatting import to_csv
+
+        click.echo(to_csv(view.response), nl=False)
+        return
+    click.echo(view.title)
+    if view.elements["position"]:
+        click.echo(text_table(view.element_display(), ELEMENT_TABLE), nl=False)
+    if view.response["freq_hz"]:
+        click.echo("")
+        click.echo(text_table(view.response_display(), RESPONSE_TABLE), nl=False)
+    for note in view.notes:
+        click.echo(f"spurplan: note: {note}", err=True)
+    click.echo(PLANNING_NOTICE)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

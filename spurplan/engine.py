@@ -191,6 +191,9 @@ class Propagation:
     extrapolated : ndarray of bool, (S, B)
         The stage's model was driven beyond where it holds.
     converged : ndarray of bool, (S, B)
+    beyond : ndarray of bool, (S, B, P)
+        A product present at the stage (above -200 dB of the strongest) lies outside
+        the frequency range of the stage's data file.
     """
 
     nodes: np.ndarray
@@ -198,6 +201,7 @@ class Propagation:
     response: np.ndarray
     extrapolated: np.ndarray
     converged: np.ndarray
+    beyond: np.ndarray
 
     def contributions(self, node: int) -> np.ndarray:
         """Per-source phasors at ``node``, carried linearly from where they arose.
@@ -235,7 +239,7 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
     """
     dc = np.abs(freqs_hz) <= 1e-9 * np.abs(freqs_hz).max(initial=1.0)
     x = np.where(dc, 0.0, x_in)
-    nodes, added, resp, extrap, conv = [x], [], [], [], []
+    nodes, added, resp, extrap, conv, beyond = [x], [], [], [], [], []
     for stage in stages:
         h = response_at(stage.response, freqs_hz)
         transfer = stage.transfer
@@ -250,14 +254,33 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
             extrap.append((res.peak_neg_v < lo) | (res.peak_pos_v > hi))
             conv.append(res.converged)
         y = np.where(dc, 0.0, y)
+        beyond.append(_beyond_data(stage.data_range_hz, freqs_hz, x, y))
         added.append(y - h * x)
         resp.append(h)
         nodes.append(y)
         x = y
+    empty = np.zeros((0, *x.shape))
     return Propagation(
         nodes=np.stack(nodes),
-        added=np.stack(added) if added else np.zeros((0, *x.shape), complex),
-        response=np.stack(resp) if resp else np.zeros((0, *x.shape), complex),
+        added=np.stack(added) if added else empty.astype(complex),
+        response=np.stack(resp) if resp else empty.astype(complex),
         extrapolated=np.stack(extrap) if extrap else np.zeros((0, len(x)), bool),
         converged=np.stack(conv) if conv else np.zeros((0, len(x)), bool),
+        beyond=np.stack(beyond) if beyond else empty.astype(bool),
     )
+
+
+# Products weaker than this (amplitude ratio to the strongest, -200 dB) do not make
+# a data-range problem: they are below any report.
+_PRESENT = 1e-10
+
+
+def _beyond_data(data_range_hz, freqs_hz, x, y) -> np.ndarray:
+    """Where a product present at a stage falls outside its data range, (B, P)."""
+    if data_range_hz is None:
+        return np.zeros(x.shape, dtype=bool)
+    lo, hi = data_range_hz
+    f = np.abs(freqs_hz)
+    ref = np.maximum(np.abs(x).max(axis=1, keepdims=True), np.abs(y).max(axis=1, keepdims=True))
+    present = (np.abs(x) > _PRESENT * ref) | (np.abs(y) > _PRESENT * ref)
+    return ((f < lo) | (f > hi)) & present

@@ -63,10 +63,12 @@ class OutOfDataRange(SpurplanError, ValueError):
     data_start_hz: float
     data_stop_hz: float
     product: str = ""
+    hint: str = ""
 
     def __str__(self) -> str:
         what = f"product {self.product} at " if self.product else ""
+        tail = f"; {self.hint}" if self.hint else ""
         return (
             f"stage '{self.stage}': {what}{self.freq_hz:.6g} Hz is outside the "
-            f"S-parameter data ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz)"
+            f"S-parameter data ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz){tail}"
         )

@@ -13,8 +13,9 @@ from typing import Literal
 import numpy as np
 
 from . import engine
-from .errors import LineupError
-from .spectrum import default_tone_names, mixing_vectors, product_freqs_hz
+from .errors import LineupError, OutOfDataRange
+from .sections import with_sections
+from .spectrum import default_tone_names, label, mixing_vectors, product_freqs_hz
 from .units import dbm_to_vpeak
 
 Combine = Literal["worst", "power", "phase"]
@@ -43,12 +44,30 @@ class Carrier:
     phase_rad: float = 0.0
 
 
+LINEAR_SECTIONS: tuple[str, ...] = ("matched", "cascade")
+
+
 @dataclass(frozen=True)
 class Analysis:
-    """Analysis settings: highest product order and how contributions combine."""
+    """Analysis settings.
+
+    Attributes
+    ----------
+    max_order : int
+        Highest product order kept.
+    combine : {"worst", "power", "phase"}
+        How stage contributions add at a node.
+    beyond_data : {"error", "hold", "no_rejection"}
+        What a Touchstone-based response does outside its data range.
+    linear_sections : {"matched", "cascade"}
+        ``matched`` multiplies each stage's S21 (stages assumed matched);
+        ``cascade`` joins consecutive linear stages with their full S-parameters.
+    """
 
     max_order: int = DEFAULT_MAX_ORDER
     combine: Combine = "worst"
+    beyond_data: str = "error"
+    linear_sections: str = "matched"
 
 
 @dataclass(frozen=True)
@@ -119,5 +138,32 @@ class Lineup:
         tones = np.array([[c.freq_hz for c in self.carriers]])
         x_in = self.input_phasors(mix, drive_offset_db)
         freqs = np.broadcast_to(product_freqs_hz(mix, tones), x_in.shape)
-        prop = engine.propagate(self.stages, x_in, mix, freqs)
+        stages = self.stages
+        if self.analysis.linear_sections == "cascade":
+            stages = with_sections(stages, self.r_ohm)
+        prop = engine.propagate(stages, x_in, mix, freqs)
+        if self.analysis.beyond_data == "error":
+            self._raise_beyond_data(prop, mix, freqs)
         return Result(lineup=self, mix=mix, freqs_hz=freqs, propagation=prop)
+
+    def _raise_beyond_data(self, prop, mix: np.ndarray, freqs: np.ndarray) -> None:
+        """The default policy: a product outside a stage's data range is an error."""
+        hits = np.argwhere(prop.beyond)
+        if hits.size == 0:
+            return
+        # Report the lowest-order product of the first stage concerned.
+        first_stage = hits[:, 0].min()
+        hits = hits[hits[:, 0] == first_stage]
+        order = np.abs(mix[hits[:, 2]]).sum(axis=1)
+        s, b, p = hits[np.argmin(order)]
+        f = float(freqs[b, p])
+        stage = self.stages[s]
+        lo, hi = stage.data_range_hz
+        raise OutOfDataRange(
+            stage=stage.name,
+            freq_hz=abs(f),
+            data_start_hz=lo,
+            data_stop_hz=hi,
+            product=label(mix[p] * (1 if f >= 0 else -1), self.tone_names),
+            hint='set [analysis] beyond_data = "hold" or "no_rejection" to proceed, or extend the data',
+        )

@@ -10,7 +10,7 @@ File layout (key names are the interface: extend, don't rename)::
     [lineup]      name, impedance
     [[carrier]]   freq, power, bandwidth, phase
     [[stage]]     kind, name, and the keys of that kind (see spurplan.stages)
-    [analysis]    max_order, combine
+    [analysis]    max_order, combine, beyond_data, linear_sections
 """
 
 from __future__ import annotations
@@ -21,7 +21,8 @@ from pathlib import Path
 from . import engine
 from .errors import LineupError
 from .fields import Fields
-from .lineup import COMBINE_MODES, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup
+from .filters import BEYOND_POLICIES
+from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup
 from .stages import KINDS, LoadContext
 from .units import parse_angle_rad, parse_freq_hz, parse_impedance_ohm, parse_power_dbm
 
@@ -85,7 +86,10 @@ def from_dict(
         raise LineupError(f"{len(carriers)} carriers: expected at most {MAX_CARRIERS}", file=name)
 
     analysis = _analysis(_table(doc, "analysis", name), name)
-    context = LoadContext(r_ohm=r_ohm, base_dir=base_dir)
+    strongest = max(carriers, key=lambda c: c.power_dbm)
+    context = LoadContext(
+        r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=strongest.freq_hz
+    )
     stages = []
     seen_names: set[str] = set()
     for i, table in enumerate(_array(doc, "stage", name), start=1):
@@ -144,8 +148,10 @@ def _analysis(table, file: str) -> Analysis:
     f = Fields(table, file, "[analysis]")
     max_order = f.integer("max_order", default=Analysis.max_order, low=1, high=MAX_ORDER_LIMIT)
     combine = f.text("combine", default="worst", choices=COMBINE_MODES)
+    beyond = f.text("beyond_data", default="error", choices=BEYOND_POLICIES)
+    sections = f.text("linear_sections", default="matched", choices=LINEAR_SECTIONS)
     f.finish()
-    return Analysis(max_order=max_order, combine=combine)
+    return Analysis(max_order=max_order, combine=combine, beyond_data=beyond, linear_sections=sections)
 
 
 def _stage(table, file: str, index: int, context: LoadContext):

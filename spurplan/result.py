@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .spectrum import label, orders, tone_index
-from .units import vpeak_to_dbm
+from .units import ratio_db, vpeak_to_dbm
 
 # Rows more than this far below the strongest carrier are numerical noise of the
 # engine (float64 FFTs reach about -300 dBc), not products.
@@ -41,6 +41,7 @@ PRODUCT_COLUMNS = [
     "stage",
     "model_extrapolated",
     "not_converged",
+    "beyond_data",
 ]
 
 
@@ -145,6 +146,7 @@ class Result:
         order_of = orders(self.mix)
         extrap = bool(prop.extrapolated[:node, batch].any())
         not_conv = bool((~prop.converged[:node, batch]).any())
+        beyond = prop.beyond[:node, batch, :].any(axis=0)
         names = self.lineup.tone_names
         sources = self.source_names()
         cols = {c: [] for c in PRODUCT_COLUMNS}
@@ -164,6 +166,7 @@ class Result:
             cols["stage"].append(sources[top_source[g]])
             cols["model_extrapolated"].append(extrap)
             cols["not_converged"].append(not_conv)
+            cols["beyond_data"].append(bool(beyond[members].any()))
         return cols
 
     @property
@@ -197,4 +200,31 @@ class Result:
             "not_converged": self.unconverged_stages,
             "notes": list(self.lineup.notes),
             **provenance(self.lineup),
+        }
+
+    def stage_response(self, stage: str, batch: int = 0) -> dict[str, list]:
+        """A linear stage's response at every product present at its input.
+
+        Returns columns ``freq_hz``, ``label``, ``order``, ``level_in_dbm``, ``s21_db``,
+        ``s21_deg`` and ``beyond_data``, sorted by frequency; products more than
+        200 dB below the strongest one at the input are left out.
+        """
+        i = self.node_index(stage)
+        prop = self.propagation
+        x = prop.nodes[i - 1, batch]
+        f = self.freqs_hz[batch]
+        present = np.abs(x) > 10 ** (REPORT_FLOOR_DBC / 20) * np.abs(x).max()
+        idx = np.nonzero(present)[0]
+        idx = idx[np.argsort(np.abs(f[idx]), kind="stable")]
+        h = prop.response[i - 1, batch]
+        h = np.where(f < 0, np.conj(h), h)
+        names = self.lineup.tone_names
+        return {
+            "freq_hz": [float(abs(f[p])) for p in idx],
+            "label": [label(self.mix[p] * (1 if f[p] >= 0 else -1), names) for p in idx],
+            "order": [int(orders(self.mix[p : p + 1])[0]) for p in idx],
+            "level_in_dbm": [float(vpeak_to_dbm(x[p], self.lineup.r_ohm)) for p in idx],
+            "s21_db": [float(ratio_db(h[p])) for p in idx],
+            "s21_deg": [float(np.degrees(np.angle(h[p]))) for p in idx],
+            "beyond_data": [bool(prop.beyond[i - 1, batch, p]) for p in idx],
         }

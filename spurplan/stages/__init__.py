@@ -7,6 +7,10 @@ A stage is a small frozen dataclass with
   voltage gain) at non-negative frequencies in Hz,
 * ``transfer``: a memoryless model from :mod:`spurplan.nonlinear`, or ``None`` for a
   linear stage,
+* ``data_range_hz``: ``(start, stop)`` where a data file defines the response, or
+  ``None`` where it is known at every frequency,
+* ``s_matrix(freq_hz)``: the full 2x2 S-matrix, for linear stages (used when linear
+  sections are cascaded with their mismatches),
 * ``from_fields(fields, context)``: build it from one ``[[stage]]`` table.
 
 ``KINDS`` maps the ``kind`` key of a lineup file to the class.  To add a kind, write
@@ -18,10 +22,12 @@ from __future__ import annotations
 from .amplifier import Amplifier
 from .attenuator import Attenuator
 from .base import LoadContext, Stage
+from .filter import Filter
 
 KINDS: dict[str, type] = {
     "amplifier": Amplifier,
     "attenuator": Attenuator,
+    "filter": Filter,
 }
 
-__all__ = ["KINDS", "Amplifier", "Attenuator", "LoadContext", "Stage"]
+__all__ = ["KINDS", "Amplifier", "Attenuator", "Filter", "LoadContext", "Stage"]

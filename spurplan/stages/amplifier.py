@@ -24,12 +24,13 @@ polynomial's own turning point comes first, it sets the rail, and a note says so
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..engine import apply_memoryless
 from ..fields import Fields
+from ..filters import SParameterTable
 from ..nonlinear import Polynomial, SoftLimitedPolynomial
 from ..spectrum import mixing_vectors
 from ..units import dbm_to_vpeak, parse_dbc_at, parse_gain_db, parse_power_dbm, vpeak_to_dbm
@@ -223,13 +224,24 @@ class Amplifier:
     figures: AmplifierFigures
     transfer: object
     notes: tuple[str, ...] = ()
+    shape: SParameterTable | None = None
+    ref_freq_hz: float = 0.0
 
     @property
     def gain_db(self) -> float:
         return self.figures.gain_db
 
+    @property
+    def data_range_hz(self) -> tuple[float, float] | None:
+        return None if self.shape is None else self.shape.data_range_hz
+
     def response(self, freq_hz: np.ndarray) -> np.ndarray:
-        return flat_response(self.figures.gain_db)(freq_hz)
+        """Small-signal gain: the ``gain`` figure, shaped by S21(f) / S21(f_ref) when a
+        Touchstone file is given (the figures hold at ``f_ref``, the strongest carrier)."""
+        flat = flat_response(self.figures.gain_db)(freq_hz)
+        if self.shape is None:
+            return flat
+        return flat * self.shape(freq_hz) / self.shape(np.array(self.ref_freq_hz))
 
     @classmethod
     def from_figures(cls, name: str, figures: AmplifierFigures, r_ohm: float = 50.0) -> Amplifier:
@@ -239,7 +251,22 @@ class Amplifier:
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Amplifier:
-        return cls.from_figures(fields.raw("name"), read_figures(fields), context.r_ohm)
+        amp = cls.from_figures(fields.raw("name"), read_figures(fields), context.r_ohm)
+        fields.raw("input_port")
+        fields.raw("touchstone")
+        if not fields.has("touchstone"):
+            return amp
+        from .filter import read_touchstone
+
+        table, _, notes = read_touchstone(fields, context)
+        lo, hi = table.data_range_hz
+        if not lo <= context.ref_freq_hz <= hi:
+            raise fields.error(
+                "touchstone",
+                f"{fields.raw('touchstone')!r} covers {lo:.6g} to {hi:.6g} Hz: expected it to include "
+                f"the carrier at {context.ref_freq_hz:.6g} Hz, where the figures are referred",
+            )
+        return replace(amp, shape=table, ref_freq_hz=context.ref_freq_hz, notes=amp.notes + tuple(notes))
 
 
 def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | None:

@@ -19,6 +19,7 @@ class Attenuator:
     loss_db: float
 
     transfer = None
+    data_range_hz = None
 
     @property
     def gain_db(self) -> float:
@@ -26,6 +27,12 @@ class Attenuator:
 
     def response(self, freq_hz: np.ndarray) -> np.ndarray:
         return flat_response(-self.loss_db)(freq_hz)
+
+    def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Matched pad: S11 = S22 = 0, S21 = S12 = 10^(-loss/20)."""
+        s = np.zeros((*np.shape(freq_hz), 2, 2), dtype=complex)
+        s[..., 0, 1] = s[..., 1, 0] = 10.0 ** (-self.loss_db / 20.0)
+        return s
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Attenuator:

@@ -19,10 +19,17 @@ class LoadContext:
         System impedance (ohm) for power <-> voltage.
     base_dir : Path
         Folder of the lineup file; relative paths inside it start here.
+    beyond_data : str
+        What data-based responses do outside their frequency range
+        (:data:`spurplan.filters.BEYOND_POLICIES`).
+    ref_freq_hz : float
+        Frequency of the strongest carrier: where amplifier figures are referred.
     """
 
     r_ohm: float
     base_dir: Path
+    beyond_data: str = "error"
+    ref_freq_hz: float = 0.0
 
 
 class Stage(Protocol):

@@ -1,0 +1,139 @@
+"""What ``spurplan filter`` shows: a filter's parts and its response at the products.
+
+Either a filter stage of a lineup (the response at every product present at the
+filter's input) or a prototype given on its own (the response at the harmonics of
+a carrier, if one is given).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import LineupError, UnitError
+from .fields import Fields
+from .outputs import save_figure, write_atomic
+from .provenance import provenance
+from .stages.filter import Filter, read_prototype
+from .units import parse_freq_hz, parse_impedance_ohm
+
+# Points of a Touchstone file written for a synthesized ladder.
+TOUCHSTONE_POINTS = 1001
+# Harmonics of a --carrier shown for a prototype on its own.
+PROTOTYPE_HARMONICS = 10
+
+
+@dataclass(frozen=True)
+class FilterView:
+    """A filter with the product frequencies it is asked about."""
+
+    title: str
+    stage: Filter
+    response: dict[str, list]
+    notes: tuple[str, ...]
+    lineup: object = None
+
+    @property
+    def elements(self) -> dict[str, list]:
+        return self.stage.elements()
+
+    def element_display(self) -> dict[str, list]:
+        cols = dict(self.elements)
+        cols["l_nh"] = [None if v is None else v * 1e9 for v in cols["l_h"]]
+        cols["c_pf"] = [None if v is None else v * 1e12 for v in cols["c_f"]]
+        return cols
+
+    def response_display(self) -> dict[str, list]:
+        cols = dict(self.response)
+        cols["freq_mhz"] = [f / 1e6 for f in cols["freq_hz"]]
+        cols["flags"] = ["BEYOND DATA" if b else "" for b in cols["beyond_data"]]
+        return cols
+
+    def summary(self) -> dict:
+        proto = self.stage.prototype
+        out = {
+            "stage": self.stage.name,
+            "source": self.stage.source,
+            "prototype": None
+            if proto is None
+            else {k: getattr(proto, k) for k in proto.__dataclass_fields__},
+            "elements": self.elements,
+            "notes": list(self.notes),
+        }
+        if self.lineup is not None:
+            out.update(provenance(self.lineup))
+        return out
+
+    def save_plot(self, path: str | Path) -> Path:
+        from .plots import filter_response
+
+        fig = filter_response(self.stage, self.response)
+        try:
+            return save_figure(fig, path)
+        finally:
+            import matplotlib.pyplot as plt
+
+            plt.close(fig)
+
+    def save_touchstone(self, path: str | Path) -> Path:
+        """Write the network as a 2-port Touchstone file (its data grid, or a dense one)."""
+        rng = self.stage.data_range_hz
+        if rng is not None:
+            f = self.stage.table.freq_hz
+        else:
+            top = max(self.response["freq_hz"], default=0.0)
+            edge = self.stage.prototype.edge_hz + (self.stage.prototype.bandwidth_hz or 0.0)
+            stop = 1.15 * max(top, 3.0 * edge)
+            f = np.linspace(stop / TOUCHSTONE_POINTS, stop, TOUCHSTONE_POINTS)
+        net = self.stage.network(f)
+        net.frequency.unit = "MHz"
+        text = net.write_touchstone(return_string=True, skrf_comment=False)
+        header = f"! {self.stage.name}: written by spurplan (planning estimate, not a measurement)\n"
+        return write_atomic(path, header + text)
+
+
+def stage_view(lineup, name: str) -> FilterView:
+    """The view of filter stage ``name`` of ``lineup`` at its input products."""
+    i = lineup.stage_index(name)
+    stage = lineup.stages[i - 1]
+    if not isinstance(stage, Filter):
+        raise LineupError(f"stage {name!r} is a {type(stage).__name__.lower()}: expected a filter stage")
+    result = lineup.run()
+    what = stage.source or "synthesized ladder"
+    return FilterView(
+        title=f"{lineup.name}: filter '{name}' ({what}) at the products reaching it",
+        stage=stage,
+        response=result.stage_response(name),
+        notes=tuple(getattr(stage, "notes", ())),
+        lineup=lineup,
+    )
+
+
+def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterView:
+    """A prototype given as strings (command line), optionally at a carrier's harmonics."""
+    where = "command line"
+    try:
+        r_ohm = parse_impedance_ohm(impedance)
+        f0 = None if carrier is None else parse_freq_hz(carrier)
+    except UnitError as exc:
+        raise LineupError(str(exc), file=where) from None
+    proto = read_prototype(Fields({"prototype": spec}, where, "filter"))
+    stage = Filter(name="prototype", r_ohm=r_ohm, prototype=proto)
+    response = {
+        k: [] for k in ("freq_hz", "label", "order", "level_in_dbm", "s21_db", "s21_deg", "beyond_data")
+    }
+    if f0:
+        f = f0 * np.arange(1, PROTOTYPE_HARMONICS + 1)
+        h = stage.response(f)
+        response["freq_hz"] = [float(v) for v in f]
+        response["label"] = ["f1" if n == 1 else f"{n}f1" for n in range(1, PROTOTYPE_HARMONICS + 1)]
+        response["order"] = list(range(1, PROTOTYPE_HARMONICS + 1))
+        response["level_in_dbm"] = [None] * PROTOTYPE_HARMONICS
+        with np.errstate(divide="ignore"):
+            response["s21_db"] = [float(v) for v in 20 * np.log10(np.abs(h))]
+        response["s21_deg"] = [float(v) for v in np.degrees(np.angle(h))]
+        response["beyond_data"] = [False] * PROTOTYPE_HARMONICS
+    title = f"{proto.family} {proto.response}, order {proto.order}, {r_ohm:g} ohm"
+    return FilterView(title=title, stage=stage, response=response, notes=())

@@ -1,0 +1,237 @@
+"""Filters as scikit-rf networks: synthesized LC ladders and Touchstone data.
+
+Synthesized ladders
+-------------------
+Low-pass prototype g-values (Matthaei, Young and Jones 1964, section 4.05; Pozar,
+Microwave Engineering, section on filter prototypes; from memory):
+
+* Butterworth: ``g_k = 2 sin((2k - 1) pi / (2N))``, ``g_(N+1) = 1``;
+* Chebyshev, ripple ``L_Ar`` dB: ``beta = ln(coth(L_Ar / 17.37))``,
+  ``gamma = sinh(beta / (2N))``, ``a_k = sin((2k - 1) pi / (2N))``,
+  ``b_k = gamma^2 + sin^2(k pi / N)``, ``g_1 = 2 a_1 / gamma``,
+  ``g_k = 4 a_(k-1) a_k / (b_(k-1) g_(k-1))``; ``g_(N+1) = 1`` for odd N.  Even-order
+  Chebyshev ladders need unequal terminations, so only odd orders are offered.
+
+Scaling to the system impedance R0 and the edge frequency (same sources): low-pass
+series ``L = g R0 / wc`` and shunt ``C = g / (R0 wc)``; high-pass series
+``C = 1 / (g R0 wc)`` and shunt ``L = R0 / (g wc)``; band-pass with ``w0`` the
+geometric centre and ``D = BW / f0``: series arm ``L = g R0 / (w0 D)`` with
+``C = D / (g R0 w0)``, shunt arm ``L = D R0 / (g w0)`` in parallel with
+``C = g / (D R0 w0)``.
+
+Finite unloaded Q adds a series resistance ``w L / Q_L`` to every inductor and
+``1 / (w C Q_C)`` to every capacitor (common practice, no source), so passband loss
+is realistic.  The ladder is built from ``skrf.media.DefinedGammaZ0`` elements (a
+series impedance and its shunt form) and cascaded with ``**``, evaluated directly
+at the frequencies asked for: nothing is interpolated.
+
+Touchstone data
+---------------
+``S21`` between data points is interpolated piecewise-linearly in **dB against
+frequency** and in **unwrapped phase against frequency** (``numpy.interp`` on cached
+arrays).  Why: on a stopband skirt, where the rejection falls like ``log f``, a
+chord in dB against f lies above the true curve, so the estimate errs towards less
+rejection (conservative); interpolating Re/Im cuts the chord of the phase rotation
+and loses dB in the passband, and scikit-rf's rational fit is wild on sparse data
+(see the project's scikit-rf notes).  Outside the data nothing is known: see
+:data:`BEYOND_POLICIES`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+Family = Literal["butterworth", "chebyshev"]
+Response = Literal["lowpass", "highpass", "bandpass"]
+FAMILIES: tuple[str, ...] = ("butterworth", "chebyshev")
+RESPONSES: tuple[str, ...] = ("lowpass", "highpass", "bandpass")
+MAX_FILTER_ORDER = 15
+# What a Touchstone-based response does outside its data: raise (default), hold the
+# edge value, or assume no rejection (0 dB).
+BEYOND_POLICIES: tuple[str, ...] = ("error", "hold", "no_rejection")
+# Frequencies below this (Hz) are evaluated here: 0 Hz would make capacitors open.
+_MIN_EVAL_HZ = 1.0
+
+
+def butterworth_g(order: int) -> np.ndarray:
+    """Butterworth low-pass prototype values ``g_1 .. g_(N+1)``."""
+    k = np.arange(1, order + 1)
+    return np.append(2.0 * np.sin((2 * k - 1) * np.pi / (2 * order)), 1.0)
+
+
+def chebyshev_g(order: int, ripple_db: float) -> np.ndarray:
+    """Chebyshev low-pass prototype values ``g_1 .. g_(N+1)`` (module docstring)."""
+    # 17.37 in the handbook formula is 40 / ln(10); the exact value is used.
+    beta = math.log(1.0 / math.tanh(ripple_db * math.log(10.0) / 40.0))
+    gamma = math.sinh(beta / (2 * order))
+    a = [math.sin((2 * k - 1) * math.pi / (2 * order)) for k in range(1, order + 1)]
+    b = [gamma**2 + math.sin(k * math.pi / order) ** 2 for k in range(1, order + 1)]
+    g = [2.0 * a[0] / gamma]
+    for k in range(2, order + 1):
+        g.append(4.0 * a[k - 2] * a[k - 1] / (b[k - 2] * g[-1]))
+    g.append(1.0 if order % 2 else 1.0 / math.tanh(beta / 4.0) ** 2)
+    return np.array(g)
+
+
+@dataclass(frozen=True)
+class Prototype:
+    """A synthesized filter specification.
+
+    Attributes
+    ----------
+    family, response : str
+    order : int
+    edge_hz : float
+        Cutoff (low/high-pass: the -3 dB point for Butterworth, the ripple edge for
+        Chebyshev); for band-pass the geometric centre frequency.
+    bandwidth_hz : float or None
+        Band-pass bandwidth between the edges (Hz).
+    ripple_db : float or None
+        Chebyshev passband ripple (dB).
+    q_inductor, q_capacitor : float or None
+        Unloaded Q of the parts; ``None`` for lossless.
+    first : {"shunt", "series"}
+        Whether the ladder starts with a shunt or a series arm.
+    """
+
+    family: Family
+    response: Response
+    order: int
+    edge_hz: float
+    bandwidth_hz: float | None = None
+    ripple_db: float | None = None
+    q_inductor: float | None = None
+    q_capacitor: float | None = None
+    first: Literal["shunt", "series"] = "shunt"
+
+    def g_values(self) -> np.ndarray:
+        if self.family == "butterworth":
+            return butterworth_g(self.order)
+        return chebyshev_g(self.order, self.ripple_db)
+
+
+@dataclass(frozen=True)
+class Element:
+    """One arm of a ladder: ``branch`` is "series" or "shunt"; values in H and F.
+
+    ``l_h`` and ``c_f`` are both set for a band-pass resonator (series arm: L and C
+    in series; shunt arm: L and C in parallel).
+    """
+
+    position: int
+    branch: str
+    g: float
+    l_h: float | None
+    c_f: float | None
+
+    @property
+    def part(self) -> str:
+        if self.l_h is not None and self.c_f is not None:
+            return "L+C in series" if self.branch == "series" else "L||C"
+        return "L" if self.l_h is not None else "C"
+
+
+def ladder_elements(proto: Prototype, r_ohm: float) -> list[Element]:
+    """Element values of the ladder (module docstring for the formulas)."""
+    g = proto.g_values()[: proto.order]
+    out = []
+    for k, gk in enumerate(g, start=1):
+        series = (k % 2 == 1) == (proto.first == "series")
+        branch = "series" if series else "shunt"
+        if proto.response == "lowpass":
+            wc = 2 * math.pi * proto.edge_hz
+            l_h, c_f = (gk * r_ohm / wc, None) if series else (None, gk / (r_ohm * wc))
+        elif proto.response == "highpass":
+            wc = 2 * math.pi * proto.edge_hz
+            l_h, c_f = (None, 1.0 / (gk * r_ohm * wc)) if series else (r_ohm / (gk * wc), None)
+        else:
+            w0 = 2 * math.pi * proto.edge_hz
+            frac = proto.bandwidth_hz / proto.edge_hz
+            if series:
+                l_h, c_f = gk * r_ohm / (w0 * frac), frac / (gk * r_ohm * w0)
+            else:
+                l_h, c_f = frac * r_ohm / (gk * w0), gk / (frac * r_ohm * w0)
+        out.append(Element(position=k, branch=branch, g=float(gk), l_h=l_h, c_f=c_f))
+    return out
+
+
+def _arm_impedance(el: Element, w: np.ndarray, proto: Prototype) -> np.ndarray:
+    """Impedance (ohm) of one arm at angular frequencies ``w``, with finite Q."""
+    z_l = z_c = None
+    if el.l_h is not None:
+        r = 0.0 if proto.q_inductor is None else w * el.l_h / proto.q_inductor
+        z_l = r + 1j * w * el.l_h
+    if el.c_f is not None:
+        r = 0.0 if proto.q_capacitor is None else 1.0 / (w * el.c_f * proto.q_capacitor)
+        z_c = r + 1.0 / (1j * w * el.c_f)
+    if z_l is None:
+        return z_c
+    if z_c is None:
+        return z_l
+    return z_l + z_c if el.branch == "series" else 1.0 / (1.0 / z_l + 1.0 / z_c)
+
+
+def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):
+    """The ladder as a 2-port ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz)."""
+    import skrf
+    from skrf.media import DefinedGammaZ0
+
+    freq_hz = np.maximum(np.asarray(freq_hz, dtype=float), _MIN_EVAL_HZ)
+    frequency = skrf.Frequency.from_f(freq_hz, unit="Hz")
+    med = DefinedGammaZ0(frequency=frequency, z0=r_ohm)
+    w = 2 * math.pi * freq_hz
+    net = None
+    for el in ladder_elements(proto, r_ohm):
+        arm = med.resistor(_arm_impedance(el, w, proto))
+        if el.branch == "shunt":
+            arm = med.shunt(arm ** med.short())
+        net = arm if net is None else net**arm
+    net.name = f"{proto.family} {proto.response} N={proto.order}"
+    return net
+
+
+@dataclass(frozen=True)
+class SParameterTable:
+    """Cached S21 of a 2-port on its data grid, with the lookup the engine uses.
+
+    Attributes
+    ----------
+    freq_hz : ndarray (n,)
+        Strictly increasing data frequencies.
+    s21_db, s21_phase_rad : ndarray (n,)
+        ``20 log10|S21|`` and unwrapped phase.
+    beyond : str
+        One of :data:`BEYOND_POLICIES`.
+    """
+
+    freq_hz: np.ndarray
+    s21_db: np.ndarray
+    s21_phase_rad: np.ndarray
+    beyond: str = "error"
+
+    @classmethod
+    def from_s21(cls, freq_hz, s21, beyond: str = "error") -> SParameterTable:
+        s21 = np.asarray(s21, dtype=complex)
+        with np.errstate(divide="ignore"):
+            # An exact zero (a perfect match in S11, say) would make the dB table -inf.
+            db = np.maximum(20.0 * np.log10(np.abs(s21)), -400.0)
+        return cls(np.asarray(freq_hz, dtype=float), db, np.unwrap(np.angle(s21)), beyond)
+
+    @property
+    def data_range_hz(self) -> tuple[float, float]:
+        return float(self.freq_hz[0]), float(self.freq_hz[-1])
+
+    def __call__(self, freq_hz) -> np.ndarray:
+        """Complex S21 at ``freq_hz`` (>= 0, any shape), by the module's interpolation."""
+        f = np.asarray(freq_hz, dtype=float)
+        db = np.interp(f, self.freq_hz, self.s21_db)
+        ph = np.interp(f, self.freq_hz, self.s21_phase_rad)
+        h = 10.0 ** (db / 20.0) * np.exp(1j * ph)
+        if self.beyond == "no_rejection":
+            lo, hi = self.data_range_hz
+            h = np.where((f < lo) | (f > hi), 1.0 + 0j, h)
+        return h

@@ -1,0 +1,267 @@
+"""Filter stage: a linear 2-port from a Touchstone file or a synthesized prototype.
+
+Keys::
+
+    kind = "filter"
+    touchstone = "lpf.s2p"      # path relative to the lineup file, or
+    input_port = 1              # which port faces the signal source (1 or 2)
+    prototype = { family = "butterworth" | "chebyshev",
+                  response = "lowpass" | "highpass" | "bandpass",
+                  order = 7, cutoff = "520 MHz"          # low/high-pass
+                  # center = "450 MHz", bandwidth = "40 MHz"  for band-pass
+                  ripple = "0.1 dB",                      # Chebyshev
+                  q_inductor = 80, q_capacitor = 400,      # optional unloaded Q
+                  first = "shunt" | "series" }             # ladder orientation
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..fields import Fields
+from ..filters import (
+    FAMILIES,
+    MAX_FILTER_ORDER,
+    RESPONSES,
+    Prototype,
+    SParameterTable,
+    ladder_elements,
+    ladder_network,
+)
+from ..units import parse_freq_hz, parse_gain_db
+from .base import LoadContext
+
+# |S21| above this (dB) in a filter file is not a passive filter.
+_PASSIVE_SLACK_DB = 0.5
+
+
+@dataclass(frozen=True)
+class Filter:
+    """A linear filter stage.
+
+    Exactly one of ``prototype`` (synthesized ladder) and ``table`` (Touchstone S21
+    on its data grid) is set.
+    """
+
+    name: str
+    r_ohm: float
+    prototype: Prototype | None = None
+    table: SParameterTable | None = None
+    s_table: object = None
+    source: str | None = None
+    notes: tuple[str, ...] = ()
+    _cache: dict = field(default_factory=dict, compare=False, repr=False)
+
+    transfer = None
+
+    @property
+    def data_range_hz(self) -> tuple[float, float] | None:
+        """Frequency range (Hz) where the response is known; ``None`` for a prototype."""
+        return None if self.table is None else self.table.data_range_hz
+
+    def response(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Complex S21 at ``freq_hz`` (>= 0, any shape)."""
+        if self.table is not None:
+            return self.table(freq_hz)
+        return self.s_matrix(freq_hz)[..., 1, 0]
+
+    def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Full 2x2 S-matrix at ``freq_hz`` (any shape), shape ``freq_hz.shape + (2, 2)``."""
+        f = np.asarray(freq_hz, dtype=float)
+        uniq, inverse = np.unique(f, return_inverse=True)
+        key = uniq.tobytes()
+        s = self._cache.get(key)
+        if s is None:
+            if self.prototype is not None:
+                s = ladder_network(self.prototype, uniq, self.r_ohm).s
+            else:
+                s = self.s_table(uniq)
+            self._cache.clear()
+            self._cache[key] = s
+        return s[inverse.reshape(f.shape)]
+
+    def network(self, freq_hz: np.ndarray):
+        """The filter as an ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz)."""
+        import skrf
+
+        freq_hz = np.asarray(freq_hz, dtype=float)
+        return skrf.Network(
+            frequency=skrf.Frequency.from_f(freq_hz, unit="Hz"),
+            s=self.s_matrix(freq_hz),
+            z0=self.r_ohm,
+            name=self.name,
+        )
+
+    def elements(self) -> dict[str, list]:
+        """Element values of a synthesized ladder as columns (empty for Touchstone)."""
+        cols = {"position": [], "branch": [], "part": [], "g": [], "l_h": [], "c_f": []}
+        if self.prototype is None:
+            return cols
+        for el in ladder_elements(self.prototype, self.r_ohm):
+            cols["position"].append(el.position)
+            cols["branch"].append(el.branch)
+            cols["part"].append(el.part)
+            cols["g"].append(el.g)
+            cols["l_h"].append(el.l_h)
+            cols["c_f"].append(el.c_f)
+        return cols
+
+    @classmethod
+    def from_fields(cls, fields: Fields, context: LoadContext) -> Filter:
+        name = fields.raw("name")
+        has_ts, has_proto = fields.has("touchstone"), fields.has("prototype")
+        if has_ts == has_proto:
+            raise fields.error("touchstone", "expected exactly one of 'touchstone' or 'prototype'")
+        if has_proto:
+            fields.raw("touchstone")
+            fields.raw("input_port")
+            return cls(name=name, r_ohm=context.r_ohm, prototype=read_prototype(fields))
+        fields.raw("prototype")
+        table, s_table, notes = read_touchstone(fields, context)
+        return cls(
+            name=name,
+            r_ohm=context.r_ohm,
+            table=table,
+            s_table=s_table,
+            source=str(fields.raw("touchstone")),
+            notes=tuple(notes),
+        )
+
+
+def read_prototype(fields: Fields) -> Prototype:
+    """Parse a ``prototype = {...}`` inline table."""
+    raw = fields.raw("prototype")
+    sub = Fields(raw, fields.file, f"{fields.where} prototype")
+    family = sub.text("family", choices=FAMILIES)
+    response = sub.text("response", default="lowpass", choices=RESPONSES)
+    if family is None:
+        raise sub.error("family", f"is required: expected one of {', '.join(FAMILIES)}")
+    order = sub.integer("order", default=0, low=1, high=MAX_FILTER_ORDER)
+    if order == 0:
+        raise sub.error("order", f"is required: expected a whole number from 1 to {MAX_FILTER_ORDER}")
+    ripple = sub.quantity("ripple", parse_gain_db)
+    if family == "chebyshev":
+        if ripple is None or ripple <= 0 or ripple > 3:
+            raise sub.error("ripple", f"{sub.raw('ripple')!r}: expected a passband ripple from 0 to 3 dB")
+        if order % 2 == 0:
+            raise sub.error(
+                "order", f"{order}: expected an odd order (even Chebyshev ladders need unequal terminations)"
+            )
+    elif ripple is not None:
+        raise sub.error("ripple", f"{sub.raw('ripple')!r}: a Butterworth filter has no ripple")
+    cutoff = sub.quantity("cutoff", parse_freq_hz)
+    center = sub.quantity("center", parse_freq_hz)
+    bandwidth = sub.quantity("bandwidth", parse_freq_hz)
+    if response == "bandpass":
+        if center is None or bandwidth is None or cutoff is not None:
+            raise sub.error("center", "expected 'center' and 'bandwidth' (and no 'cutoff') for a band-pass")
+        if not 0 < bandwidth < 2 * center:
+            raise sub.error("bandwidth", f"{sub.raw('bandwidth')!r}: expected 0 < bandwidth < 2 x center")
+        edge = center
+    else:
+        if cutoff is None or center is not None or bandwidth is not None:
+            raise sub.error("cutoff", f"expected 'cutoff' (and no 'center' or 'bandwidth') for a {response}")
+        edge = cutoff
+    if edge <= 0:
+        raise sub.error("cutoff" if response != "bandpass" else "center", "expected a frequency > 0 Hz")
+    q_l = _q(sub, "q_inductor")
+    q_c = _q(sub, "q_capacitor")
+    first = sub.text("first", default="shunt", choices=("shunt", "series"))
+    sub.finish()
+    return Prototype(
+        family=family,
+        response=response,
+        order=order,
+        edge_hz=edge,
+        bandwidth_hz=bandwidth,
+        ripple_db=ripple,
+        q_inductor=q_l,
+        q_capacitor=q_c,
+        first=first,
+    )
+
+
+def _q(sub: Fields, key: str) -> float | None:
+    value = sub.raw(key)
+    if value is None:
+        return None
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, (int, float))
+        or not math.isfinite(value)
+        or value <= 0
+    ):
+        raise sub.error(key, f"{value!r}: expected an unloaded Q, a number > 0")
+    return float(value)
+
+
+def read_touchstone(fields: Fields, context: LoadContext):
+    """Read a 2-port Touchstone file for a stage; returns (S21 table, S lookup, notes)."""
+    rel = fields.raw("touchstone")
+    if not isinstance(rel, str) or not rel.strip():
+        raise fields.error("touchstone", f"{rel!r}: expected a file name such as 'filter.s2p'")
+    port = fields.raw("input_port", 1)
+    if port not in (1, 2) or isinstance(port, bool):
+        raise fields.error("input_port", f"{port!r}: expected 1 or 2")
+    path = (context.base_dir / rel).resolve()
+    if not path.is_file():
+        raise fields.error("touchstone", f"{rel!r}: file not found (looked for {path})")
+    import skrf
+
+    notes = []
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            net = skrf.Network(str(path))
+    except Exception as exc:  # skrf raises many kinds on corrupt files
+        first = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise fields.error("touchstone", f"{rel!r}: cannot be read as Touchstone ({first})") from None
+    notes += [f"{rel}: {w.message}" for w in caught]
+    if net.nports != 2:
+        raise fields.error("touchstone", f"{rel!r} has {net.nports} port(s): expected a 2-port file (.s2p)")
+    z0 = np.asarray(net.z0)
+    if not np.allclose(z0, context.r_ohm, rtol=1e-6, atol=0):
+        raise fields.error(
+            "touchstone",
+            f"{rel!r} is referred to {np.unique(np.round(z0.real, 6))} ohm: expected {context.r_ohm:g} ohm "
+            "(the lineup impedance)",
+        )
+    f = net.f
+    s = net.s
+    if len(f) < 2 or not np.all(np.diff(f) > 0):
+        raise fields.error("touchstone", f"{rel!r}: expected at least 2 strictly increasing frequencies")
+    if not np.all(np.isfinite(s)):
+        raise fields.error("touchstone", f"{rel!r}: contains NaN or infinite S-parameters")
+    if port == 2:
+        s = s[:, ::-1, ::-1]
+    s21 = s[:, 1, 0]
+    with np.errstate(divide="ignore"):
+        peak = float(np.max(20 * np.log10(np.abs(s21))))
+    if peak > _PASSIVE_SLACK_DB and fields.raw("kind") == "filter":
+        notes.append(f"{rel}: |S21| reaches {peak:+.2f} dB, more than a passive filter can")
+    beyond = context.beyond_data
+    return SParameterTable.from_s21(f, s21, beyond), _SMatrixTable(f, s, beyond), notes
+
+
+@dataclass(frozen=True)
+class _SMatrixTable:
+    """All four S-parameters of a file, interpolated like S21 (for linear sections)."""
+
+    freq_hz: np.ndarray
+    s: np.ndarray
+    beyond: str
+
+    def __call__(self, freq_hz) -> np.ndarray:
+        f = np.asarray(freq_hz, dtype=float)
+        out = np.empty((*f.shape, 2, 2), dtype=complex)
+        for i in range(2):
+            for j in range(2):
+                out[..., i, j] = SParameterTable.from_s21(self.freq_hz, self.s[:, i, j], self.beyond)(f)
+        if self.beyond == "no_rejection":
+            outside = (f < self.freq_hz[0]) | (f > self.freq_hz[-1])
+            out[outside] = np.array([[0, 1], [1, 0]], dtype=complex)
+        return out
