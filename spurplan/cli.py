@@ -66,7 +66,8 @@ class _Group(click.Group):
             click.echo(f"spurplan: error: {exc.format_message()}", err=True)
             sys.exit(2)
         except SpurplanError as exc:
-            click.echo(f"spurplan: error: {exc}", err=True)
+            # One line, whatever the message holds (a name with a line break, say).
+            click.echo("spurplan: error: " + " ".join(str(exc).split()), err=True)
             sys.exit(2)
 
 

@@ -223,6 +223,20 @@ class Propagation:
         return np.stack(out)
 
 
+def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
+    """Products that sit at 0 Hz, (B, P): ``m . f`` zero to within rounding.
+
+    The tolerance scales with ``sum |m_k f_k|`` (the size of the terms that cancel), so a
+    1 Hz beat of two 100 MHz carriers is a product, and ``2 f1 - f2`` with ``f2 = 2 f1``
+    is DC.  The base-tone frequencies are read from the unit mixing vectors.
+    """
+    freqs_hz = np.asarray(freqs_hz, dtype=float)
+    k = mix.shape[1]
+    cols = [int(np.nonzero((mix == np.eye(k, dtype=mix.dtype)[i]).all(axis=1))[0][0]) for i in range(k)]
+    terms = np.abs(freqs_hz[..., cols]) @ np.abs(mix).T.astype(float)
+    return np.abs(freqs_hz) <= 1e-12 * terms
+
+
 def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -> Propagation:
     """Run a spectrum through a chain of stages.
 
@@ -237,7 +251,7 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
     freqs_hz : ndarray, (B, P)
         Signed product frequencies (Hz).
     """
-    dc = np.abs(freqs_hz) <= 1e-9 * np.abs(freqs_hz).max(initial=1.0)
+    dc = at_zero_hz(mix, freqs_hz)
     x = np.where(dc, 0.0, x_in)
     nodes, added, resp, extrap, conv, beyond = [x], [], [], [], [], []
     for stage in stages:

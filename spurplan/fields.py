@@ -55,7 +55,9 @@ class Fields:
         self._seen.add(key)
         if key not in self.table:
             if required:
-                raise self.error(key, "is required")
+                close = difflib.get_close_matches(key, [k for k in self.table if isinstance(k, str)], n=1, cutoff=0.6)
+                hint = f" (is '{close[0]}' a misspelling of it?)" if close else ""
+                raise self.error(key, f"is required{hint}")
             return None
         try:
             return parse(self.table[key])
@@ -70,6 +72,8 @@ class Fields:
         value = self.table[key]
         if not isinstance(value, str):
             raise self.error(key, f"{value!r}: expected a string")
+        if any(ch in value for ch in "\n\r\t\x00"):
+            raise self.error(key, f"{value!r}: expected text on one line (no line breaks or tabs)")
         if choices and value not in choices:
             hint = _did_you_mean(value, choices)
             raise self.error(key, f"{value!r}: expected one of {', '.join(choices)}{hint}")
@@ -81,11 +85,16 @@ class Fields:
         if key not in self.table:
             return default
         value = self.table[key]
-        if isinstance(value, bool) or not isinstance(value, int):
-            if isinstance(value, float) and math.isfinite(value) and value.is_integer():
-                value = int(value)
-            else:
-                raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
+        expected = f"expected a whole number from {low} to {high}"
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise self.error(key, f"{value!r}: {expected}")
+        if not (math.isfinite(value) and low <= value <= high):
+            shown = f"{value:.6g}" if isinstance(value, float) or abs(value) > 10**9 else repr(value)
+            raise self.error(key, f"{shown}: {expected}")
+        if isinstance(value, float):
+            if not value.is_integer():
+                raise self.error(key, f"{value!r}: {expected}")
+            value = int(value)
         if not low <= value <= high:
             raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
         return value

@@ -104,8 +104,12 @@ class Lineup:
         for i, stage in enumerate(self.stages, start=1):
             if stage.name == name:
                 return i
-        known = ", ".join(s.name for s in self.stages)
-        raise LineupError(f"no stage named {name!r}: expected one of {known}")
+        known = ", ".join(repr(s.name) for s in self.stages)
+        raise LineupError(
+            f"no stage named {name!r}: expected one of {known}",
+            file=None if self.source is None else str(self.source),
+            field="--stage",
+        )
 
     def input_phasors(self, mix: np.ndarray, drive_offset_db=0.0) -> np.ndarray:
         """Input peak phasors (V), shape (B, P), for carrier powers offset by ``drive_offset_db``.

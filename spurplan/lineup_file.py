@@ -158,7 +158,7 @@ def _stage(table, file: str, index: int, context: LoadContext):
     if not isinstance(table, dict):
         raise LineupError(f"expected a table, got {table!r}", file=file, stage=f"stage {index}")
     raw_name = table.get("name")
-    where = f"stage {index} '{raw_name}'" if isinstance(raw_name, str) else f"stage {index}"
+    where = f"stage {index} {raw_name!r}" if isinstance(raw_name, str) else f"stage {index}"
     f = Fields(table, file, where)
     kind = f.text("kind", choices=tuple(KINDS))
     if kind is None:

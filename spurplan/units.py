@@ -27,6 +27,12 @@ _IMPEDANCE_SCALE = {"ohm": 1.0, "ohms": 1.0, "\u03c9": 1.0, "\u2126": 1.0, "kohm
 _ANGLE_SCALE = {"deg": math.pi / 180.0, "\u00b0": math.pi / 180.0, "rad": 1.0}
 _DISTANCE_SCALE = {"m": 1.0, "km": 1e3, "cm": 1e-2}
 
+# Plausible ranges: values outside are typing mistakes (or overflow float64 once
+# converted), not transmitters.
+MAX_FREQ_HZ = 1e12
+POWER_RANGE_DBM = (-300.0, 100.0)
+GAIN_RANGE_DB = (-400.0, 200.0)
+
 FREQ_UNITS = "a frequency with its unit (Hz, kHz, MHz or GHz), e.g. '455 MHz'"
 POWER_UNITS = "a power with its unit (dBm, dBW, W, mW or uW), e.g. '-8 dBm'"
 GAIN_UNITS = "a ratio in dB, e.g. '16 dB'"
@@ -44,6 +50,8 @@ def _split(text: object, expected: str) -> tuple[float, str]:
         raise UnitError(text, f"{expected} (a bare number has no unit)")
     match = _QUANTITY.match(text)
     if match is None:
+        if text.strip().lower().lstrip("+-").startswith(("nan", "inf")):
+            raise UnitError(text, f"{expected} (a finite number)")
         raise UnitError(text, expected)
     value = float(match.group(1))
     if not math.isfinite(value):
@@ -65,22 +73,28 @@ def parse_freq_hz(text: object) -> float:
         raise UnitError(text, FREQ_UNITS)
     if value < 0:
         raise UnitError(text, f"{FREQ_UNITS} (not negative)")
-    return value * scale
+    hz = value * scale
+    if not hz <= MAX_FREQ_HZ:
+        raise UnitError(text, f"{FREQ_UNITS} (at most {MAX_FREQ_HZ / 1e9:g} GHz)")
+    return hz
 
 
 def parse_power_dbm(text: object) -> float:
     """Read a power such as ``"-8 dBm"``, ``"2 W"`` or ``"+33 dBW"``; returns dBm."""
     value, unit = _split(text, POWER_UNITS)
     _require_unit(text, unit, POWER_UNITS)
-    key = unit.replace("\u00b5", "u").lower()
-    if key == "dbm":
-        return value
-    if key == "dbw":
-        return value + 30.0
-    watts = {"w": 1.0, "mw": 1e-3, "uw": 1e-6, "kw": 1e3}.get(key)
-    if watts is None or value <= 0:
-        raise UnitError(text, POWER_UNITS + (" (a linear power must be > 0)" if watts else ""))
-    return w_to_dbm(value * watts)
+    key = unit.replace("\u00b5", "u").replace("\u03bc", "u").lower()
+    if key in ("dbm", "dbw"):
+        dbm = value + (30.0 if key == "dbw" else 0.0)
+    else:
+        watts = {"w": 1.0, "mw": 1e-3, "uw": 1e-6, "kw": 1e3}.get(key)
+        if watts is None or value <= 0:
+            raise UnitError(text, POWER_UNITS + (" (a linear power must be > 0)" if watts else ""))
+        dbm = float(w_to_dbm(value * watts))
+    lo, hi = POWER_RANGE_DBM
+    if not lo <= dbm <= hi:
+        raise UnitError(text, f"{POWER_UNITS} (from {lo:g} to {hi:+g} dBm)")
+    return dbm
 
 
 def parse_gain_db(text: object) -> float:
@@ -89,6 +103,9 @@ def parse_gain_db(text: object) -> float:
     _require_unit(text, unit, GAIN_UNITS)
     if unit.lower() != "db":
         raise UnitError(text, GAIN_UNITS)
+    lo, hi = GAIN_RANGE_DB
+    if not lo <= value <= hi:
+        raise UnitError(text, f"{GAIN_UNITS} (from {lo:g} to {hi:+g} dB)")
     return value
 
 
@@ -104,9 +121,14 @@ def parse_dbc_at(text: object) -> tuple[float, float]:
     if not isinstance(text, str) or "@" not in text:
         raise UnitError(text, DBC_AT_UNITS)
     left, right = text.split("@", 1)
-    value, unit = _split(left, DBC_AT_UNITS)
+    try:
+        value, unit = _split(left, DBC_AT_UNITS)
+    except UnitError:
+        raise UnitError(text, DBC_AT_UNITS) from None
     if unit.lower() != "dbc":
         raise UnitError(text, DBC_AT_UNITS)
+    if value < GAIN_RANGE_DB[0]:
+        raise UnitError(text, f"{DBC_AT_UNITS} (above {GAIN_RANGE_DB[0]:g} dBc)")
     if value >= 0:
         raise UnitError(text, f"{DBC_AT_UNITS} (a level below the carrier, < 0 dBc)")
     try:

@@ -141,6 +141,8 @@ def output_p1db_dbm(transfer, r_ohm: float) -> float | None:
     Returns ``None`` when the model does not compress by 1 dB (linear or
     expansive).
     """
+    if transfer.degree == 1:
+        return None
     mix = mixing_vectors(1, 3)
     scale = _model_scale_v(transfer)
     amps = np.geomspace(scale * 1e-3, scale * 30.0, 600)
