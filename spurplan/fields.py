@@ -55,7 +55,9 @@ class Fields:
         self._seen.add(key)
         if key not in self.table:
             if required:
-                close = difflib.get_close_matches(key, [k for k in self.table if isinstance(k, str)], n=1, cutoff=0.6)
+                close = difflib.get_close_matches(
+                    key, [k for k in self.table if isinstance(k, str)], n=1, cutoff=0.6
+                )
                 hint = f" (is '{close[0]}' a misspelling of it?)" if close else ""
                 raise self.error(key, f"is required{hint}")
             return None

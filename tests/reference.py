@@ -1,0 +1,134 @@
+"""Brute-force time-domain reference for the spectral engine (a test oracle).
+
+Written independently of :mod:`spurplan`: it samples the physical waveform on a
+common time grid, applies each stage sample by sample, and reads every product from
+one long FFT.  Nothing here knows about mixing vectors.
+
+* The carriers ``x(t) = sum_k A_k cos(2 pi f_k t + phi_k)`` must sit exactly on FFT
+  bins: ``f_k = n_k df`` with integer ``n_k``.  The record is one period ``1/df``
+  sampled at ``fs = L df``, so each tone completes a whole number of cycles and there
+  is no leakage and no window (DFT of a periodic sequence; any signal-processing
+  text, e.g. Oppenheim and Schafer, Discrete-Time Signal Processing, from memory).
+* A stage is either a memoryless transfer ``T(x)`` (peak volts in, peak volts out)
+  or a flat linear gain given as a number in dB.
+* After every stage the DC bin is zeroed (the stages are AC-coupled): subtracting
+  the record mean is exactly that, since the DC bin of the DFT is the sum of the
+  samples.
+* Peak amplitude of a real tone on bin ``b`` (``0 < b < L/2``) is ``2 |X_b| / L``
+  with ``X = rfft(x)``; power is ``A^2 / (2 R)`` (common practice, no source).
+
+Aliasing: sampling is exact when every component of every intermediate signal lies
+below ``fs / 2``.  For polynomial stages of degrees ``D_1 .. D_S`` the highest
+component is ``(D_1 ... D_S) max(n_k)`` bins, so ``L > 2 D_1 ... D_S max(n_k)`` makes
+the reference exact (:func:`exact_length`).  Other transfers have components of
+every order; the caller must oversample until the compared bins stop changing.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+
+@dataclass(frozen=True)
+class Tone:
+    """One carrier: frequency (Hz), power (dBm), phase (rad)."""
+
+    freq_hz: float
+    power_dbm: float
+    phase_rad: float = 0.0
+
+
+@dataclass(frozen=True)
+class Spectrum:
+    """One-sided spectrum of the output record.
+
+    Attributes
+    ----------
+    df_hz : float
+        Bin spacing (Hz).
+    level_dbm : ndarray
+        Power (dBm) on bins 0 .. L/2 - 1 (bin 0 is -inf after DC removal).
+    """
+
+    df_hz: float
+    level_dbm: np.ndarray
+
+    def bin_of(self, freq_hz: float) -> int:
+        """The bin a frequency sits on (it must sit exactly on one)."""
+        b = round(freq_hz / self.df_hz)
+        if abs(b * self.df_hz - freq_hz) > 1e-9 * max(freq_hz, self.df_hz):
+            raise ValueError(f"{freq_hz} Hz is not on the {self.df_hz} Hz grid")
+        if not 0 <= b < len(self.level_dbm):
+            raise ValueError(f"{freq_hz} Hz is beyond the record's Nyquist frequency")
+        return b
+
+    def at(self, freq_hz: float) -> float:
+        """Level (dBm) at ``freq_hz``."""
+        return float(self.level_dbm[self.bin_of(freq_hz)])
+
+
+Stage = Callable[[np.ndarray], np.ndarray] | float
+
+
+def dbm_to_vpeak(level_dbm: float, r_ohm: float) -> float:
+    """Peak volts of a sinusoid of this power: ``V = sqrt(2 R P)`` (common practice, no source)."""
+    return math.sqrt(2.0 * r_ohm * 10.0 ** ((level_dbm - 30.0) / 10.0))
+
+
+def exact_length(bins: Sequence[int], total_degree: int) -> int:
+    """Smallest even record length that holds every polynomial product below Nyquist."""
+    top = total_degree * max(bins)
+    return 2 * top + 2
+
+
+def simulate(
+    tones: Sequence[Tone], stages: Sequence[Stage], *, df_hz: float, length: int, r_ohm: float = 50.0
+) -> Spectrum:
+    """Run the carriers through the stages on a record of ``length`` samples.
+
+    Parameters
+    ----------
+    tones : sequence of Tone
+        Each ``freq_hz`` must be an integer multiple of ``df_hz``.
+    stages : sequence
+        Each a callable ``T(x)`` on peak-volt samples, or a number: a flat gain in dB.
+    df_hz : float
+        Bin spacing: the record is ``1 / df_hz`` long.
+    length : int
+        Samples in the record (even); the sample rate is ``length * df_hz``.
+    r_ohm : float
+        System impedance.
+    """
+    if length % 2:
+        raise ValueError("use an even record length")
+    j = np.arange(length, dtype=np.int64)
+    x = np.zeros(length)
+    for tone in tones:
+        n = round(tone.freq_hz / df_hz)
+        if n < 1 or abs(n * df_hz - tone.freq_hz) > 1e-9 * tone.freq_hz:
+            raise ValueError(f"tone {tone.freq_hz} Hz is not on the {df_hz} Hz grid")
+        if 2 * n >= length:
+            raise ValueError(f"tone {tone.freq_hz} Hz is beyond Nyquist for length {length}")
+        # Reduce the phase index modulo the record in integers: cos of a small,
+        # exact argument instead of a large one.
+        theta = 2.0 * np.pi * ((n * j) % length) / length
+        x += dbm_to_vpeak(tone.power_dbm, r_ohm) * np.cos(theta + tone.phase_rad)
+    for stage in stages:
+        x = _apply(stage, x)
+        x = x - x.mean()
+    spec = np.fft.rfft(x)[: length // 2]
+    amp = 2.0 * np.abs(spec) / length
+    with np.errstate(divide="ignore"):
+        level = 10.0 * np.log10(amp**2 / (2.0 * r_ohm)) + 30.0
+    return Spectrum(df_hz=df_hz, level_dbm=level)
+
+
+def _apply(stage: Stage, x: np.ndarray) -> np.ndarray:
+    """One stage on the samples: a transfer callable, or a flat gain in dB."""
+    if callable(stage):
+        return np.asarray(stage(x), dtype=float)
+    return x * 10.0 ** (float(stage) / 20.0)
