@@ -32,6 +32,7 @@ Clipper
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -93,7 +94,7 @@ class Polynomial:
         neg = real[real < 0]
         return (float(neg.max()) if neg.size else -math.inf, float(pos.min()) if pos.size else math.inf)
 
-    @property
+    @functools.cached_property
     def valid_peak_v(self) -> tuple[float, float]:
         """Input peaks (V) where the instantaneous gain ``y/x`` leaves a1 by 1 dB."""
         if self.degree == 1:

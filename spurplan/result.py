@@ -20,7 +20,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .spectrum import label, orders, tone_index
+from .spectrum import label, labels, orders, tone_index
 from .units import ratio_db, vpeak_to_dbm
 
 # Rows more than this far below the strongest carrier are numerical noise of the
@@ -139,35 +139,47 @@ class Result:
         top_source = np.argmax(strength, axis=0)
 
         level_dbm = vpeak_to_dbm(level, self.lineup.r_ohm)
-        carriers = self.carrier_levels_dbm(stage, batch)
-        ref = float(np.max(carriers))
-        keep = (level > 0) & (level_dbm - ref > REPORT_FLOOR_DBC)
+        # dBc against the strongest carrier row (what an analyser shows at the carrier,
+        # including any product that lands on it).
+        ref = float(np.max(level_dbm[is_carrier]))
+        keep = np.nonzero((level > 0) & (level_dbm - ref > REPORT_FLOOR_DBC))[0]
 
         order_of = orders(self.mix)
+        # Representative of each group: its lowest-order member.
+        by_group = np.lexsort((np.arange(len(group)), order_of, group))
+        rep = by_group[np.unique(group[by_group], return_index=True)[1]]
+        plus, minus = labels(self.mix, self.lineup.tone_names)
+        name_of = [plus[i] if f[i] >= 0 else minus[i] for i in range(len(f))]
+        signed = np.where((f >= 0)[:, None], self.mix, -self.mix)
+        sizes = np.bincount(group, minlength=n_groups)
+        beyond = prop.beyond[:node, batch, :].any(axis=0)
+        beyond_group = np.zeros(n_groups, dtype=bool)
+        np.logical_or.at(beyond_group, group, beyond)
+        sources = self.source_names()
         extrap = bool(prop.extrapolated[:node, batch].any())
         not_conv = bool((~prop.converged[:node, batch]).any())
-        beyond = prop.beyond[:node, batch, :].any(axis=0)
-        names = self.lineup.tone_names
-        sources = self.source_names()
-        cols = {c: [] for c in PRODUCT_COLUMNS}
-        for g in np.nonzero(keep)[0]:
-            members = np.nonzero(group == g)[0]
-            members = members[np.argsort(order_of[members], kind="stable")]
-            signed = [self.mix[i] * (1 if f[i] >= 0 else -1) for i in members]
-            labels = [label(m, names) for m in signed]
-            cols["freq_hz"].append(float(freq[members[0]]))
-            cols["level_dbm"].append(float(level_dbm[g]))
-            cols["dbc"].append(float(level_dbm[g] - ref))
-            cols["order"].append(int(order_of[members[0]]))
-            cols["mix"].append([int(v) for v in signed[0]])
-            cols["label"].append(labels[0])
-            cols["also"].append(" ".join(labels[1:]))
-            cols["kind"].append("carrier" if is_carrier[g] else "product")
-            cols["stage"].append(sources[top_source[g]])
-            cols["model_extrapolated"].append(extrap)
-            cols["not_converged"].append(not_conv)
-            cols["beyond_data"].append(bool(beyond[members].any()))
-        return cols
+        n = len(keep)
+        reps = rep[keep]
+        return {
+            "freq_hz": freq[reps].tolist(),
+            "level_dbm": level_dbm[keep].tolist(),
+            "dbc": (level_dbm[keep] - ref).tolist(),
+            "order": order_of[reps].tolist(),
+            "mix": signed[reps].tolist(),
+            "label": [name_of[i] for i in reps],
+            "also": [self._also(g, group, by_group, name_of) if sizes[g] > 1 else "" for g in keep],
+            "kind": ["carrier" if c else "product" for c in is_carrier[keep]],
+            "stage": [sources[i] for i in top_source[keep]],
+            "model_extrapolated": [extrap] * n,
+            "not_converged": [not_conv] * n,
+            "beyond_data": beyond_group[keep].tolist(),
+        }
+
+    @staticmethod
+    def _also(g: int, group: np.ndarray, by_group: np.ndarray, name_of: list[str]) -> str:
+        """Labels of the other products merged into group ``g`` (lowest order first)."""
+        members = by_group[group[by_group] == g]
+        return " ".join(name_of[i] for i in members[1:])
 
     @property
     def extrapolated_stages(self) -> list[str]:

@@ -13,11 +13,13 @@ mixing-vector arrays are ``(product, tone)``.
 
 from __future__ import annotations
 
+import functools
 import itertools
 
 import numpy as np
 
 
+@functools.lru_cache(maxsize=32)
 def mixing_vectors(n_tones: int, max_order: int) -> np.ndarray:
     """All canonical mixing vectors of order 1 to ``max_order``.
 
@@ -32,7 +34,7 @@ def mixing_vectors(n_tones: int, max_order: int) -> np.ndarray:
     -------
     ndarray of int, shape (P, K)
         Sorted by order, then lexicographically descending, so that the base tones
-        come first (``[1, 0]``, ``[0, 1]``, ...).
+        come first (``[1, 0]``, ``[0, 1]``, ...).  Read-only (cached).
     """
     rows = []
     for m in itertools.product(range(-max_order, max_order + 1), repeat=n_tones):
@@ -42,7 +44,9 @@ def mixing_vectors(n_tones: int, max_order: int) -> np.ndarray:
     mix = np.array(rows, dtype=np.int64).reshape(-1, n_tones)
     keys = [(-int(np.abs(r).sum()), *r.tolist()) for r in mix]
     order = sorted(range(len(rows)), key=lambda i: keys[i], reverse=True)
-    return mix[order]
+    mix = mix[order]
+    mix.flags.writeable = False  # shared by every caller through the cache
+    return mix
 
 
 def _first_nonzero(m) -> int:
@@ -99,6 +103,20 @@ def label(m, tone_names: list[str]) -> str:
     for i, (negative, term) in enumerate(terms):
         text += ("-" if negative else ("+" if i else "")) + term
     return text
+
+
+@functools.lru_cache(maxsize=32)
+def _labels_cached(
+    mix_bytes: bytes, shape: tuple[int, int], names: tuple[str, ...]
+) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    mix = np.frombuffer(mix_bytes, dtype=np.int64).reshape(shape)
+    return tuple(label(m, list(names)) for m in mix), tuple(label(-m, list(names)) for m in mix)
+
+
+def labels(mix: np.ndarray, tone_names: list[str]) -> tuple[tuple[str, ...], tuple[str, ...]]:
+    """Labels of every mixing vector as given and negated (cached): ``(plus, minus)``."""
+    mix = np.ascontiguousarray(mix, dtype=np.int64)
+    return _labels_cached(mix.tobytes(), mix.shape, tuple(tone_names))
 
 
 def default_tone_names(n_tones: int) -> list[str]:
