@@ -95,7 +95,8 @@ def simulate(
     tones : sequence of Tone
         Each ``freq_hz`` must be an integer multiple of ``df_hz``.
     stages : sequence
-        Each a callable ``T(x)`` on peak-volt samples, or a number: a flat gain in dB.
+        Each a callable ``T(x)`` on peak-volt samples, a number (a flat gain in dB), or
+        a :class:`Linear` response applied bin by bin.
     df_hz : float
         Bin spacing: the record is ``1 / df_hz`` long.
     length : int
@@ -118,7 +119,7 @@ def simulate(
         theta = 2.0 * np.pi * ((n * j) % length) / length
         x += dbm_to_vpeak(tone.power_dbm, r_ohm) * np.cos(theta + tone.phase_rad)
     for stage in stages:
-        x = _apply(stage, x)
+        x = _apply(stage, x, df_hz)
         x = x - x.mean()
     spec = np.fft.rfft(x)[: length // 2]
     amp = 2.0 * np.abs(spec) / length
@@ -127,8 +128,24 @@ def simulate(
     return Spectrum(df_hz=df_hz, level_dbm=level)
 
 
-def _apply(stage: Stage, x: np.ndarray) -> np.ndarray:
-    """One stage on the samples: a transfer callable, or a flat gain in dB."""
+@dataclass(frozen=True)
+class Linear:
+    """A linear stage given by its complex response ``h(f_hz)`` at f >= 0.
+
+    Applied exactly in the frequency domain of the record: every bin k is
+    multiplied by ``h(k df)`` (the record is periodic, so this is the steady state).
+    """
+
+    h: Callable[[np.ndarray], np.ndarray]
+
+
+def _apply(stage, x: np.ndarray, df_hz: float) -> np.ndarray:
+    """One stage on the samples: a transfer callable, a flat gain in dB, or Linear."""
+    if isinstance(stage, Linear):
+        spec = np.fft.rfft(x)
+        f = np.arange(len(spec)) * df_hz
+        f[0] = df_hz  # DC is removed after every stage anyway
+        return np.fft.irfft(spec * stage.h(f), n=len(x))
     if callable(stage):
         return np.asarray(stage(x), dtype=float)
     return x * 10.0 ** (float(stage) / 20.0)
