@@ -277,5 +277,139 @@ def filter_cmd(
     click.echo(PLANNING_NOTICE)
 
 
+CHECK_TABLE = [
+    ("verdict", "", None),
+    ("freq_mhz", "freq (MHz)", ".6f"),
+    ("label", "product", None),
+    ("level_in_rbw_dbm", "level (dBm/RBW)", ".2f"),
+    ("limit_dbm", "limit (dBm)", ".2f"),
+    ("margin_db", "margin (dB)", ".2f"),
+    ("limit_form", "limit", None),
+    ("rule", "rule", None),
+    ("band", "protected band", None),
+    ("stage", "largest from", None),
+    ("flags", "flags", None),
+]
+
+
+def _size(text: str) -> tuple[int, int]:
+    try:
+        w, h = (int(v) for v in text.lower().split("x"))
+    except ValueError:
+        raise click.BadParameter(f"{text!r}: expected WIDTHxHEIGHT in pixels, e.g. 1200x700") from None
+    if not (200 <= w <= 8000 and 200 <= h <= 8000):
+        raise click.BadParameter(f"{text!r}: expected 200 to 8000 pixels each way")
+    return w, h
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@click.option(
+    "--plot",
+    "plot_file",
+    type=click.Path(dir_okay=False),
+    help="Draw the spectrum against the mask (PNG/SVG/PDF).",
+)
+@click.option(
+    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
+)
+def check(lineup, fmt, combine, plot_file, plot_size):
+    """Check every product at the output of LINEUP against its [mask].
+
+    Exit status: 0 the mask is met, 1 it is violated, 2 bad input.
+    """
+    from .check import check as run_check
+    from .formatting import text_table, to_csv, to_json
+
+    size = _size(plot_size)
+    outcome = run_check(_load(lineup), combine=combine)
+    _warn(outcome.result)
+    for note in outcome.notes:
+        click.echo(f"spurplan: note: {note}", err=True)
+    if plot_file:
+        from .plots import save_check_plot
+
+        save_check_plot(outcome, plot_file, size)
+    rows = outcome.rows
+    if fmt == "json":
+        click.echo(to_json(outcome.summary(), "products", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        shown = dict(rows)
+        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
+        shown["freq_mhz"] = [f / 1e6 for f in rows["freq_hz"]]
+        shown["flags"] = [
+            " ".join(
+                t for t, on in (("BEYOND-DATA", b), ("EXTRAPOLATED", e), (d.upper(), d != "spurious")) if on
+            )
+            for b, e, d in zip(rows["beyond_data"], rows["model_extrapolated"], rows["domain"], strict=True)
+        ]
+        summary = outcome.summary()
+        click.echo(f"{summary['lineup']}: products at the output against the mask")
+        click.echo(text_table(shown, CHECK_TABLE), nl=False)
+        worst = summary["worst"]
+        if worst is None:
+            click.echo("VERDICT: no product falls under a rule")
+        else:
+            word = "PASS" if outcome.passed else "FAIL"
+            click.echo(
+                f"VERDICT: {word}, worst margin {worst['margin_db']:+.2f} dB: {worst['label']} at "
+                f"{worst['freq_hz'] / 1e6:.6f} MHz under {worst['rule']}"
+                + (f" (in {worst['band']})" if worst["band"] else "")
+                + f", largest from {worst['stage']}; {summary['failing']} of {summary['checked']} checked products fail"
+            )
+        click.echo(PLANNING_NOTICE)
+    sys.exit(0 if outcome.passed else 1)
+
+
+BANDS_TABLE = [
+    ("name", "name", None),
+    ("kind", "kind", None),
+    ("entries", "entries", "d"),
+    ("status", "status of values", None),
+    ("title", "title", None),
+]
+
+RULES_TABLE = [
+    ("name", "entry", None),
+    ("start_mhz", "start (MHz)", ".6g"),
+    ("stop_mhz", "stop (MHz)", ".6g"),
+    ("limit", "limit", None),
+    ("status", "status", None),
+    ("source", "source", None),
+]
+
+
+@main.command(epilog=EPILOG)
+@click.argument("name", required=False)
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+def bands(name, fmt):
+    """List the shipped rule sets and band lists, or show NAME with its sources."""
+    from .bands_view import band_rows, catalogue_rows, describe
+    from .formatting import text_table, to_csv, to_json
+
+    if name is None:
+        rows = catalogue_rows()
+        table, title, summary = (
+            BANDS_TABLE,
+            "Shipped rule sets and band lists (use them in [mask] use = [...])",
+            {},
+        )
+    else:
+        rows, summary = band_rows(name)
+        table, title = RULES_TABLE, describe(summary)
+    if fmt == "json":
+        click.echo(to_json(summary, "entries", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        click.echo(title)
+        click.echo(text_table(rows, table), nl=False)
+        click.echo(PLANNING_NOTICE)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

@@ -85,6 +85,10 @@ class Lineup:
         System impedance (ohm).
     source : Path or None
         The file it was loaded from.
+    notes : tuple of str
+        How models were fitted, for the terminal and reports.
+    mask : spurplan.masks.Mask or None
+        The emission limits the lineup is checked against.
     """
 
     name: str
@@ -94,6 +98,7 @@ class Lineup:
     r_ohm: float = 50.0
     source: Path | None = None
     notes: tuple[str, ...] = field(default=())
+    mask: object = None
 
     @property
     def tone_names(self) -> list[str]:

@@ -11,6 +11,8 @@ File layout (key names are the interface: extend, don't rename)::
     [[carrier]]   freq, power, bandwidth, phase
     [[stage]]     kind, name, and the keys of that kind (see spurplan.stages)
     [analysis]    max_order, combine, beyond_data, linear_sections
+    [mask]        use, files, antenna_gain, spurious_boundary, [[mask.rule]], [[mask.band]]
+                  (see spurplan.mask_files)
 """
 
 from __future__ import annotations
@@ -23,10 +25,11 @@ from .errors import LineupError
 from .fields import Fields
 from .filters import BEYOND_POLICIES
 from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup
+from .mask_files import read_mask
 from .stages import KINDS, LoadContext
 from .units import parse_angle_rad, parse_freq_hz, parse_impedance_ohm, parse_power_dbm
 
-TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis")
+TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask")
 # The torus engine's cost grows as (grid)^tones; beyond this many base tones a
 # check no longer fits a laptop's memory at useful orders.
 MAX_CARRIERS = 3
@@ -105,6 +108,7 @@ def from_dict(
         stages.append(stage)
     _check_size(stages, len(carriers), analysis, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
+    mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
     return Lineup(
         name=title,
         carriers=carriers,
@@ -113,6 +117,7 @@ def from_dict(
         r_ohm=r_ohm,
         source=source,
         notes=notes,
+        mask=mask,
     )
 
 

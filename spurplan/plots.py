@@ -72,3 +72,91 @@ def _edge(stage) -> float:
     if proto is None:
         return 1.0
     return proto.edge_hz + (proto.bandwidth_hz or 0.0)
+
+
+def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
+    """Output products as stems against the mask's limit line.
+
+    Protected bands are shaded and labelled, failing products annotated; stems are
+    the level in the applicable rule's reference bandwidth (the whole product level
+    where no rule applies).
+    """
+    from .check import limit_line
+
+    plt = _pyplot()
+    rows = outcome.rows
+    freq = np.asarray(rows["freq_hz"], dtype=float)
+    level = np.array(
+        [r if r is not None else t for r, t in zip(rows["level_in_rbw_dbm"], rows["level_dbm"], strict=True)],
+        dtype=float,
+    )
+    carriers = [c.freq_hz for c in outcome.result.lineup.carriers]
+    top = max(float(freq.max()) if freq.size else 0.0, max(carriers)) * 1.08
+    scale, unit = _freq_axis(np.array([top]))
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    grid = np.linspace(0.0, top, 4000)
+    line = limit_line(outcome, grid)
+    ax.plot(grid / scale, line, color="black", lw=1.4, drawstyle="steps-mid", label="limit (most stringent)")
+    mask = outcome.result.lineup.mask
+    shown_bands = [b for b in mask.bands if b.start_hz < top]
+    for b in shown_bands:
+        ax.axvspan(b.start_hz / scale, min(b.stop_hz, top) / scale, color="tab:orange", alpha=0.18, lw=0)
+    floor = np.nanmin(np.append(level, line[np.isfinite(line)])) - 15 if level.size else -150
+    bottom = max(floor, -200.0)
+    ok = np.array([p is not False for p in rows["pass"]], dtype=bool)
+    ax.vlines(freq[ok] / scale, bottom, level[ok], color="tab:blue", lw=1.2)
+    ax.plot(freq[ok] / scale, level[ok], "o", color="tab:blue", ms=3.5, label="product (passes or unchecked)")
+    if (~ok).any():
+        ax.vlines(freq[~ok] / scale, bottom, level[~ok], color="tab:red", lw=1.6)
+        ax.plot(freq[~ok] / scale, level[~ok], "X", color="tab:red", ms=7, label="product FAILS")
+        for i in np.nonzero(~ok)[0]:
+            ax.annotate(
+                f"{rows['label'][i]} FAIL {rows['margin_db'][i]:+.1f} dB",
+                (freq[i] / scale, level[i]),
+                textcoords="offset points",
+                xytext=(4, 6),
+                fontsize=8,
+                color="tab:red",
+            )
+    carrier_level = outcome.carrier_dbm
+    ax.vlines(
+        np.array(carriers) / scale, bottom, carrier_level, color="tab:green", lw=2.0, label="carrier(s)"
+    )
+    ymax = max(carrier_level + 5, float(np.nanmax(line)) + 5 if np.isfinite(line).any() else carrier_level)
+    for b in shown_bands:
+        ax.text(
+            (b.start_hz + min(b.stop_hz, top)) / 2 / scale,
+            ymax - 2,
+            b.name,
+            rotation=90,
+            fontsize=6,
+            va="top",
+            ha="center",
+            color="tab:brown",
+        )
+    ax.set_ylim(bottom, ymax)
+    ax.set_xlim(0, top / scale)
+    ax.set_xlabel(f"frequency ({unit})")
+    ax.set_ylabel("level (dBm in the rule's reference bandwidth)")
+    verdict = "PASS" if outcome.passed else "FAIL"
+    margin = outcome.worst_margin_db
+    ax.set_title(
+        f"{outcome.result.lineup.name}: {verdict}"
+        + ("" if margin is None else f", worst margin {margin:+.2f} dB")
+        + " (planning estimate)"
+    )
+    ax.grid(True, alpha=0.35)
+    ax.legend(loc="upper right", fontsize=8)
+    return fig
+
+
+def save_check_plot(outcome, path, size_px=(1200, 700)):
+    """Draw :func:`check_figure` to ``path`` atomically, at exactly ``size_px`` pixels."""
+    from .outputs import save_figure
+
+    dpi = 100
+    fig = check_figure(outcome, size_px, dpi)
+    try:
+        return save_figure(fig, path, dpi=dpi)
+    finally:
+        _pyplot().close(fig)

@@ -1,0 +1,443 @@
+"""Reading rule sets and band lists (``bands/*.toml``, users' files, ``[mask]``).
+
+File format (one rule set or band list per file)::
+
+    [ruleset]
+    name = "itu-sm329-cat-a"            # how lineups refer to it in [mask] use
+    title = "..."
+    source = "document, section, edition"
+    examine = { start = "9 kHz", stop = "40 GHz", harmonic = 10 }   # optional
+    limits_from = "us-fcc-15.209"        # band lists: rules that hold in each band
+
+    [[rule]]
+    name = "..."
+    start = "30 MHz"
+    stop = "1 GHz"                       # optional: no upper end
+    limit = "-36 dBm" | "-60 dBc" | "54 dBuV/m @ 3 m" | "2400/F uV/m @ 300 m"
+    # or: attenuation = "43 dB", cap = "70 dB"
+    rbw = "100 kHz"                      # optional: compare whole product power
+    floor = "-20 dBm"; ceiling = "-16 dBm"          # optional, relative limits
+    when_carrier = { start = "30 MHz", stop = "225 MHz" }
+    when_power = { above = "25 W" } | { at_most = "25 W" }
+    status = "published text" | "secondary source" | "derived" | "from memory"
+    source = "..."                       # optional: defaults to the set's
+
+    [[band]]
+    name = "..."; start = "..."; stop = "..."; status = "..."
+    limit = "..."; rbw = "..."           # optional: the band's own limit
+
+The lineup's ``[mask]`` table takes ``use`` (names of shipped sets, or tables
+``{ name = "...", limit = "...", rbw = "..." }`` that give a band list a limit),
+``files`` (paths of users' own files, relative to the lineup), ``antenna_gain``,
+``spurious_boundary``, and inline ``[[mask.rule]]`` / ``[[mask.band]]`` tables.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import re
+import tomllib
+from dataclasses import replace
+from pathlib import Path
+
+from .errors import LineupError, UnitError
+from .fields import Fields, _did_you_mean
+from .masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
+from .resources import data_dir
+from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
+
+LIMIT_FORMS = "a limit such as '-36 dBm', '-60 dBc', '54 dBuV/m @ 3 m' or '2400/F uV/m @ 300 m'"
+_FIELD = re.compile(
+    r"^\s*(?P<k>[+-]?\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)\s*(?P<per>/\s*F\s*)?(?P<unit>dBuV/m|uV/m|mV/m)\s*@\s*"
+    r"(?P<d>\d+(?:\.\d*)?)\s*m\s*$",
+    re.IGNORECASE,
+)
+
+
+def shipped_names() -> list[str]:
+    """Names of the rule sets and band lists installed with spurplan."""
+    return sorted(p.stem for p in data_dir("bands").glob("*.toml"))
+
+
+def shipped_path(name: str, where: Fields | None = None) -> Path:
+    names = shipped_names()
+    if name not in names:
+        msg = f"{name!r}: no such shipped rule set or band list{_did_you_mean(name, names)}; expected one of {', '.join(names)}"
+        if where is None:
+            raise LineupError(msg)
+        raise where.error("use", msg)
+    return data_dir("bands") / f"{name}.toml"
+
+
+def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
+    """Read one rule set or band list file.
+
+    ``resolve(name)`` returns another set for ``limits_from`` (default: shipped sets).
+    """
+    path = Path(path)
+    file = str(path)
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise LineupError("file not found: expected a rule set file (TOML)", file=file) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise LineupError(
+            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=file
+        ) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise LineupError(f"not valid TOML: {exc}", file=file) from None
+    top = Fields(doc, file, "")
+    for key in ("ruleset", "rule", "band"):
+        top.raw(key)
+    top.finish()
+    head = Fields(doc.get("ruleset", {}), file, "[ruleset]")
+    name = head.text("name", default=path.stem)
+    title = head.text("title", default=name)
+    source = head.text("source", default="")
+    if not source:
+        raise head.error("source", "is required: expected the document, section and edition")
+    notes = head.text("notes", default="")
+    examined = _examined(head)
+    limits_from = head.text("limits_from")
+    head.finish()
+    rules = tuple(
+        read_rule(Fields(t, file, f"rule {i}"), origin=name, default_source=source)
+        for i, t in enumerate(_tables(doc, "rule", file), start=1)
+    )
+    delegated = ()
+    if limits_from:
+        other = (resolve or _shipped)(limits_from)
+        delegated = other.rules
+    bands = tuple(
+        read_band(Fields(t, file, f"band {i}"), origin=name, default_source=source, delegated=delegated)
+        for i, t in enumerate(_tables(doc, "band", file), start=1)
+    )
+    return RuleSet(
+        name=name, title=title, source=source, rules=rules, bands=bands, examined=examined, notes=notes
+    )
+
+
+def _shipped(name: str) -> RuleSet:
+    return load_ruleset(shipped_path(name))
+
+
+def _tables(doc, key, file):
+    value = doc.get(key, [])
+    if not isinstance(value, list):
+        raise LineupError(f"'{key}' must be an array of tables ([[{key}]])", file=file)
+    return value
+
+
+def _examined(head: Fields) -> Examined:
+    raw = head.raw("examine")
+    if raw is None:
+        return Examined()
+    sub = Fields(raw, head.file, "[ruleset] examine")
+    start = sub.quantity("start", parse_freq_hz) or 0.0
+    stop = sub.quantity("stop", parse_freq_hz)
+    harmonic = sub.integer("harmonic", default=0, low=1, high=100) or None
+    sub.finish()
+    return Examined(start_hz=start, stop_hz=math.inf if stop is None else stop, harmonic=harmonic)
+
+
+def parse_limit(text) -> tuple[str, float, float | None, bool]:
+    """Read a limit string: returns ``(kind, value, distance_m, per_khz)``.
+
+    ``"100 uV/m @ 3 m"`` becomes ``("field", 40.0, 3.0, False)`` (dBuV/m = 20 log10(uV/m));
+    ``"2400/F uV/m @ 300 m"`` becomes ``("field", 67.6, 300.0, True)``: 20 log10(2400), to
+    be divided by F in kHz.
+    """
+    if not isinstance(text, str):
+        raise UnitError(text, LIMIT_FORMS)
+    m = _FIELD.match(text)
+    if m:
+        k, unit, distance = float(m["k"]), m["unit"].lower(), float(m["d"])
+        if distance <= 0:
+            raise UnitError(text, f"{LIMIT_FORMS} (a distance > 0 m)")
+        per = m["per"] is not None
+        if unit == "dbuv/m":
+            if per:
+                raise UnitError(text, LIMIT_FORMS)
+            return "field", k, distance, False
+        uv = k * (1e3 if unit == "mv/m" else 1.0)
+        if uv <= 0:
+            raise UnitError(text, f"{LIMIT_FORMS} (a field strength > 0)")
+        return "field", 20.0 * math.log10(uv), distance, per
+    lowered = text.strip().lower()
+    if lowered.endswith("dbc"):
+        value = float(parse_gain_db(text.strip()[:-3] + "dB"))
+        return "relative", value, None, False
+    return "absolute", parse_power_dbm(text), None, False
+
+
+def read_rule(f: Fields, origin: str, default_source: str, status_required: bool = True) -> Rule:
+    """One ``[[rule]]`` table (a rule file's, or ``[[mask.rule]]`` of a lineup)."""
+    name = f.text("name", default=f.where)
+    start = f.quantity("start", parse_freq_hz, required=True)
+    stop = f.quantity("stop", parse_freq_hz)
+    stop = math.inf if stop is None else stop
+    if stop <= start:
+        raise f.error("stop", f"{f.raw('stop')!r}: expected a stop frequency above start {f.raw('start')!r}")
+    has_limit, has_att = f.has("limit"), f.has("attenuation")
+    if has_limit == has_att:
+        raise f.error("limit", "expected exactly one of 'limit' or 'attenuation'")
+    cap = distance = None
+    per_khz = False
+    if has_limit:
+        kind, value, distance, per_khz = f.quantity("limit", parse_limit)
+    else:
+        kind, value = "attenuation", f.quantity("attenuation", parse_gain_db)
+    f.raw("limit"), f.raw("attenuation")
+    cap = f.quantity("cap", parse_gain_db)
+    if cap is not None and kind != "attenuation":
+        raise f.error("cap", "applies to 'attenuation' rules only")
+    rbw = f.quantity("rbw", parse_freq_hz)
+    if rbw is not None and rbw <= 0:
+        raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+    floor = f.quantity("floor", parse_power_dbm)
+    ceiling = f.quantity("ceiling", parse_power_dbm)
+    if (floor is not None or ceiling is not None) and kind != "relative":
+        raise f.error("floor", "'floor' and 'ceiling' apply to relative (dBc) limits only")
+    when_carrier = _range(f, "when_carrier", ("start", "stop"), parse_freq_hz)
+    when_power = _range(f, "when_power", ("above", "at_most"), parse_power_dbm)
+    status = _status(f, required=status_required)
+    source = f.text("source", default=default_source) or default_source
+    f.finish()
+    return Rule(
+        name=name,
+        start_hz=start,
+        stop_hz=stop,
+        kind=kind,
+        value=value,
+        rbw_hz=rbw,
+        cap_db=cap,
+        distance_m=distance,
+        per_khz=per_khz,
+        floor_dbm=floor,
+        ceiling_dbm=ceiling,
+        when_carrier_hz=when_carrier,
+        when_power_dbm=when_power,
+        source=source,
+        status=status,
+        origin=origin,
+    )
+
+
+def _range(f: Fields, key: str, ends: tuple[str, str], parse):
+    raw = f.raw(key)
+    if raw is None:
+        return None
+    sub = Fields(raw, f.file, f"{f.where} {key}")
+    lo = sub.quantity(ends[0], parse)
+    hi = sub.quantity(ends[1], parse)
+    sub.finish()
+    if lo is None and hi is None:
+        raise f.error(key, f"expected '{ends[0]}' and/or '{ends[1]}'")
+    return (-math.inf if lo is None else lo, math.inf if hi is None else hi)
+
+
+def _status(f: Fields, required: bool) -> str:
+    status = f.text("status", choices=STATUSES)
+    if status is None:
+        if required:
+            raise f.error("status", f"is required: expected one of {', '.join(STATUSES[:4])}")
+        return "user"
+    return status
+
+
+def read_band(
+    f: Fields, origin: str, default_source: str, delegated=(), status_required: bool = True, limit=None
+) -> Band:
+    """One ``[[band]]`` table; its rules are its own limit, else the delegated rules."""
+    name = f.text("name")
+    if not name:
+        raise f.error("name", "is required: expected the band's name")
+    start = f.quantity("start", parse_freq_hz, required=True)
+    stop = f.quantity("stop", parse_freq_hz)
+    stop = math.inf if stop is None else stop
+    if stop <= start:
+        raise f.error("stop", f"{f.raw('stop')!r}: expected a stop frequency above start {f.raw('start')!r}")
+    status = _status(f, required=status_required)
+    source = f.text("source", default=default_source) or default_source
+    own = limit
+    if f.has("limit"):
+        kind, value, distance, per_khz = f.quantity("limit", parse_limit)
+        rbw = f.quantity("rbw", parse_freq_hz)
+        if rbw is not None and rbw <= 0:
+            raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+        own = (kind, value, distance, per_khz, rbw)
+    f.raw("limit"), f.raw("rbw")
+    f.finish()
+    rules = ()
+    if own is not None:
+        kind, value, distance, per_khz, rbw = own
+        rules = (
+            Rule(
+                name=f"{name} (protected)",
+                start_hz=start,
+                stop_hz=stop,
+                kind=kind,
+                value=value,
+                rbw_hz=rbw,
+                distance_m=distance,
+                per_khz=per_khz,
+                source=source,
+                status=status,
+                origin=origin,
+            ),
+        )
+    elif delegated:
+        rules = tuple(
+            _clip(r, start, stop, name) for r in delegated if r.start_hz <= stop and r.stop_hz >= start
+        )
+    return Band(
+        name=name, start_hz=start, stop_hz=stop, rules=rules, source=source, status=status, origin=origin
+    )
+
+
+def _clip(rule: Rule, start: float, stop: float, band: str) -> Rule:
+    return replace(
+        rule,
+        start_hz=max(rule.start_hz, start),
+        stop_hz=min(rule.stop_hz, stop),
+        name=f"{rule.name} in {band}",
+    )
+
+
+def read_mask(table, file: str, base_dir: Path) -> Mask:
+    """The lineup's ``[mask]`` table."""
+    f = Fields(table, file, "[mask]")
+    sets: list[RuleSet] = []
+    uses = f.raw("use", [])
+    if not isinstance(uses, list):
+        raise f.error("use", f"{uses!r}: expected a list of rule-set names")
+    for entry in uses:
+        sets.append(_use(entry, f))
+    files = f.raw("files", [])
+    if not isinstance(files, list) or not all(isinstance(p, str) for p in files):
+        raise f.error("files", f"{files!r}: expected a list of file names")
+    for rel in files:
+        path = (base_dir / rel).resolve()
+        if not path.is_file():
+            raise f.error("files", f"{rel!r}: file not found (looked for {path})")
+        sets.append(load_ruleset(path))
+    inline_rules = tuple(
+        read_rule(
+            Fields(t, file, f"[[mask.rule]] {i}"),
+            origin="lineup",
+            default_source="lineup file",
+            status_required=False,
+        )
+        for i, t in enumerate(_list(f, "rule"), start=1)
+    )
+    inline_bands = tuple(
+        read_band(
+            Fields(t, file, f"[[mask.band]] {i}"),
+            origin="lineup",
+            default_source="lineup file",
+            status_required=False,
+        )
+        for i, t in enumerate(_list(f, "band"), start=1)
+    )
+    if inline_rules or inline_bands:
+        sets.append(
+            RuleSet(
+                name="lineup",
+                title="rules in the lineup file",
+                source=file,
+                rules=inline_rules,
+                bands=inline_bands,
+            )
+        )
+    gain = _antenna_gain(f)
+    boundary = f.raw("spurious_boundary", 2.5)
+    if isinstance(boundary, bool) or not isinstance(boundary, (int, float)) or not 0 <= boundary <= 100:
+        raise f.error(
+            "spurious_boundary", f"{boundary!r}: expected a number of necessary bandwidths from 0 to 100"
+        )
+    f.finish()
+    mask = Mask(sets=tuple(sets), antenna_gain=gain, spurious_boundary=float(boundary))
+    if mask.needs_antenna_gain and not gain:
+        names = sorted({r.origin for s in sets for r in s.rules if r.kind == "field"})
+        raise f.error(
+            "antenna_gain",
+            f"is required: {', '.join(names) or 'a band list'} gives field-strength limits (expected e.g. '2.15 dBi')",
+        )
+    return mask
+
+
+def _list(f: Fields, key: str) -> list:
+    value = f.raw(key, [])
+    if not isinstance(value, list):
+        raise f.error(key, f"expected an array of tables ([[mask.{key}]])")
+    return value
+
+
+def _use(entry, f: Fields) -> RuleSet:
+    if isinstance(entry, str):
+        return load_ruleset(shipped_path(entry, f))
+    if not isinstance(entry, dict):
+        raise f.error("use", f"{entry!r}: expected a rule-set name or a table {{ name = ..., limit = ... }}")
+    sub = Fields(entry, f.file, "[mask] use")
+    name = sub.text("name")
+    if not name:
+        raise sub.error("name", "is required: expected a shipped band list's name")
+    kind, value, distance, per_khz = sub.quantity("limit", parse_limit, required=True)
+    rbw = sub.quantity("rbw", parse_freq_hz)
+    if rbw is not None and rbw <= 0:
+        raise sub.error("rbw", f"{sub.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+    sub.finish()
+    base = load_ruleset(shipped_path(name, f))
+    limit = (kind, value, distance, per_khz, rbw)
+    bands = tuple(_with_limit(b, limit) for b in base.bands)
+    return replace(base, bands=bands)
+
+
+def _with_limit(band: Band, limit) -> Band:
+    kind, value, distance, per_khz, rbw = limit
+    rule = Rule(
+        name=f"{band.name} (protected)",
+        start_hz=band.start_hz,
+        stop_hz=band.stop_hz,
+        kind=kind,
+        value=value,
+        rbw_hz=rbw,
+        distance_m=distance,
+        per_khz=per_khz,
+        source="limit given in the lineup's [mask] use",
+        status="user",
+        origin="lineup",
+    )
+    return replace(band, rules=(rule,))
+
+
+def _antenna_gain(f: Fields) -> tuple[tuple[float, float], ...]:
+    raw = f.raw("antenna_gain")
+    if raw is None:
+        return ()
+    if isinstance(raw, str):
+        return ((0.0, _dbi(raw, f)),)
+    if not isinstance(raw, list) or not raw:
+        raise f.error("antenna_gain", f"{raw!r}: expected '2.15 dBi' or a table [['100 MHz', '0 dBi'], ...]")
+    points = []
+    for item in raw:
+        if not (isinstance(item, list) and len(item) == 2):
+            raise f.error("antenna_gain", f"{item!r}: expected a [frequency, gain] pair")
+        try:
+            points.append((parse_freq_hz(item[0]), _dbi(item[1], f)))
+        except UnitError as exc:
+            raise f.error("antenna_gain", str(exc)) from None
+    points.sort()
+    if any(b[0] <= a[0] for a, b in itertools.pairwise(points)):
+        raise f.error("antenna_gain", "expected strictly increasing frequencies")
+    return tuple(points)
+
+
+def _dbi(text, f: Fields) -> float:
+    if isinstance(text, str) and text.strip().lower().endswith("dbi"):
+        try:
+            return parse_gain_db(text.strip()[:-3] + "dB")
+        except UnitError:
+            pass
+    raise f.error("antenna_gain", f"{text!r}: expected a gain in dBi, e.g. '2.15 dBi'")

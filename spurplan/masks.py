@@ -1,0 +1,248 @@
+"""Emission limits: rules over frequency ranges, protected bands, and their evaluation.
+
+A :class:`Rule` applies over ``[start_hz, stop_hz]`` and is one of
+
+``absolute``     a level in a reference bandwidth, e.g. -36 dBm in 100 kHz;
+``relative``     relative to the mean carrier power, e.g. -60 dBc (optionally held
+                 between an absolute floor and ceiling, as some amateur rules are);
+``attenuation``  at least ``A + 10 log10(P / 1 W)`` dB below the mean power P, or
+                 ``cap`` dB, whichever is less stringent (ITU-R SM.329 category A
+                 form; 43 + 10 log P is the same as -13 dBm absolute);
+``field``        a radiated field strength at a distance, turned into EIRP by
+                 ``E[dBuV/m] = EIRP[dBm] + 104.77 - 20 log10(d / 1 m)`` (free-space far
+                 field, ITU-R P.525 eq. (1) in dB form) and into a conducted level by
+                 subtracting the antenna gain; ``"2400/F uV/m"`` forms (F in kHz) are
+                 supported for the low-frequency rows of 47 CFR 15.209.
+
+Rules may hold only for some carriers: ``when_carrier_hz`` (the carrier frequency
+range) and ``when_power_dbm`` (the carrier's mean power range), as in 47 CFR 97.307.
+
+Where rules overlap the most stringent holds: the one that leaves the least
+margin for the product at hand (reference bandwidths may differ).
+
+A product of carriers with occupied bandwidths ``B_k`` spreads over about
+``sum |m_k| B_k`` (an approximation: the convolution of the carrier spectra has that
+width; carriers without a bandwidth are CW).  Wider than the rule's reference
+bandwidth RBW, it reads ``10 log10(B / RBW)`` lower in that bandwidth.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+
+RuleKind = Literal["absolute", "relative", "attenuation", "field"]
+# 120 + 10 log10(30) - 30: E in dBuV/m at 1 m from an EIRP in dBm (ITU-R P.525).
+FIELD_CONSTANT_DB = 120.0 + 10.0 * math.log10(30.0) - 30.0
+STATUSES = ("published text", "secondary source", "derived", "from memory", "user")
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One limit over a frequency range (see the module docstring).
+
+    Attributes
+    ----------
+    name : str
+    start_hz, stop_hz : float
+        Range the rule covers (``stop_hz`` may be ``inf``).
+    kind : RuleKind
+    value : float
+        absolute: dBm; relative: dBc; attenuation: the coefficient A in dB; field:
+        dBuV/m (with ``per_khz``: 20 log10 of the numerator K in uV/m).
+    rbw_hz : float or None
+        Reference bandwidth; ``None`` compares the product's whole power.
+    cap_db : float or None
+        attenuation: the "or X dBc, whichever is less stringent" figure.
+    distance_m : float or None
+        field: measurement distance.
+    per_khz : bool
+        field: the limit is ``K / F(kHz)`` uV/m, i.e. ``value - 20 log10(F/kHz)`` dBuV/m.
+    floor_dbm, ceiling_dbm : float or None
+        relative: the limit never needs to be below ``floor_dbm`` and never exceeds
+        ``ceiling_dbm``.
+    when_carrier_hz, when_power_dbm : (float, float) or None
+        The rule holds only for carriers in this frequency range / with a mean power
+        in this range (``(lo, hi]``).
+    source : str
+        Document, section, edition.
+    status : str
+        One of :data:`STATUSES`: how the value was checked.
+    origin : str
+        The rule set (file) or ``"lineup"`` it came from.
+    """
+
+    name: str
+    start_hz: float
+    stop_hz: float
+    kind: RuleKind
+    value: float
+    rbw_hz: float | None = None
+    cap_db: float | None = None
+    distance_m: float | None = None
+    per_khz: bool = False
+    floor_dbm: float | None = None
+    ceiling_dbm: float | None = None
+    when_carrier_hz: tuple[float, float] | None = None
+    when_power_dbm: tuple[float, float] | None = None
+    source: str = ""
+    status: str = "user"
+    origin: str = "lineup"
+
+    def holds_for(self, carrier_hz: float, carrier_dbm: float) -> bool:
+        """Whether the rule's carrier conditions hold."""
+        if self.when_carrier_hz is not None:
+            lo, hi = self.when_carrier_hz
+            if not lo <= carrier_hz <= hi:
+                return False
+        if self.when_power_dbm is not None:
+            lo, hi = self.when_power_dbm
+            if not lo < carrier_dbm <= hi:
+                return False
+        return True
+
+    def limit_dbm(self, freq_hz: np.ndarray, carrier_dbm: float, antenna_gain_dbi: np.ndarray) -> np.ndarray:
+        """Conducted limit (dBm in ``rbw_hz``) at ``freq_hz`` for mean carrier power ``carrier_dbm``."""
+        f = np.asarray(freq_hz, dtype=float)
+        if self.kind == "absolute":
+            return np.full(f.shape, self.value)
+        if self.kind == "relative":
+            lim = np.full(f.shape, carrier_dbm + self.value)
+            if self.ceiling_dbm is not None:
+                lim = np.minimum(lim, self.ceiling_dbm)
+            if self.floor_dbm is not None:
+                lim = np.maximum(lim, self.floor_dbm)
+            return lim
+        if self.kind == "attenuation":
+            attenuation = self.value + (carrier_dbm - 30.0)
+            if self.cap_db is not None:
+                attenuation = min(attenuation, self.cap_db)
+            return np.full(f.shape, carrier_dbm - attenuation)
+        e_dbuv = (
+            self.value - 20.0 * np.log10(np.maximum(f, 1.0) / 1e3)
+            if self.per_khz
+            else np.full(f.shape, self.value)
+        )
+        eirp = field_to_eirp_dbm(e_dbuv, self.distance_m)
+        return eirp - antenna_gain_dbi
+
+    @property
+    def describe(self) -> str:
+        """Short human form of the limit, e.g. ``-36 dBm/100 kHz``."""
+        bw = "" if self.rbw_hz is None else f"/{_bw(self.rbw_hz)}"
+        if self.kind == "absolute":
+            return f"{self.value:g} dBm{bw}"
+        if self.kind == "relative":
+            return f"{self.value:g} dBc{bw}"
+        if self.kind == "attenuation":
+            cap = "" if self.cap_db is None else f" (max {self.cap_db:g} dB)"
+            return f"{self.value:g}+10logP dB{cap}{bw}"
+        value = f"{10 ** (self.value / 20):.6g}/F(kHz) uV/m" if self.per_khz else f"{self.value:.4g} dBuV/m"
+        return f"{value} @ {self.distance_m:g} m{bw}"
+
+
+def field_to_eirp_dbm(field_dbuv_m, distance_m: float):
+    """EIRP (dBm) that gives ``field_dbuv_m`` at ``distance_m`` in free space.
+
+    ``E = EIRP + 104.77 - 20 log10(d)`` (ITU-R P.525-2 eq. (1), e = sqrt(30 p) / d, in dB).
+    """
+    return np.asarray(field_dbuv_m, dtype=float) - FIELD_CONSTANT_DB + 20.0 * math.log10(distance_m)
+
+
+def _bw(hz: float) -> str:
+    for scale, unit in ((1e6, "MHz"), (1e3, "kHz")):
+        if hz >= scale:
+            return f"{hz / scale:g} {unit}"
+    return f"{hz:g} Hz"
+
+
+@dataclass(frozen=True)
+class Band:
+    """A protected band: a named range, with the rules that hold inside it.
+
+    ``rules`` may be empty: the band is then named in reports, and the general
+    rules decide.
+    """
+
+    name: str
+    start_hz: float
+    stop_hz: float
+    rules: tuple[Rule, ...] = ()
+    source: str = ""
+    status: str = "user"
+    origin: str = "lineup"
+
+
+@dataclass(frozen=True)
+class Examined:
+    """Frequency range a rule set examines: ``start_hz`` up to the lower of
+    ``stop_hz`` and ``harmonic`` times the highest carrier."""
+
+    start_hz: float = 0.0
+    stop_hz: float = math.inf
+    harmonic: int | None = None
+
+    def upper_hz(self, carrier_hz: float) -> float:
+        top = self.stop_hz
+        if self.harmonic is not None:
+            top = min(top, self.harmonic * carrier_hz)
+        return top
+
+
+@dataclass(frozen=True)
+class RuleSet:
+    """Rules and bands from one file (shipped in ``bands/``, or the user's)."""
+
+    name: str
+    title: str
+    source: str
+    rules: tuple[Rule, ...] = ()
+    bands: tuple[Band, ...] = ()
+    examined: Examined = Examined()
+    notes: str = ""
+
+
+@dataclass(frozen=True)
+class Mask:
+    """What a lineup is checked against.
+
+    Attributes
+    ----------
+    sets : tuple of RuleSet
+        Every set in use (shipped, user files, and the lineup's own inline rules).
+    antenna_gain : ((freq_hz, gain_dbi), ...)
+        Antenna gain for field-strength rules; one point is a constant, several are
+        interpolated linearly in frequency (held beyond the ends).
+    spurious_boundary : float
+        Products within this many necessary bandwidths of a carrier's centre are in
+        the out-of-band domain and not checked against spurious limits (2.5, i.e.
+        250 %, after ITU RR Appendix 3; from memory).
+    """
+
+    sets: tuple[RuleSet, ...] = ()
+    antenna_gain: tuple[tuple[float, float], ...] = ()
+    spurious_boundary: float = 2.5
+    notes: tuple[str, ...] = field(default=())
+
+    @property
+    def rules(self) -> list[tuple[Rule, Examined]]:
+        return [(r, s.examined) for s in self.sets for r in s.rules]
+
+    @property
+    def bands(self) -> list[Band]:
+        return [b for s in self.sets for b in s.bands]
+
+    def antenna_gain_dbi(self, freq_hz: np.ndarray) -> np.ndarray:
+        f = np.asarray(freq_hz, dtype=float)
+        if not self.antenna_gain:
+            return np.zeros(f.shape)
+        pts = np.array(self.antenna_gain, dtype=float)
+        return np.interp(f, pts[:, 0], pts[:, 1])
+
+    @property
+    def needs_antenna_gain(self) -> bool:
+        rules = [r for r, _ in self.rules] + [r for b in self.bands for r in b.rules]
+        return any(r.kind == "field" for r in rules)
