@@ -196,8 +196,10 @@ class Propagation:
     converged: np.ndarray
     beyond: np.ndarray
 
-    def contributions(self, node: int) -> np.ndarray:
+    def contributions(self, node: int, rows=slice(None)) -> np.ndarray:
         """Per-source phasors at ``node``, carried linearly from where they arose.
+
+        ``rows`` selects batch elements (default all).
 
         Returns
         -------
@@ -206,12 +208,12 @@ class Propagation:
             part times the responses of stages k+1 .. node.  The rows sum to
             ``nodes[node]`` exactly.
         """
-        rows = [self.nodes[0]] + [self.added[i] for i in range(node)]
+        sources = [self.nodes[0, rows]] + [self.added[i, rows] for i in range(node)]
         out = []
-        for src, row in enumerate(rows):
-            carried = row
+        for src, part in enumerate(sources):
+            carried = part
             for j in range(src, node):
-                carried = carried * self.response[j]
+                carried = carried * self.response[j, rows]
             out.append(carried)
         return np.stack(out)
 

@@ -20,14 +20,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .node_table import node_levels
 from .spectrum import label, labels, orders, tone_index
 from .units import ratio_db, vpeak_to_dbm
 
 # Rows more than this far below the strongest carrier are numerical noise of the
 # engine (float64 FFTs reach about -300 dBc), not products.
 REPORT_FLOOR_DBC = -200.0
-# Frequencies closer than this (Hz) are one physical frequency.
-SAME_FREQ_HZ = 1e-3
 
 PRODUCT_COLUMNS = [
     "freq_hz",
@@ -101,85 +100,53 @@ class Result:
 
         return pd.DataFrame(self.product_rows(stage, combine, batch), columns=PRODUCT_COLUMNS)
 
+    def levels(self, stage: str | None = None, combine: str | None = None, rows=slice(None)):
+        """Merged, combined product levels of a node for the batch ``rows`` (arrays).
+
+        See :class:`spurplan.node_table.NodeLevels`.
+        """
+        return node_levels(self, self.node_index(stage), combine or self.lineup.analysis.combine, rows)
+
     def product_rows(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
         """The rows of :meth:`products` as a dict of columns (lists), without pandas."""
-        combine = combine or self.lineup.analysis.combine
         node = self.node_index(stage)
+        lv = self.levels(stage, combine, rows=slice(batch, batch + 1))
         prop = self.propagation
-        f = self.freqs_hz[batch]
-        # Physical phasors at +|f|: a product at negative m.f is the conjugate.
-        contrib = prop.contributions(node)[:, batch, :]
-        contrib = np.where(f < 0, np.conj(contrib), contrib)
-        freq = np.abs(f)
-        keys = np.round(freq / SAME_FREQ_HZ).astype(np.int64)
-        uniq, group = np.unique(keys, return_inverse=True)
-        n_groups = len(uniq)
-        n_src = contrib.shape[0]
-
-        coherent = np.zeros((n_src, n_groups), dtype=complex)
-        np.add.at(coherent, (slice(None), group), contrib)
-        modelled = np.abs(coherent.sum(axis=0))
-        if combine == "phase":
-            level = modelled
-        elif combine == "worst":
-            level = np.zeros(n_groups)
-            np.add.at(level, group, np.abs(contrib).sum(axis=0))
-        else:
-            power = np.zeros(n_groups)
-            np.add.at(power, group, (np.abs(contrib) ** 2).sum(axis=0))
-            level = np.sqrt(power)
-
-        tones = tone_index(self.mix)
-        is_carrier = np.zeros(n_groups, dtype=bool)
-        np.logical_or.at(is_carrier, group, tones >= 0)
-        level = np.where(is_carrier, modelled, level)
-        # Largest contributor: the input only counts for carriers.
-        strength = np.abs(coherent)
-        strength[0] = np.where(is_carrier, strength[0], -1.0)
-        top_source = np.argmax(strength, axis=0)
-
-        level_dbm = vpeak_to_dbm(level, self.lineup.r_ohm)
-        # dBc against the strongest carrier row (what an analyser shows at the carrier,
-        # including any product that lands on it).
-        ref = float(np.max(level_dbm[is_carrier]))
-        keep = np.nonzero((level > 0) & (level_dbm - ref > REPORT_FLOOR_DBC))[0]
-
-        order_of = orders(self.mix)
-        # Representative of each group: its lowest-order member.
-        by_group = np.lexsort((np.arange(len(group)), order_of, group))
-        rep = by_group[np.unique(group[by_group], return_index=True)[1]]
+        ref = float(lv.carrier_ref_dbm[0])
+        level_dbm = lv.level_dbm[0]
+        keep = np.nonzero(lv.valid[0] & (level_dbm - ref > REPORT_FLOOR_DBC))[0]
+        reps, signs = lv.rep[0, keep], lv.sign[0, keep]
         plus, minus = labels(self.mix, self.lineup.tone_names)
-        name_of = [plus[i] if f[i] >= 0 else minus[i] for i in range(len(f))]
-        signed = np.where((f >= 0)[:, None], self.mix, -self.mix)
-        sizes = np.bincount(group, minlength=n_groups)
-        beyond = prop.beyond[:node, batch, :].any(axis=0)
-        beyond_group = np.zeros(n_groups, dtype=bool)
-        np.logical_or.at(beyond_group, group, beyond)
+        order_of = orders(self.mix)
+        group = lv.group[0]
         sources = self.source_names()
         extrap = bool(prop.extrapolated[:node, batch].any())
         not_conv = bool((~prop.converged[:node, batch]).any())
+        f = self.freqs_hz[batch]
+
+        def name(i: int) -> str:
+            return plus[i] if f[i] >= 0 else minus[i]
+
+        def also(g: int) -> str:
+            members = np.nonzero(group == g)[0]
+            members = members[np.lexsort((members, order_of[members]))]
+            return " ".join(name(i) for i in members[1:])
+
         n = len(keep)
-        reps = rep[keep]
         return {
-            "freq_hz": freq[reps].tolist(),
+            "freq_hz": lv.freq_hz[0, keep].tolist(),
             "level_dbm": level_dbm[keep].tolist(),
             "dbc": (level_dbm[keep] - ref).tolist(),
             "order": order_of[reps].tolist(),
-            "mix": signed[reps].tolist(),
-            "label": [name_of[i] for i in reps],
-            "also": [self._also(g, group, by_group, name_of) if sizes[g] > 1 else "" for g in keep],
-            "kind": ["carrier" if c else "product" for c in is_carrier[keep]],
-            "stage": [sources[i] for i in top_source[keep]],
+            "mix": (self.mix[reps] * signs[:, None]).tolist(),
+            "label": [name(i) for i in reps],
+            "also": [also(g) if lv.members[0, g] > 1 else "" for g in keep],
+            "kind": ["carrier" if c else "product" for c in lv.is_carrier[0, keep]],
+            "stage": [sources[i] for i in lv.top_source[0, keep]],
             "model_extrapolated": [extrap] * n,
             "not_converged": [not_conv] * n,
-            "beyond_data": beyond_group[keep].tolist(),
+            "beyond_data": lv.beyond[0, keep].tolist(),
         }
-
-    @staticmethod
-    def _also(g: int, group: np.ndarray, by_group: np.ndarray, name_of: list[str]) -> str:
-        """Labels of the other products merged into group ``g`` (lowest order first)."""
-        members = by_group[group[by_group] == g]
-        return " ".join(name_of[i] for i in members[1:])
 
     @property
     def extrapolated_stages(self) -> list[str]:
