@@ -102,6 +102,125 @@ class CheckResult:
         return pd.DataFrame(self.rows, columns=CHECK_COLUMNS)
 
 
+DOMAINS = ("spurious", "out-of-band", "no rule")
+
+
+@dataclass(frozen=True)
+class MaskEvaluation:
+    """The mask applied to every product slot of a batch (arrays ``(B, G)``).
+
+    Attributes
+    ----------
+    margin_db, limit_dbm, level_in_rbw_dbm, bandwidth_hz : ndarray (B, G)
+        NaN where no rule applies.
+    rule : ndarray of int (B, G)
+        Index into ``rules`` of the rule that holds, -1 where none does.
+    domain : ndarray of int (B, G)
+        Index into :data:`DOMAINS`; carriers and unused slots are -1.
+    rules : list of (Rule, Examined or None)
+    carrier_dbm : ndarray (B,)
+        Total mean carrier power at the output.
+    """
+
+    margin_db: np.ndarray
+    limit_dbm: np.ndarray
+    level_in_rbw_dbm: np.ndarray
+    bandwidth_hz: np.ndarray
+    rule: np.ndarray
+    domain: np.ndarray
+    rules: list
+    carrier_dbm: np.ndarray
+
+    @property
+    def worst_margin_db(self) -> np.ndarray:
+        """Least margin per batch element (inf where nothing is checked)."""
+        return np.where(self.rule >= 0, self.margin_db, np.inf).min(axis=1)
+
+    @property
+    def worst_slot(self) -> np.ndarray:
+        return np.argmin(np.where(self.rule >= 0, self.margin_db, np.inf), axis=1)
+
+    @property
+    def passed(self) -> np.ndarray:
+        return self.worst_margin_db >= 0
+
+
+def require_mask(lineup):
+    """The lineup's mask, or a one-line error when it has none."""
+    mask = lineup.mask
+    if mask is None or not (mask.rules or mask.bands):
+        raise LineupError(
+            "no emission limits: expected a [mask] table with use = [...] or [[mask.rule]]",
+            file=None if lineup.source is None else str(lineup.source),
+        )
+    return mask
+
+
+def evaluate(lineup, result, levels) -> MaskEvaluation:
+    """Apply the lineup's mask to node levels of a run (every batch element at once).
+
+    Parameters
+    ----------
+    lineup : Lineup
+    result : Result
+        The run (its tone frequencies per batch element follow a tuning sweep).
+    levels : NodeLevels
+        Output-node levels of that run (:meth:`Result.levels`).
+    """
+    mask = require_mask(lineup)
+    freq, level = levels.freq_hz, levels.level_dbm
+    product = levels.valid & ~levels.is_carrier
+    p_dbm = levels.carrier_total_dbm
+    tones = result.tone_freqs_hz
+    strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
+    f_carrier = tones[:, strongest]
+    bw_k = np.array([c.bandwidth_hz or 0.0 for c in lineup.carriers])
+    bandwidth = np.abs(result.mix[levels.rep]).astype(float) @ bw_k
+
+    domain = np.where(product, 0, -1)
+    for k, width in enumerate(bw_k):
+        if width:
+            near = np.abs(freq - tones[:, k : k + 1]) < mask.spurious_boundary * width
+            domain = np.where(product & near, 1, domain)
+    spurious = domain == 0
+
+    rules = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
+    gain = mask.antenna_gain_dbi(freq)
+    best_margin = np.full(freq.shape, np.inf)
+    best_rule = np.full(freq.shape, -1)
+    best_limit = np.full(freq.shape, np.nan)
+    best_level = np.full(freq.shape, np.nan)
+    for j, (rule, ex) in enumerate(rules):
+        holds = np.asarray(rule.holds_for(f_carrier, p_dbm))[:, None]
+        covers = holds & spurious & _covers(rule, ex, freq, f_carrier[:, None])
+        if not covers.any():
+            continue
+        in_rbw = level
+        if rule.rbw_hz is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                in_rbw = level - np.where(
+                    bandwidth > rule.rbw_hz, 10 * np.log10(bandwidth / rule.rbw_hz), 0.0
+                )
+        limit = rule.limit_dbm(freq, p_dbm[:, None], gain)
+        margin = limit - in_rbw
+        better = covers & (margin < best_margin)
+        best_margin = np.where(better, margin, best_margin)
+        best_rule = np.where(better, j, best_rule)
+        best_limit = np.where(better, limit, best_limit)
+        best_level = np.where(better, in_rbw, best_level)
+    domain = np.where(spurious & (best_rule < 0), 2, domain)
+    return MaskEvaluation(
+        margin_db=np.where(best_rule >= 0, best_margin, np.nan),
+        limit_dbm=best_limit,
+        level_in_rbw_dbm=best_level,
+        bandwidth_hz=bandwidth,
+        rule=best_rule,
+        domain=domain,
+        rules=rules,
+        carrier_dbm=p_dbm,
+    )
+
+
 def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> CheckResult:
     """Check the lineup's output products against its ``[mask]``.
 
@@ -113,102 +232,88 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         A run to reuse (else the lineup is run).
     combine : str, optional
         Override of the analysis combining mode.
+    batch : int
+        Batch element of ``result`` to report.
     """
-    mask = lineup.mask
-    if mask is None or not (mask.rules or mask.bands):
-        raise LineupError(
-            "no emission limits: expected a [mask] table with use = [...] or [[mask.rule]]",
-            file=None if lineup.source is None else str(lineup.source),
-        )
+    mask = require_mask(lineup)
     result = result if result is not None else lineup.run()
     rows = result.product_rows(None, combine, batch)
-    carrier_idx = [i for i, k in enumerate(rows["kind"]) if k == "carrier"]
-    levels = np.array(rows["level_dbm"])
-    total_mw = np.sum(10 ** (levels[carrier_idx] / 10))
-    p_dbm = float(10 * np.log10(total_mw))
-    strongest = max(lineup.carriers, key=lambda c: c.power_dbm)
-    f_carrier = strongest.freq_hz
-
-    prod = [i for i, k in enumerate(rows["kind"]) if k == "product"]
-    freq = np.array([rows["freq_hz"][i] for i in prod], dtype=float)
-    level = levels[prod] if prod else np.zeros(0)
-    mix = np.array([rows["mix"][i] for i in prod], dtype=float).reshape(len(prod), len(lineup.carriers))
-    bw_k = np.array([c.bandwidth_hz or 0.0 for c in lineup.carriers])
-    bandwidth = np.abs(mix) @ bw_k
-
-    domain = np.full(len(prod), "spurious", dtype=object)
-    for c in lineup.carriers:
-        if c.bandwidth_hz:
-            near = np.abs(freq - c.freq_hz) < mask.spurious_boundary * c.bandwidth_hz
-            domain[near] = "out-of-band"
-
-    candidates = _candidates(mask, f_carrier, p_dbm)
-    gain = mask.antenna_gain_dbi(freq)
-    best_margin = np.full(len(prod), np.inf)
-    best_rule = np.full(len(prod), -1)
-    best_limit = np.full(len(prod), np.nan)
-    best_level = np.full(len(prod), np.nan)
-    for j, (rule, ex) in enumerate(candidates):
-        covers = _covers(rule, ex, freq, f_carrier) & (domain == "spurious")
-        if not covers.any():
-            continue
-        in_rbw = level.copy()
-        if rule.rbw_hz is not None:
-            wide = bandwidth > rule.rbw_hz
-            in_rbw[wide] -= 10 * np.log10(bandwidth[wide] / rule.rbw_hz)
-        limit = rule.limit_dbm(freq, p_dbm, gain)
-        margin = limit - in_rbw
-        better = covers & (margin < best_margin)
-        best_margin[better] = margin[better]
-        best_rule[better] = j
-        best_limit[better] = limit[better]
-        best_level[better] = in_rbw[better]
-
-    bands_of = [", ".join(b.name for b in mask.bands if b.start_hz <= f <= b.stop_hz) for f in freq]
-    checked = best_rule >= 0
+    sel = slice(batch, batch + 1)
+    levels = result.levels(None, combine, rows=sel)
+    ev = evaluate(lineup, _Rows(result, sel), levels)
+    # product_rows lists the slots above the report floor in frequency order; find them.
+    slot_of = {round(f / 1e-3): g for g, f in enumerate(levels.freq_hz[0]) if levels.valid[0, g]}
     out = {c: [] for c in CHECK_COLUMNS}
-    order = sorted(range(len(prod)), key=lambda i: (not checked[i], best_margin[i], freq[i]))
-    for i in order:
-        src = prod[i]
-        rule = candidates[best_rule[i]][0] if checked[i] else None
-        out["freq_hz"].append(float(freq[i]))
-        out["level_dbm"].append(float(level[i]))
-        out["level_in_rbw_dbm"].append(float(best_level[i]) if checked[i] else None)
-        out["bandwidth_hz"].append(float(bandwidth[i]))
-        out["limit_dbm"].append(float(best_limit[i]) if checked[i] else None)
-        out["margin_db"].append(float(best_margin[i]) if checked[i] else None)
-        out["pass"].append(bool(best_margin[i] >= 0) if checked[i] else None)
+    picks = []
+    for i, kind in enumerate(rows["kind"]):
+        if kind == "product":
+            g = slot_of[round(rows["freq_hz"][i] / 1e-3)]
+            picks.append((i, g))
+    picks.sort(
+        key=lambda t: (
+            ev.rule[0, t[1]] < 0,
+            np.nan_to_num(ev.margin_db[0, t[1]], nan=np.inf),
+            rows["freq_hz"][t[0]],
+        )
+    )
+    for i, g in picks:
+        j = int(ev.rule[0, g])
+        rule = ev.rules[j][0] if j >= 0 else None
+        f = rows["freq_hz"][i]
+        out["freq_hz"].append(f)
+        out["level_dbm"].append(rows["level_dbm"][i])
+        out["level_in_rbw_dbm"].append(float(ev.level_in_rbw_dbm[0, g]) if rule else None)
+        out["bandwidth_hz"].append(float(ev.bandwidth_hz[0, g]))
+        out["limit_dbm"].append(float(ev.limit_dbm[0, g]) if rule else None)
+        out["margin_db"].append(float(ev.margin_db[0, g]) if rule else None)
+        out["pass"].append(bool(ev.margin_db[0, g] >= 0) if rule else None)
         out["rule"].append(f"{rule.origin}: {rule.name}" if rule else None)
         out["limit_form"].append(rule.describe if rule else None)
         out["rbw_hz"].append(rule.rbw_hz if rule else None)
         out["rule_source"].append(f"{rule.source} [{rule.status}]" if rule else None)
-        out["band"].append(bands_of[i] or None)
-        out["domain"].append(domain[i] if domain[i] != "spurious" or checked[i] else "no rule")
+        out["band"].append(bands_at(mask, f))
+        out["domain"].append(DOMAINS[int(ev.domain[0, g])])
         for key in ("stage", "order", "mix", "label", "dbc", "beyond_data", "model_extrapolated"):
-            out[key].append(rows[key][src])
+            out[key].append(rows[key][i])
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
-    passed = all(m >= 0 for m in margins)
+    f_carrier = max(lineup.carriers, key=lambda c: c.power_dbm).freq_hz
     return CheckResult(
         result=result,
         rows=out,
-        passed=passed,
+        passed=all(m >= 0 for m in margins),
         worst=worst,
-        carrier_dbm=p_dbm,
+        carrier_dbm=float(ev.carrier_dbm[0]),
         notes=tuple(_coverage_notes(lineup, mask, f_carrier)),
     )
 
 
-def _candidates(mask, f_carrier: float, p_dbm: float):
-    """(rule, examined range or None) pairs that hold for this carrier."""
-    pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
-    return [(r, ex) for r, ex in pairs if r.holds_for(f_carrier, p_dbm)]
+@dataclass(frozen=True)
+class _Rows:
+    """A view of a run restricted to some batch rows (what :func:`evaluate` reads)."""
+
+    result: object
+    rows: slice
+
+    @property
+    def tone_freqs_hz(self):
+        return self.result.tone_freqs_hz[self.rows]
+
+    @property
+    def mix(self):
+        return self.result.mix
 
 
-def _covers(rule, examined, freq: np.ndarray, f_carrier: float) -> np.ndarray:
+def bands_at(mask, freq_hz: float) -> str | None:
+    """Names of the protected bands that contain ``freq_hz``, or None."""
+    names = [b.name for b in mask.bands if b.start_hz <= freq_hz <= b.stop_hz]
+    return ", ".join(names) or None
+
+
+def _covers(rule, examined, freq: np.ndarray, f_carrier) -> np.ndarray:
     lo, hi = rule.start_hz, rule.stop_hz
     if examined is not None:
-        lo, hi = max(lo, examined.start_hz), min(hi, examined.upper_hz(f_carrier))
+        lo, hi = max(lo, examined.start_hz), np.minimum(hi, examined.upper_hz(f_carrier))
     return (freq >= lo) & (freq <= hi)
 
 
@@ -219,7 +324,10 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     freq_hz = np.asarray(freq_hz, dtype=float)
     gain = lineup.mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
-    for rule, ex in _candidates(lineup.mask, f_carrier, outcome.carrier_dbm):
+    pairs = [(r, ex) for r, ex in lineup.mask.rules] + [(r, None) for b in lineup.mask.bands for r in b.rules]
+    for rule, ex in pairs:
+        if not rule.holds_for(f_carrier, outcome.carrier_dbm):
+            continue
         covers = _covers(rule, ex, freq_hz, f_carrier)
         line = np.where(covers, np.minimum(line, rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)), line)
     return np.where(np.isinf(line), np.nan, line)

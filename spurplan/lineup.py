@@ -129,13 +129,16 @@ class Lineup:
             x[:, col] = amp * np.exp(1j * c.phase_rad)
         return x
 
-    def run(self, drive_offset_db=0.0):
+    def run(self, drive_offset_db=0.0, tone_freqs_hz=None):
         """Compute every product at every stage.
 
         Parameters
         ----------
         drive_offset_db : float or ndarray (B,)
             Added to every carrier's input power (dB); an array makes a batch.
+        tone_freqs_hz : ndarray (B, K) or (K,), optional
+            Carrier frequencies per batch element (a tuning sweep); default the
+            lineup's own.
 
         Returns
         -------
@@ -144,16 +147,21 @@ class Lineup:
         from .result import Result
 
         mix = mixing_vectors(len(self.carriers), self.analysis.max_order)
-        tones = np.array([[c.freq_hz for c in self.carriers]])
-        x_in = self.input_phasors(mix, drive_offset_db)
-        freqs = np.broadcast_to(product_freqs_hz(mix, tones), x_in.shape)
+        if tone_freqs_hz is None:
+            tone_freqs_hz = [c.freq_hz for c in self.carriers]
+        tones = np.atleast_2d(np.asarray(tone_freqs_hz, dtype=float))
+        offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
+        batch = max(len(tones), len(offset))
+        tones = np.broadcast_to(tones, (batch, len(self.carriers)))
+        x_in = self.input_phasors(mix, np.broadcast_to(offset, (batch,)))
+        freqs = product_freqs_hz(mix, tones)
         stages = self.stages
         if self.analysis.linear_sections == "cascade":
             stages = with_sections(stages, self.r_ohm)
         prop = engine.propagate(stages, x_in, mix, freqs)
         if self.analysis.beyond_data == "error":
             self._raise_beyond_data(prop, mix, freqs)
-        return Result(lineup=self, mix=mix, freqs_hz=freqs, propagation=prop)
+        return Result(lineup=self, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)
 
     def _raise_beyond_data(self, prop, mix: np.ndarray, freqs: np.ndarray) -> None:
         """The default policy: a product outside a stage's data range is an error."""

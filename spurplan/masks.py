@@ -92,42 +92,46 @@ class Rule:
     status: str = "user"
     origin: str = "lineup"
 
-    def holds_for(self, carrier_hz: float, carrier_dbm: float) -> bool:
-        """Whether the rule's carrier conditions hold."""
+    def holds_for(self, carrier_hz, carrier_dbm):
+        """Whether the rule's carrier conditions hold (arrays broadcast: one per batch element)."""
+        ok = np.ones(np.broadcast_shapes(np.shape(carrier_hz), np.shape(carrier_dbm)), dtype=bool)
         if self.when_carrier_hz is not None:
             lo, hi = self.when_carrier_hz
-            if not lo <= carrier_hz <= hi:
-                return False
+            ok &= (lo <= np.asarray(carrier_hz)) & (np.asarray(carrier_hz) <= hi)
         if self.when_power_dbm is not None:
             lo, hi = self.when_power_dbm
-            if not lo < carrier_dbm <= hi:
-                return False
-        return True
+            ok &= (lo < np.asarray(carrier_dbm)) & (np.asarray(carrier_dbm) <= hi)
+        return ok if ok.shape else bool(ok)
 
-    def limit_dbm(self, freq_hz: np.ndarray, carrier_dbm: float, antenna_gain_dbi: np.ndarray) -> np.ndarray:
-        """Conducted limit (dBm in ``rbw_hz``) at ``freq_hz`` for mean carrier power ``carrier_dbm``."""
+    def limit_dbm(self, freq_hz, carrier_dbm, antenna_gain_dbi) -> np.ndarray:
+        """Conducted limit (dBm in ``rbw_hz``) at ``freq_hz`` for mean carrier power ``carrier_dbm``.
+
+        All arguments broadcast (for example ``(B, G)`` frequencies with ``(B, 1)`` powers).
+        """
         f = np.asarray(freq_hz, dtype=float)
+        p = np.asarray(carrier_dbm, dtype=float)
+        shape = np.broadcast_shapes(f.shape, p.shape, np.shape(antenna_gain_dbi))
         if self.kind == "absolute":
-            return np.full(f.shape, self.value)
+            return np.full(shape, self.value)
         if self.kind == "relative":
-            lim = np.full(f.shape, carrier_dbm + self.value)
+            lim = p + self.value
             if self.ceiling_dbm is not None:
                 lim = np.minimum(lim, self.ceiling_dbm)
             if self.floor_dbm is not None:
                 lim = np.maximum(lim, self.floor_dbm)
-            return lim
+            return np.broadcast_to(lim, shape).copy()
         if self.kind == "attenuation":
-            attenuation = self.value + (carrier_dbm - 30.0)
+            attenuation = self.value + (p - 30.0)
             if self.cap_db is not None:
-                attenuation = min(attenuation, self.cap_db)
-            return np.full(f.shape, carrier_dbm - attenuation)
+                attenuation = np.minimum(attenuation, self.cap_db)
+            return np.broadcast_to(p - attenuation, shape).copy()
         e_dbuv = (
             self.value - 20.0 * np.log10(np.maximum(f, 1.0) / 1e3)
             if self.per_khz
             else np.full(f.shape, self.value)
         )
         eirp = field_to_eirp_dbm(e_dbuv, self.distance_m)
-        return eirp - antenna_gain_dbi
+        return np.broadcast_to(eirp - antenna_gain_dbi, shape).copy()
 
     @property
     def describe(self) -> str:
@@ -185,11 +189,12 @@ class Examined:
     stop_hz: float = math.inf
     harmonic: int | None = None
 
-    def upper_hz(self, carrier_hz: float) -> float:
-        top = self.stop_hz
-        if self.harmonic is not None:
-            top = min(top, self.harmonic * carrier_hz)
-        return top
+    def upper_hz(self, carrier_hz):
+        """Upper end (Hz) for a carrier at ``carrier_hz`` (scalar or array)."""
+        if self.harmonic is None:
+            return np.full(np.shape(carrier_hz), self.stop_hz) if np.ndim(carrier_hz) else self.stop_hz
+        top = np.minimum(self.stop_hz, self.harmonic * np.asarray(carrier_hz, dtype=float))
+        return top if np.ndim(top) else float(top)
 
 
 @dataclass(frozen=True)

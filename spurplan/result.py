@@ -55,12 +55,15 @@ class Result:
     freqs_hz : ndarray, (B, P)
         Signed product frequencies.
     propagation : spurplan.engine.Propagation
+    tone_freqs_hz : ndarray, (B, K)
+        Carrier frequencies of each batch element.
     """
 
     lineup: object
     mix: np.ndarray
     freqs_hz: np.ndarray
     propagation: object
+    tone_freqs_hz: np.ndarray
 
     def node_index(self, stage: str | None) -> int:
         """Node number of a stage output (``None`` is the lineup output)."""
