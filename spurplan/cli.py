@@ -296,9 +296,11 @@ def _size(text: str) -> tuple[int, int]:
     try:
         w, h = (int(v) for v in text.lower().split("x"))
     except ValueError:
-        raise click.BadParameter(f"{text!r}: expected WIDTHxHEIGHT in pixels, e.g. 1200x700") from None
+        raise click.BadParameter(
+            f"{text!r}: expected WIDTHxHEIGHT in pixels, e.g. 1200x700", param_hint="--plot-size"
+        ) from None
     if not (200 <= w <= 8000 and 200 <= h <= 8000):
-        raise click.BadParameter(f"{text!r}: expected 200 to 8000 pixels each way")
+        raise click.BadParameter(f"{text!r}: expected 200 to 8000 pixels each way", param_hint="--plot-size")
     return w, h
 
 
@@ -409,6 +411,263 @@ def bands(name, fmt):
         click.echo(title)
         click.echo(text_table(rows, table), nl=False)
         click.echo(PLANNING_NOTICE)
+
+
+DRIVE_TABLE = [
+    ("input_dbm", "input (dBm)", ".2f"),
+    ("output_dbm", "output (dBm)", ".2f"),
+    ("worst_margin_db", "worst margin (dB)", ".2f"),
+    ("worst_label", "worst product", None),
+    ("verdict", "", None),
+]
+
+TUNE_TABLE = [
+    ("carrier_mhz", "carrier (MHz)", ".6f"),
+    ("freq_mhz", "product (MHz)", ".6f"),
+    ("label", "product", None),
+    ("margin_db", "margin (dB)", ".2f"),
+    ("verdict", "", None),
+    ("band", "protected band", None),
+    ("rule", "rule", None),
+]
+
+
+def _progress(total: int, label: str):
+    """A progress bar on a terminal (stderr), nothing when piped."""
+    import contextlib
+
+    if total < 4 * 2000 or not sys.stderr.isatty():
+        return contextlib.nullcontext(None)
+    return click.progressbar(length=total, label=label, file=sys.stderr)
+
+
+def _parse(kind, text, option):
+    from .errors import UnitError
+    from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
+
+    parse = {"power": parse_power_dbm, "freq": parse_freq_hz, "db": parse_gain_db}[kind]
+    try:
+        return parse(text)
+    except UnitError as exc:
+        raise click.BadParameter(str(exc), param_hint=option) from None
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--start", required=True, help="First drive, e.g. '-20 dBm' (input of the strongest carrier).")
+@click.option("--stop", required=True, help="Last drive, e.g. '+10 dBm'.")
+@click.option("--step", required=True, help="Drive step, e.g. '0.5 dB'.")
+@click.option("--target-output", is_flag=True, help="Start/stop are the carrier's output power instead.")
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@click.option(
+    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw products and limits against drive."
+)
+@click.option(
+    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
+)
+def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
+    """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
+    from .formatting import text_table, to_csv, to_json
+    from .provenance import provenance
+    from .sweep import drive_sweep, sweep_points
+
+    lo, hi = _parse("power", start, "--start"), _parse("power", stop, "--stop")
+    dstep = _parse("db", step, "--step")
+    size = _size(plot_size)
+    lu = _load(lineup)
+    n = len(sweep_points(lo, hi, dstep, "drive", "dBm"))
+    with _progress(n, "drive sweep") as bar:
+        sw = drive_sweep(
+            lu,
+            lo,
+            hi,
+            dstep,
+            target_output=target_output,
+            combine=combine,
+            progress=None if bar is None else bar.update,
+        )
+    if plot_file:
+        from .plots import save_drive_plot
+
+        save_drive_plot(sw, plot_file, size)
+    rows = sw.rows()
+    summary = {**sw.summary(), **provenance(lu)}
+    if fmt == "json":
+        click.echo(to_json(summary, "points", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        shown = dict(rows)
+        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
+        click.echo(
+            f"{lu.name}: drive sweep ({'output' if target_output else 'input'} of the strongest carrier)"
+        )
+        click.echo(text_table(shown, DRIVE_TABLE), nl=False)
+        if sw.status == "limited":
+            lim = sw.limiting
+            click.echo(
+                f"HIGHEST COMPLIANT DRIVE: input {sw.max_compliant_input_dbm:+.2f} dBm, output "
+                f"{sw.max_compliant_output_dbm:+.2f} dBm; above it {lim['label']} at {lim['freq_hz'] / 1e6:.6f} MHz "
+                f"fails {lim['rule']}" + (f" (in {lim['band']})" if lim["band"] else "")
+            )
+        elif sw.status == "fails throughout":
+            click.echo("HIGHEST COMPLIANT DRIVE: none in the range (the mask is violated at every drive)")
+        else:
+            click.echo(
+                f"HIGHEST COMPLIANT DRIVE: the mask is met over the whole range (up to {sw.max_compliant_input_dbm:+.2f} dBm in)"
+            )
+        click.echo(PLANNING_NOTICE)
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--start", help="First carrier frequency, e.g. '460 MHz'.")
+@click.option("--stop", help="Last carrier frequency, e.g. '470 MHz'.")
+@click.option("--step", help="Channel step, e.g. '12.5 kHz'.")
+@click.option(
+    "--channels",
+    "channel_file",
+    type=click.Path(dir_okay=False),
+    help="A file of carrier frequencies, one per line with unit.",
+)
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@click.option(
+    "--plot",
+    "plot_file",
+    type=click.Path(dir_okay=False),
+    help="Draw product frequency against carrier frequency.",
+)
+@click.option(
+    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
+)
+def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
+    """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
+    from .formatting import text_table, to_csv, to_json
+    from .provenance import provenance
+    from .sweep import read_channels, sweep_points, tune_sweep
+
+    size = _size(plot_size)
+    if channel_file:
+        if start or stop or step:
+            raise click.UsageError("give either --channels FILE or --start/--stop/--step")
+        freqs = read_channels(channel_file)
+    else:
+        if not (start and stop and step):
+            raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
+        lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
+        freqs = sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
+    lu = _load(lineup)
+    with _progress(len(freqs), "tuning sweep") as bar:
+        sw = tune_sweep(lu, freqs, combine=combine, progress=None if bar is None else bar.update)
+    if plot_file:
+        from .plots import save_tune_plot
+
+        save_tune_plot(sw, plot_file, size)
+    summary = {**sw.summary(), **provenance(lu)}
+    rows = sw.rows
+    if fmt == "json":
+        click.echo(to_json(summary, "rows", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        shown = dict(rows)
+        shown["carrier_mhz"] = [f / 1e6 for f in rows["carrier_hz"]]
+        shown["freq_mhz"] = [f / 1e6 for f in rows["freq_hz"]]
+        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
+        click.echo(f"{lu.name}: {len(freqs)} channels, products that fail or land in a protected band")
+        click.echo(text_table(shown, TUNE_TABLE), nl=False)
+        if not sw.failing:
+            click.echo("TUNING RANGE: every channel meets the mask")
+        for r in sw.failing:
+            click.echo(
+                f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
+                + (f" (in {r['band']})" if r["band"] else "")
+                + f", worst margin {r['worst_margin_db']:+.2f} dB"
+            )
+        click.echo(PLANNING_NOTICE)
+    sys.exit(1 if sw.failing else 0)
+
+
+NEEDED_TABLE = [
+    ("freq_mhz", "freq (MHz)", ".6f"),
+    ("label", "product", None),
+    ("margin_db", "margin now (dB)", ".2f"),
+    ("rejection_needed_db", "more rejection needed (dB)", ".2f"),
+    ("rule", "rule", None),
+    ("band", "protected band", None),
+]
+
+
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option(
+    "--at",
+    "at_stage",
+    default=None,
+    help="Insert the filter after this stage (default: after the last amplifier).",
+)
+@click.option(
+    "--margin", "margin", default="3 dB", show_default=True, help="Margin target every product must meet."
+)
+@click.option(
+    "--write",
+    "write_file",
+    type=click.Path(dir_okay=False),
+    help="Write the lineup with the filter inserted to this file.",
+)
+@click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
+def remedy(lineup, at_stage, margin, write_file, fmt):
+    """Find the lowest-order synthesized filter that makes LINEUP pass, and re-check with it.
+
+    Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
+    filter up to the highest order is enough, 2 bad input.
+    """
+    from .formatting import text_table, to_json
+    from .remedy import remedy as find_remedy
+    from .remedy import write_fixed
+
+    target = _parse("db", margin, "--margin")
+    lu = _load(lineup)
+    found = find_remedy(lu, at=at_stage, margin_db=target)
+    if write_file and found.found:
+        write_fixed(lu, found, write_file)
+    if fmt == "json":
+        click.echo(to_json(found.summary(), "needed", found.needed), nl=False)
+        sys.exit(0 if found.found or not found.needed["freq_hz"] else 1)
+    click.echo(f"{lu.name}: remedy for a {target:g} dB margin")
+    if not found.needed["freq_hz"]:
+        click.echo(f"Nothing to do: {found.reason}.")
+        click.echo(PLANNING_NOTICE)
+        return
+    shown = dict(found.needed)
+    shown["freq_mhz"] = [f / 1e6 for f in shown["freq_hz"]]
+    click.echo(text_table(shown, NEEDED_TABLE), nl=False)
+    if not found.found:
+        click.echo(f"NO FILTER FOUND: {found.reason}.")
+        click.echo(PLANNING_NOTICE)
+        sys.exit(1)
+    out = found.outcome
+    click.echo("")
+    where = f"after stage '{found.after}'" if found.after else "at the lineup input"
+    click.echo(f"Insert {where}:")
+    click.echo(found.snippet)
+    cols = found.filter.elements()
+    cols["l_nh"] = [None if v is None else v * 1e9 for v in cols["l_h"]]
+    cols["c_pf"] = [None if v is None else v * 1e12 for v in cols["c_f"]]
+    click.echo(text_table(cols, ELEMENT_TABLE), nl=False)
+    word = "PASS" if out.passed else "FAIL"
+    worst = out.rows
+    i = out.worst
+    click.echo(
+        f"RE-CHECKED WITH THE FILTER: {word}, worst margin {out.worst_margin_db:+.2f} dB ({worst['label'][i]} at "
+        f"{worst['freq_hz'][i] / 1e6:.6f} MHz); carrier at the output {out.carrier_dbm:+.2f} dBm "
+        f"(was {found.before.carrier_dbm:+.2f} dBm)"
+    )
+    if write_file:
+        click.echo(f"wrote {write_file}")
+    click.echo(PLANNING_NOTICE)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -60,13 +60,13 @@ def shipped_names() -> list[str]:
     return sorted(p.stem for p in data_dir("bands").glob("*.toml"))
 
 
-def shipped_path(name: str, where: Fields | None = None) -> Path:
+def shipped_path(name: str, where: Fields | None = None, key: str = "use") -> Path:
     names = shipped_names()
     if name not in names:
         msg = f"{name!r}: no such shipped rule set or band list{_did_you_mean(name, names)}; expected one of {', '.join(names)}"
         if where is None:
             raise LineupError(msg)
-        raise where.error("use", msg)
+        raise where.error(key, msg)
     return data_dir("bands") / f"{name}.toml"
 
 
@@ -107,7 +107,9 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
     )
     delegated = ()
     if limits_from:
-        other = (resolve or _shipped)(limits_from)
+        other = (
+            resolve(limits_from) if resolve else load_ruleset(shipped_path(limits_from, head, "limits_from"))
+        )
         delegated = other.rules
     bands = tuple(
         read_band(Fields(t, file, f"band {i}"), origin=name, default_source=source, delegated=delegated)
@@ -116,10 +118,6 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
     return RuleSet(
         name=name, title=title, source=source, rules=rules, bands=bands, examined=examined, notes=notes
     )
-
-
-def _shipped(name: str) -> RuleSet:
-    return load_ruleset(shipped_path(name))
 
 
 def _tables(doc, key, file):
@@ -153,6 +151,8 @@ def parse_limit(text) -> tuple[str, float, float | None, bool]:
     m = _FIELD.match(text)
     if m:
         k, unit, distance = float(m["k"]), m["unit"].lower(), float(m["d"])
+        if not (math.isfinite(k) and math.isfinite(distance)) or abs(k) > 1e9:
+            raise UnitError(text, f"{LIMIT_FORMS} (finite, plausible numbers)")
         if distance <= 0:
             raise UnitError(text, f"{LIMIT_FORMS} (a distance > 0 m)")
         per = m["per"] is not None
@@ -165,10 +165,18 @@ def parse_limit(text) -> tuple[str, float, float | None, bool]:
             raise UnitError(text, f"{LIMIT_FORMS} (a field strength > 0)")
         return "field", 20.0 * math.log10(uv), distance, per
     lowered = text.strip().lower()
+    if "v/m" in lowered:
+        raise UnitError(text, f"{LIMIT_FORMS} (a field strength needs '@ <distance> m')")
     if lowered.endswith("dbc"):
-        value = float(parse_gain_db(text.strip()[:-3] + "dB"))
+        try:
+            value = parse_gain_db(text.strip()[:-3] + "dB")
+        except UnitError:
+            raise UnitError(text, LIMIT_FORMS) from None
         return "relative", value, None, False
-    return "absolute", parse_power_dbm(text), None, False
+    try:
+        return "absolute", parse_power_dbm(text), None, False
+    except UnitError:
+        raise UnitError(text, LIMIT_FORMS) from None
 
 
 def read_rule(f: Fields, origin: str, default_source: str, status_required: bool = True) -> Rule:
@@ -199,6 +207,14 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
     ceiling = f.quantity("ceiling", parse_power_dbm)
     if (floor is not None or ceiling is not None) and kind != "relative":
         raise f.error("floor", "'floor' and 'ceiling' apply to relative (dBc) limits only")
+    if floor is not None and ceiling is not None and floor > ceiling:
+        raise f.error(
+            "floor", f"{f.raw('floor')!r}: expected a floor at or below the ceiling {f.raw('ceiling')!r}"
+        )
+    if kind == "attenuation" and value <= 0:
+        raise f.error("attenuation", f"{f.raw('attenuation')!r}: expected an attenuation > 0 dB")
+    if cap is not None and cap <= 0:
+        raise f.error("cap", f"{f.raw('cap')!r}: expected a cap > 0 dB")
     when_carrier = _range(f, "when_carrier", ("start", "stop"), parse_freq_hz)
     when_power = _range(f, "when_power", ("above", "at_most"), parse_power_dbm)
     status = _status(f, required=status_required)
@@ -234,6 +250,8 @@ def _range(f: Fields, key: str, ends: tuple[str, str], parse):
     sub.finish()
     if lo is None and hi is None:
         raise f.error(key, f"expected '{ends[0]}' and/or '{ends[1]}'")
+    if lo is not None and hi is not None and lo >= hi:
+        raise f.error(key, f"{raw!r}: expected '{ends[0]}' below '{ends[1]}'")
     return (-math.inf if lo is None else lo, math.inf if hi is None else hi)
 
 
@@ -267,6 +285,8 @@ def read_band(
         if rbw is not None and rbw <= 0:
             raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
         own = (kind, value, distance, per_khz, rbw)
+    elif f.has("rbw"):
+        raise f.error("rbw", "applies together with a 'limit': expected both or neither")
     f.raw("limit"), f.raw("rbw")
     f.finish()
     rules = ()
@@ -312,8 +332,8 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
     uses = f.raw("use", [])
     if not isinstance(uses, list):
         raise f.error("use", f"{uses!r}: expected a list of rule-set names")
-    for entry in uses:
-        sets.append(_use(entry, f))
+    for i, entry in enumerate(uses, start=1):
+        sets.append(_use(entry, f, i))
     files = f.raw("files", [])
     if not isinstance(files, list) or not all(isinstance(p, str) for p in files):
         raise f.error("files", f"{files!r}: expected a list of file names")
@@ -374,12 +394,13 @@ def _list(f: Fields, key: str) -> list:
     return value
 
 
-def _use(entry, f: Fields) -> RuleSet:
+def _use(entry, f: Fields, index: int) -> RuleSet:
     if isinstance(entry, str):
         return load_ruleset(shipped_path(entry, f))
     if not isinstance(entry, dict):
         raise f.error("use", f"{entry!r}: expected a rule-set name or a table {{ name = ..., limit = ... }}")
-    sub = Fields(entry, f.file, "[mask] use")
+    label = entry.get("name") if isinstance(entry.get("name"), str) else None
+    sub = Fields(entry, f.file, f"[mask] use {index}" + (f" {label!r}" if label else ""))
     name = sub.text("name")
     if not name:
         raise sub.error("name", "is required: expected a shipped band list's name")
@@ -389,6 +410,10 @@ def _use(entry, f: Fields) -> RuleSet:
         raise sub.error("rbw", f"{sub.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
     sub.finish()
     base = load_ruleset(shipped_path(name, f))
+    if not base.bands:
+        raise sub.error(
+            "limit", f"{name!r} is a rule set with limits of its own: a limit applies to band lists only"
+        )
     limit = (kind, value, distance, per_khz, rbw)
     bands = tuple(_with_limit(b, limit) for b in base.bands)
     return replace(base, bands=bands)

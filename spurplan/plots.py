@@ -152,11 +152,115 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
 
 def save_check_plot(outcome, path, size_px=(1200, 700)):
     """Draw :func:`check_figure` to ``path`` atomically, at exactly ``size_px`` pixels."""
+    return _save(check_figure(outcome, size_px), path)
+
+
+def _save(fig, path, dpi: int = 100):
     from .outputs import save_figure
 
-    dpi = 100
-    fig = check_figure(outcome, size_px, dpi)
     try:
         return save_figure(fig, path, dpi=dpi)
     finally:
         _pyplot().close(fig)
+
+
+def _closest_slots(margin: np.ndarray, n: int) -> np.ndarray:
+    """The ``n`` slots whose margin comes lowest anywhere in the sweep."""
+    lowest = np.where(np.isnan(margin), np.inf, margin).min(axis=0)
+    order = np.argsort(lowest)
+    return order[np.isfinite(lowest[order])][:n]
+
+
+def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8):
+    """Products (solid) and their limits (dashed) against drive, carrier output, compliant limit."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    x = sweep.input_dbm
+    colors = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    for c, g in enumerate(_closest_slots(sweep.margin_db, n_products)):
+        col = colors[c % len(colors)]
+        ax.plot(
+            x,
+            sweep.level_dbm[:, g],
+            color=col,
+            lw=1.4,
+            label=f"{sweep.labels[g]} ({sweep.freq_hz[0, g] / 1e6:.4g} MHz)",
+        )
+        ax.plot(x, sweep.limit_dbm[:, g], color=col, lw=1.0, ls="--")
+    ax.plot(x, sweep.output_dbm, color="black", lw=2.0, label="carrier output")
+    # Linear extrapolation from the lowest drive shows where compression starts.
+    ax.plot(
+        x, sweep.output_dbm[0] + (x - x[0]), color="black", lw=0.8, ls=":", label="carrier, no compression"
+    )
+    if sweep.status == "limited":
+        ax.axvline(sweep.max_compliant_input_dbm, color="tab:red", lw=1.5)
+        ax.annotate(
+            f"highest compliant drive {sweep.max_compliant_input_dbm:+.2f} dBm in\n"
+            f"({sweep.max_compliant_output_dbm:+.2f} dBm out; {sweep.limiting['label']} fails above)",
+            (sweep.max_compliant_input_dbm, ax.get_ylim()[1]),
+            textcoords="offset points",
+            xytext=(6, -30),
+            fontsize=8,
+            color="tab:red",
+        )
+    ax.set_xlabel("drive: strongest carrier at the input (dBm)")
+    ax.set_ylabel("level at the output (dBm); dashed: each product's limit")
+    ax.set_title(f"{sweep.lineup.name}: products against drive (planning estimate)")
+    ax.grid(True, alpha=0.35)
+    ax.legend(loc="lower right", fontsize=7, ncols=2)
+    return fig
+
+
+def save_drive_plot(sweep, path, size_px=(1200, 700)):
+    return _save(drive_figure(sweep, size_px), path)
+
+
+def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10):
+    """Product frequency against carrier frequency; protected bands shaded, failures marked."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    xc = sweep.carrier_hz
+    sx, ux = _freq_axis(xc)
+    top = (
+        float(np.nanmax(sweep.freq_hz[:, _closest_slots(sweep.margin_db, n_products)]))
+        if np.isfinite(sweep.margin_db).any()
+        else float(xc.max())
+    )
+    sy, uy = _freq_axis(np.array([top]))
+    for b in sweep.lineup.mask.bands:
+        if b.start_hz <= top * 1.05:
+            ax.axhspan(b.start_hz / sy, min(b.stop_hz, top * 1.05) / sy, color="tab:orange", alpha=0.2, lw=0)
+            ax.text(
+                xc[0] / sx,
+                (b.start_hz + min(b.stop_hz, top)) / 2 / sy,
+                b.name,
+                fontsize=6,
+                va="center",
+                color="tab:brown",
+            )
+    labels = np.asarray(sweep.labels, dtype=object)
+    for g in _closest_slots(sweep.margin_db, n_products):
+        f = sweep.freq_hz[:, g]
+        ax.plot(xc / sx, f / sy, color="tab:blue", lw=1.0)
+        ax.annotate(
+            str(labels[-1, g]),
+            (xc[-1] / sx, f[-1] / sy),
+            fontsize=7,
+            xytext=(3, 0),
+            textcoords="offset points",
+        )
+        bad = np.where(np.isnan(sweep.margin_db[:, g]), False, sweep.margin_db[:, g] < 0)
+        if bad.any():
+            ax.plot(xc[bad] / sx, f[bad] / sy, "s", color="tab:red", ms=3)
+    for r in sweep.failing:
+        ax.axvspan(r["start_hz"] / sx, r["stop_hz"] / sx, color="tab:red", alpha=0.08, lw=0)
+    ax.set_xlabel(f"carrier frequency ({ux})")
+    ax.set_ylabel(f"product frequency ({uy}); red: the product fails")
+    verdict = "every channel passes" if not sweep.failing else f"{len(sweep.failing)} failing range(s)"
+    ax.set_title(f"{sweep.lineup.name}: tuning sweep, {verdict} (planning estimate)")
+    ax.grid(True, alpha=0.35)
+    return fig
+
+
+def save_tune_plot(sweep, path, size_px=(1200, 700)):
+    return _save(tune_figure(sweep, size_px), path)

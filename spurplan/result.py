@@ -82,6 +82,21 @@ class Result:
         x = self.propagation.nodes[node, batch, cols]
         return vpeak_to_dbm(x, self.lineup.r_ohm)
 
+    def carrier_levels_dbm_batch(self, stage: str | None = None) -> np.ndarray:
+        """Modelled level (dBm) of each carrier at a node for every batch element; (B, K)."""
+        node = self.node_index(stage)
+        tones = tone_index(self.mix)
+        cols = [int(np.nonzero(tones == k)[0][0]) for k in range(self.mix.shape[1])]
+        return vpeak_to_dbm(self.propagation.nodes[node][:, cols], self.lineup.r_ohm)
+
+    def slot_labels(self, levels, row: int = 0) -> list[str]:
+        """Label of every slot of a :meth:`levels` row ("" for unused slots)."""
+        plus, minus = labels(self.mix, self.lineup.tone_names)
+        return [
+            (plus[r] if s > 0 else minus[r]) if ok else ""
+            for r, s, ok in zip(levels.rep[row], levels.sign[row], levels.valid[row], strict=True)
+        ]
+
     def products(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
         """Products at a node as a DataFrame (one row per physical frequency).
 

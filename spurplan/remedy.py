@@ -1,0 +1,278 @@
+"""Remedy: the rejection a failing lineup still needs, and the filter that supplies it.
+
+The search inserts a synthesized filter at one place of the lineup (default: after
+the last amplifier) and re-runs the whole check with it, so that the filter's true
+response at every product, its passband loss at the carrier (which moves relative
+limits) and any products regenerated after it are all accounted for.  Orders rise
+from 1; at each order a Chebyshev (0.1 dB ripple, odd orders) and a Butterworth
+ladder are tried, and the lowest order that meets the mask with the margin target
+wins (the larger margin if both do).
+
+The passband edge sits at least ``edge_factor`` beyond the carriers (a low-pass cuts
+off at ``edge_factor`` times the highest carrier, a high-pass at the lowest carrier
+divided by it, a band-pass spans both when products lie above and below), and a
+Butterworth edge moves further out until its loss at the carriers is at most
+``max_loss_db``.
+The filter is built from the lineup snippet that is printed, so what is checked is
+exactly what the user pastes.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, replace
+from pathlib import Path
+
+from .check import CheckResult, check
+from .errors import LineupError
+from .fields import Fields
+from .filters import MAX_FILTER_ORDER
+from .stages import Amplifier, LoadContext
+from .stages.filter import Filter
+
+EDGE_FACTOR = 1.1
+# Passband loss at a carrier the edge placement allows (dB): heat in the filter and
+# lost output power, which an engineer would not accept beyond a few tenths of a dB.
+MAX_PASSBAND_LOSS_DB = 0.3
+FAMILIES_TRIED = (("chebyshev", "0.1 dB"), ("butterworth", None))
+STAGE_NAME = "remedy filter"
+
+
+@dataclass(frozen=True)
+class Remedy:
+    """What :func:`remedy` found.
+
+    Attributes
+    ----------
+    needed : dict of lists
+        Products short of the margin target: ``freq_hz, label, margin_db,
+        rejection_needed_db, rule``.
+    after : str or None
+        Stage after which the filter goes (``None``: at the lineup input).
+    position : int
+        Number of stages before the filter.
+    snippet : str or None
+        The ``[[stage]]`` table to paste.
+    filter : Filter or None
+    outcome : CheckResult or None
+        The check of the lineup with the filter in place.
+    tried : list of dict
+        Every candidate: family, order, worst margin.
+    reason : str
+        Why nothing was proposed, when nothing was.
+    """
+
+    lineup: object
+    before: CheckResult
+    margin_target_db: float
+    needed: dict
+    after: str | None
+    position: int
+    snippet: str | None
+    filter: Filter | None
+    outcome: CheckResult | None
+    tried: list
+    reason: str = ""
+
+    @property
+    def found(self) -> bool:
+        return self.snippet is not None
+
+    def summary(self) -> dict:
+        from .provenance import provenance
+
+        out = {
+            "lineup": self.lineup.name,
+            "margin_target_db": self.margin_target_db,
+            "found": self.found,
+            "reason": self.reason,
+            "insert_after": self.after,
+            "snippet": self.snippet,
+            "before": {"pass": self.before.passed, "worst_margin_db": self.before.worst_margin_db},
+            "tried": self.tried,
+        }
+        if self.outcome is not None:
+            out["after"] = {"pass": self.outcome.passed, "worst_margin_db": self.outcome.worst_margin_db}
+            out["elements"] = self.filter.elements()
+        return {**out, **provenance(self.lineup)}
+
+
+def rejection_needed(outcome: CheckResult, margin_db: float) -> dict[str, list]:
+    """Products whose margin is below ``margin_db``, and how much more rejection each needs."""
+    rows = outcome.rows
+    out = {c: [] for c in ("freq_hz", "label", "margin_db", "rejection_needed_db", "rule", "band")}
+    for i, m in enumerate(rows["margin_db"]):
+        if m is not None and m < margin_db:
+            out["freq_hz"].append(rows["freq_hz"][i])
+            out["label"].append(rows["label"][i])
+            out["margin_db"].append(m)
+            out["rejection_needed_db"].append(margin_db - m)
+            out["rule"].append(rows["rule"][i])
+            out["band"].append(rows["band"][i])
+    return out
+
+
+def remedy(
+    lineup,
+    at: str | None = None,
+    margin_db: float = 3.0,
+    edge_factor: float = EDGE_FACTOR,
+    max_loss_db: float = MAX_PASSBAND_LOSS_DB,
+) -> Remedy:
+    """Find the lowest-order synthesized filter that makes ``lineup`` pass with ``margin_db``.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        With a mask.
+    at : str, optional
+        Insert the filter after this stage (default: after the last amplifier).
+    margin_db : float
+        Margin target (dB) every checked product must meet.
+    edge_factor : float
+        Passband edge beyond the carriers (see the module docstring).
+    max_loss_db : float
+        Largest loss of the ideal ladder at a carrier that the edge placement allows.
+    """
+    before = check(lineup)
+    needed = rejection_needed(before, margin_db)
+    position = _position(lineup, at)
+    after = lineup.stages[position - 1].name if position else None
+
+    def result(**kw) -> Remedy:
+        base = dict(
+            lineup=lineup,
+            before=before,
+            margin_target_db=margin_db,
+            needed=needed,
+            after=after,
+            position=position,
+            snippet=None,
+            filter=None,
+            outcome=None,
+            tried=[],
+        )
+        return Remedy(**{**base, **kw})
+
+    if not needed["freq_hz"]:
+        return result(reason=f"the lineup already meets the mask with {margin_db:g} dB margin")
+    carriers = [c.freq_hz for c in lineup.carriers]
+    lo, hi = min(carriers), max(carriers)
+    above = [f for f in needed["freq_hz"] if f > hi]
+    below = [f for f in needed["freq_hz"] if f < lo]
+    if len(above) + len(below) < len(needed["freq_hz"]):
+        return result(reason="some failing products lie between the carriers: no filter can remove them")
+    kind = "bandpass" if above and below else ("lowpass" if above else "highpass")
+
+    tried = []
+    for order in range(1, MAX_FILTER_ORDER + 1):
+        found = []
+        for family, ripple in FAMILIES_TRIED:
+            if family == "chebyshev" and order % 2 == 0:
+                continue
+            shape = _shape(kind, family, order, lo, hi, edge_factor, max_loss_db)
+            rip = f', ripple = "{ripple}"' if ripple else ""
+            snippet = (
+                f'[[stage]]\nkind = "filter"\nname = "{STAGE_NAME}"\n'
+                f'prototype = {{ family = "{family}", {shape}, order = {order}{rip} }}\n'
+            )
+            flt = _filter_from_snippet(snippet, lineup)
+            fixed = replace(lineup, stages=(*lineup.stages[:position], flt, *lineup.stages[position:]))
+            outcome = check(fixed)
+            worst = outcome.worst_margin_db
+            tried.append({"family": family, "order": order, "response": kind, "worst_margin_db": worst})
+            if worst is not None and worst >= margin_db:
+                found.append((worst, snippet, flt, outcome))
+        if found:
+            worst, snippet, flt, outcome = max(found, key=lambda t: t[0])
+            return result(snippet=snippet, filter=flt, outcome=outcome, tried=tried)
+    return result(tried=tried, reason=f"no {kind} filter up to order {MAX_FILTER_ORDER} meets the target")
+
+
+def _shape(
+    kind: str, family: str, order: int, lo: float, hi: float, edge_factor: float, max_loss_db: float
+) -> str:
+    """Prototype keys placing the passband edge(s) for the carriers lo .. hi (Hz).
+
+    At least ``edge_factor`` beyond the carriers; a Butterworth edge moves further out
+    until its loss at the outermost carrier is at most ``max_loss_db``:
+    ``10 log10(1 + W^(2N)) <= L`` with W the carrier's normalised frequency
+    (Butterworth magnitude, Matthaei, Young and Jones 1964 section 4.03; from memory).
+    A Chebyshev's passband loss is its ripple, below the cap.
+    """
+    w_max = (10 ** (max_loss_db / 10) - 1) ** (1 / (2 * order)) if family == "butterworth" else 1.0
+    if kind == "lowpass":
+        return f'response = "lowpass", cutoff = "{_mhz(max(hi * edge_factor, hi / w_max))}"'
+    if kind == "highpass":
+        return f'response = "highpass", cutoff = "{_mhz(min(lo / edge_factor, lo * w_max))}"'
+    f1, f2 = lo / edge_factor, hi * edge_factor
+    f0 = (f1 * f2) ** 0.5
+    # Band-pass: W = (f/f0 - f0/f) / D; widen D until |W| at the carriers is <= w_max.
+    span = max(hi / f0 - f0 / hi, f0 / lo - lo / f0)
+    frac = max((f2 - f1) / f0, span / w_max)
+    return f'response = "bandpass", center = "{_mhz(f0)}", bandwidth = "{_mhz(frac * f0)}"'
+
+
+def _mhz(hz: float) -> str:
+    return f"{hz / 1e6:.6g} MHz"
+
+
+def _position(lineup, at: str | None) -> int:
+    if at is not None:
+        return lineup.stage_index(at)
+    amps = [i for i, s in enumerate(lineup.stages, start=1) if isinstance(s, Amplifier)]
+    return amps[-1] if amps else len(lineup.stages)
+
+
+def _filter_from_snippet(snippet: str, lineup) -> Filter:
+    import tomllib
+
+    table = tomllib.loads(snippet)["stage"][0]
+    context = LoadContext(r_ohm=lineup.r_ohm, base_dir=lineup.source.parent if lineup.source else Path("."))
+    f = Fields(table, "remedy", f"stage {STAGE_NAME!r}")
+    f.raw("kind")
+    return Filter.from_fields(f, context)
+
+
+def write_fixed(lineup, found: Remedy, path) -> Path:
+    """Write the lineup file with the remedy's filter inserted (atomically).
+
+    The new file must sit in the lineup's folder when the lineup refers to other
+    files by relative path (Touchstone data, rule files): they would not be found
+    from elsewhere.
+    """
+    from .outputs import write_atomic
+
+    source = Path(lineup.source)
+    target = Path(path)
+    text = source.read_text(encoding="utf-8")
+    refers = re.search(r"^\s*(touchstone|files)\s*=", text, flags=re.MULTILINE)
+    if refers and target.resolve().parent != source.resolve().parent:
+        raise LineupError(
+            f"{target}: the lineup refers to files by relative path ('{refers.group(1)}'): expected --write "
+            f"to name a file in {source.resolve().parent}",
+            field="--write",
+        )
+    return write_atomic(target, insert_stage(text, found.position, found.snippet))
+
+
+_TABLE_HEADER = re.compile(r"^\s*\[")
+_STAGE_HEADER = re.compile(r"^\s*\[\[\s*stage\s*\]\]")
+
+
+def insert_stage(text: str, position: int, snippet: str) -> str:
+    """Lineup file text with ``snippet`` inserted as the stage after ``position`` stages."""
+    lines = text.splitlines(keepends=True)
+    headers = [i for i, line in enumerate(lines) if _STAGE_HEADER.match(line)]
+    if position < len(headers):
+        at = headers[position]
+    else:
+        if not headers:
+            raise LineupError("no [[stage]] table to insert after: expected a lineup with stages")
+        last = headers[-1]
+        later = [i for i in range(last + 1, len(lines)) if _TABLE_HEADER.match(lines[i])]
+        at = later[0] if later else len(lines)
+    block = snippet if snippet.endswith("\n") else snippet + "\n"
+    if at > 0 and lines[at - 1].strip():
+        block = "\n" + block
+    return "".join(lines[:at]) + block + "\n" + "".join(lines[at:])

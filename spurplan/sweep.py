@@ -1,0 +1,446 @@
+"""Sweeps: drive level and tuning range, each one batch through the engine.
+
+A drive sweep offsets every carrier's input power together (the strongest carrier's
+input power is the sweep variable); a tuning sweep moves every carrier together (the
+strongest carrier's frequency is the variable, spacings kept).  Both evaluate the mask
+for all points at once; only the edges the answer needs (the highest compliant drive,
+the channel where a product starts to fail) are refined point by point, by bisection.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .check import evaluate, require_mask
+from .errors import SpurplanError
+from .spectrum import labels
+
+# Points evaluated per engine batch: bounds memory, and paces a progress bar.
+CHUNK_POINTS = 2000
+MAX_POINTS = 200_000
+# Drive is refined to this (dB); a tuning edge to this (Hz).
+DRIVE_TOL_DB = 1e-3
+FREQ_TOL_HZ = 1.0
+
+
+class SweepError(SpurplanError, ValueError):
+    """Sweep arguments that do not make a sweep."""
+
+
+def sweep_points(start: float, stop: float, step: float, what: str, unit: str) -> np.ndarray:
+    """``start, start + step, ... <= stop``; errors name the argument and the value."""
+    if not (math.isfinite(start) and math.isfinite(stop) and math.isfinite(step)):
+        raise SweepError(f"--start/--stop/--step: expected finite {what}s")
+    if step <= 0:
+        raise SweepError(f"--step {step:g} {unit}: expected a step > 0")
+    if stop < start:
+        raise SweepError(f"--stop {stop:g} {unit} is below --start {start:g} {unit}: expected stop >= start")
+    n = math.floor((stop - start) / step * (1 + 1e-12)) + 1
+    if n > MAX_POINTS:
+        raise SweepError(f"{n} {what} points: expected at most {MAX_POINTS} (use a larger --step)")
+    return start + step * np.arange(n)
+
+
+def read_channels(path) -> np.ndarray:
+    """Carrier frequencies from a file: one per line with its unit; '#' starts a comment."""
+    from pathlib import Path
+
+    from .errors import LineupError, UnitError
+    from .units import parse_freq_hz
+
+    try:
+        lines = Path(path).read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError) as exc:
+        raise LineupError(
+            f"cannot read ({exc.__class__.__name__}): expected a text file of frequencies", file=str(path)
+        ) from None
+    out = []
+    for n, line in enumerate(lines, start=1):
+        text = line.split("#", 1)[0].strip()
+        if not text:
+            continue
+        try:
+            out.append(parse_freq_hz(text))
+        except UnitError as exc:
+            raise LineupError(str(exc), file=f"{path}:{n}") from None
+    if not out:
+        raise LineupError("no frequencies: expected one per line, e.g. '462.5625 MHz'", file=str(path))
+    if len(out) > MAX_POINTS:
+        raise LineupError(f"{len(out)} channels: expected at most {MAX_POINTS}", file=str(path))
+    return np.array(out)
+
+
+def _strongest(lineup) -> int:
+    return int(np.argmax([c.power_dbm for c in lineup.carriers]))
+
+
+def _batched(run, points: np.ndarray, progress):
+    """Evaluate ``run(points[chunk])`` chunk by chunk; concatenate the arrays it returns."""
+    parts = []
+    for s in range(0, len(points), CHUNK_POINTS):
+        parts.append(run(points[s : s + CHUNK_POINTS]))
+        if progress is not None:
+            progress(min(CHUNK_POINTS, len(points) - s))
+    return [np.concatenate(p) for p in zip(*parts, strict=True)]
+
+
+def _drive_eval(lineup, offsets_db: np.ndarray, combine):
+    result = lineup.run(drive_offset_db=offsets_db)
+    levels = result.levels(None, combine)
+    ev = evaluate(lineup, result, levels)
+    k = _strongest(lineup)
+    out = result.carrier_levels_dbm_batch()[:, k]
+    return result, levels, ev, out
+
+
+@dataclass(frozen=True)
+class DriveSweep:
+    """Products and margins against drive.
+
+    Attributes
+    ----------
+    input_dbm, output_dbm : ndarray (B,)
+        Strongest carrier at the lineup input and output (modelled).
+    level_dbm, margin_db : ndarray (B, G)
+        Slot levels and margins (NaN where no rule applies).
+    labels : list of str
+        Label of each slot (slots are the same products at every drive).
+    worst_margin_db : ndarray (B,)
+    max_compliant_input_dbm, max_compliant_output_dbm : float or None
+        The highest drive up to which the mask is met (refined to 0.001 dB).
+    limiting : dict or None
+        The product and rule that set it.
+    status : str
+        "limited", "compliant throughout" or "fails throughout".
+    """
+
+    lineup: object
+    input_dbm: np.ndarray
+    output_dbm: np.ndarray
+    freq_hz: np.ndarray
+    level_dbm: np.ndarray
+    limit_dbm: np.ndarray
+    margin_db: np.ndarray
+    labels: list
+    worst_margin_db: np.ndarray
+    max_compliant_input_dbm: float | None
+    max_compliant_output_dbm: float | None
+    limiting: dict | None
+    status: str
+    extrapolated: np.ndarray
+
+    def rows(self) -> dict[str, list]:
+        """One row per drive point: levels, worst margin and the product that sets it."""
+        masked = np.where(np.isnan(self.margin_db), np.inf, self.margin_db)
+        worst_slot = np.argmin(masked, axis=1)
+        checked = np.isfinite(self.worst_margin_db)
+        return {
+            "input_dbm": self.input_dbm.tolist(),
+            "output_dbm": [None if not np.isfinite(v) else float(v) for v in self.output_dbm],
+            "worst_margin_db": [
+                float(w) if ok else None for w, ok in zip(self.worst_margin_db, checked, strict=True)
+            ],
+            "worst_label": [
+                self.labels[g] if ok else None for g, ok in zip(worst_slot, checked, strict=True)
+            ],
+            "pass": [
+                bool(w >= 0) if ok else None for w, ok in zip(self.worst_margin_db, checked, strict=True)
+            ],
+            "model_extrapolated": self.extrapolated.tolist(),
+        }
+
+    def summary(self) -> dict:
+        return {
+            "lineup": self.lineup.name,
+            "status": self.status,
+            "max_compliant_input_dbm": self.max_compliant_input_dbm,
+            "max_compliant_output_dbm": self.max_compliant_output_dbm,
+            "limiting": self.limiting,
+        }
+
+
+def drive_sweep(
+    lineup,
+    start_dbm: float,
+    stop_dbm: float,
+    step_db: float,
+    *,
+    target_output: bool = False,
+    combine=None,
+    progress=None,
+) -> DriveSweep:
+    """Sweep the drive; find the highest compliant drive.
+
+    Parameters
+    ----------
+    start_dbm, stop_dbm, step_db : float
+        Input power of the strongest carrier (dBm), or with ``target_output`` its
+        output power: the inputs are then found by inverting the modelled transfer.
+    """
+    require_mask(lineup)
+    k = _strongest(lineup)
+    nominal = lineup.carriers[k].power_dbm
+    points = sweep_points(start_dbm, stop_dbm, step_db, "drive", "dBm")
+    offsets = points - nominal
+    if target_output:
+        offsets = _inputs_for_outputs(lineup, points, combine)
+    valid = np.isfinite(offsets)
+    run_offsets = np.where(valid, offsets, 0.0)
+
+    def one_chunk(chunk):
+        result, levels, ev, out = _drive_eval(lineup, chunk, combine)
+        return (
+            levels.freq_hz,
+            levels.level_dbm,
+            ev.limit_dbm,
+            ev.margin_db,
+            ev.worst_margin_db,
+            out,
+            result.propagation.extrapolated.any(axis=0),
+        )
+
+    freq, level, limit, margin, worst, out, extrap = _batched(one_chunk, run_offsets, progress)
+    worst = np.where(valid, worst, np.nan)
+    labels = _slot_labels(lineup, run_offsets[:1], combine)
+    inputs = nominal + offsets
+    ok = worst >= 0
+    status, x_in, x_out, limiting = "compliant throughout", None, None, None
+    if valid.any() and not ok[valid][0]:
+        status = "fails throughout" if not ok[valid].any() else "limited"
+    first_bad = np.nonzero(valid & ~ok)[0]
+    if first_bad.size and first_bad[0] > 0 and ok[first_bad[0] - 1]:
+        status = "limited"
+        lo, hi = offsets[first_bad[0] - 1], offsets[first_bad[0]]
+        edge = _bisect(lambda x: _worst_at(lineup, x, combine) >= 0, lo, hi, DRIVE_TOL_DB)
+        x_in = nominal + edge
+        x_out, limiting = _limiting(lineup, edge, min(edge + DRIVE_TOL_DB, hi), combine)
+    elif status == "compliant throughout" and valid.any():
+        last = np.nonzero(valid)[0][-1]
+        x_in, x_out = float(inputs[last]), float(out[last])
+    return DriveSweep(
+        lineup=lineup,
+        input_dbm=inputs,
+        output_dbm=np.where(valid, out, np.nan),
+        freq_hz=freq,
+        level_dbm=level,
+        limit_dbm=limit,
+        margin_db=margin,
+        labels=labels,
+        worst_margin_db=worst,
+        max_compliant_input_dbm=x_in,
+        max_compliant_output_dbm=x_out,
+        limiting=limiting,
+        status=status,
+        extrapolated=extrap,
+    )
+
+
+def _slot_labels(lineup, offsets, combine) -> list[str]:
+    result = lineup.run(drive_offset_db=offsets)
+    return result.slot_labels(result.levels(None, combine, rows=slice(0, 1)), 0)
+
+
+def _worst_at(lineup, offset_db: float, combine) -> float:
+    _result, _, ev, _ = _drive_eval(lineup, np.array([offset_db]), combine)
+    return float(ev.worst_margin_db[0])
+
+
+def _limiting(lineup, ok_offset: float, bad_offset: float, combine) -> tuple[float, dict]:
+    """Output power at the compliant edge, and the product that fails just above it."""
+    _result, _, _, out = _drive_eval(lineup, np.array([ok_offset]), combine)
+    from .check import check
+
+    bad = check(lineup, lineup.run(drive_offset_db=np.array([bad_offset])), combine)
+    worst = {c: bad.rows[c][bad.worst] for c in ("label", "freq_hz", "rule", "band", "margin_db", "stage")}
+    return float(out[0]), worst
+
+
+def _bisect(good, lo: float, hi: float, tol: float) -> float:
+    """Largest x in [lo, hi] with good(x), given good(lo) and not good(hi)."""
+    while hi - lo > tol:
+        mid = 0.5 * (lo + hi)
+        if good(mid):
+            lo = mid
+        else:
+            hi = mid
+    return lo
+
+
+def _inputs_for_outputs(lineup, targets_dbm: np.ndarray, combine) -> np.ndarray:
+    """Input offsets (dB) that give each target output power; NaN where unreachable."""
+    k = _strongest(lineup)
+    nominal = lineup.carriers[k].power_dbm
+    del nominal
+    grid = np.arange(-60.0, 40.0, 0.02)  # input offsets around the nominal drive (dB)
+    result = lineup.run(drive_offset_db=grid)
+    out = result.carrier_levels_dbm_batch()[:, k]
+    # The usable part of the transfer is where the output still rises with drive.
+    rising = np.concatenate([[True], np.diff(out) > 0])
+    stop = np.argmin(rising) if not rising.all() else len(out)
+    g, o = grid[:stop], out[:stop]
+    inside = (targets_dbm >= o[0]) & (targets_dbm <= o[-1])
+    return np.where(inside, np.interp(targets_dbm, o, g), np.nan)
+
+
+@dataclass(frozen=True)
+class TuneSweep:
+    """Products and margins against carrier frequency.
+
+    Attributes
+    ----------
+    carrier_hz : ndarray (B,)
+        Strongest carrier frequency of each channel.
+    rows : dict of lists
+        For each channel, the products that fail or land in a protected band:
+        ``carrier_hz, freq_hz, label, band, rule, margin_db, pass``.
+    failing : list of dict
+        Contiguous channel ranges where a product fails, with the edges refined
+        by bisection: ``start_hz, stop_hz, label, rule, band, worst_margin_db``.
+    """
+
+    lineup: object
+    carrier_hz: np.ndarray
+    freq_hz: np.ndarray
+    margin_db: np.ndarray
+    labels: list
+    worst_margin_db: np.ndarray
+    rows: dict
+    failing: list
+
+    def summary(self) -> dict:
+        return {
+            "lineup": self.lineup.name,
+            "channels": len(self.carrier_hz),
+            "pass": not self.failing,
+            "failing_ranges": self.failing,
+        }
+
+
+def tune_sweep(
+    lineup, carrier_hz: np.ndarray, *, combine=None, refine: bool = True, progress=None
+) -> TuneSweep:
+    """Sweep the carrier frequency at fixed drive (every carrier moves together)."""
+    mask = require_mask(lineup)
+    k = _strongest(lineup)
+    base = np.array([c.freq_hz for c in lineup.carriers])
+    carrier_hz = np.asarray(carrier_hz, dtype=float)
+    if carrier_hz.size == 0:
+        raise SweepError("no channels: expected at least one carrier frequency")
+    if np.any(carrier_hz + (base.min() - base[k]) <= 0):
+        raise SweepError("a channel puts a carrier at or below 0 Hz: expected positive frequencies")
+
+    def tones_for(f):
+        return f[:, None] + (base - base[k])[None, :]
+
+    def one_chunk(chunk):
+        result = lineup.run(tone_freqs_hz=tones_for(chunk))
+        levels = result.levels(None, combine)
+        ev = evaluate(lineup, result, levels)
+        return levels.freq_hz, ev.margin_db, ev.rule, levels.rep, levels.sign, ev.worst_margin_db
+
+    freq, margin, rule, rep, sign, worst = _batched(one_chunk, carrier_hz, progress)
+    result0 = lineup.run(tone_freqs_hz=tones_for(carrier_hz[:1]))
+    plus, minus = labels(result0.mix, lineup.tone_names)
+    label = np.where(sign > 0, np.asarray(plus, dtype=object)[rep], np.asarray(minus, dtype=object)[rep])
+    rules = evaluate(lineup, result0, result0.levels(None, combine)).rules
+    from .check import bands_at
+
+    rows = {c: [] for c in ("carrier_hz", "freq_hz", "label", "band", "rule", "margin_db", "pass")}
+    failing_mask = np.where(np.isnan(margin), False, margin < 0)
+    in_band = np.zeros(freq.shape, dtype=bool)
+    for b in mask.bands:
+        in_band |= (freq >= b.start_hz) & (freq <= b.stop_hz)
+    interesting = (failing_mask | (in_band & (rule >= 0))) & np.isfinite(freq)
+    for i, g in zip(*np.nonzero(interesting), strict=True):
+        j = int(rule[i, g])
+        rows["carrier_hz"].append(float(carrier_hz[i]))
+        rows["freq_hz"].append(float(freq[i, g]))
+        rows["label"].append(str(label[i, g]))
+        rows["band"].append(bands_at(mask, float(freq[i, g])))
+        rows["rule"].append(None if j < 0 else f"{rules[j][0].origin}: {rules[j][0].name}")
+        rows["margin_db"].append(None if j < 0 else float(margin[i, g]))
+        rows["pass"].append(None if j < 0 else bool(margin[i, g] >= 0))
+    failing = _failing_ranges(
+        lineup, carrier_hz, label, failing_mask, margin, rows, tones_for, combine, refine
+    )
+    return TuneSweep(
+        lineup=lineup,
+        carrier_hz=carrier_hz,
+        freq_hz=freq,
+        margin_db=margin,
+        labels=label.tolist(),
+        worst_margin_db=worst,
+        rows=rows,
+        failing=failing,
+    )
+
+
+def _failing_ranges(
+    lineup, carrier_hz, label, failing_mask, margin, rows, tones_for, combine, refine
+) -> list[dict]:
+    """Contiguous runs of channels where one product fails under one rule, edges refined."""
+    out = []
+    keys = sorted(
+        {(rows["label"][i], rows["rule"][i]) for i in range(len(rows["label"])) if rows["pass"][i] is False}
+    )
+    for name, rule in keys:
+        hits = [
+            i
+            for i in range(len(rows["label"]))
+            if rows["label"][i] == name and rows["rule"][i] == rule and rows["pass"][i] is False
+        ]
+        bad = np.isin(carrier_hz, [rows["carrier_hz"][i] for i in hits])
+        idx = np.nonzero(bad)[0]
+        breaks = np.nonzero(np.diff(idx) > 1)[0]
+        starts = np.concatenate([[idx[0]], idx[breaks + 1]])
+        stops = np.concatenate([idx[breaks], [idx[-1]]])
+        for a, b in zip(starts, stops, strict=True):
+            lo_hz, hi_hz = float(carrier_hz[a]), float(carrier_hz[b])
+            if refine and a > 0:
+                lo_hz = _bisect_edge(lineup, name, rule, float(carrier_hz[a - 1]), lo_hz, tones_for, combine)
+            if refine and b + 1 < len(carrier_hz):
+                hi_hz = _bisect_edge(lineup, name, rule, float(carrier_hz[b + 1]), hi_hz, tones_for, combine)
+            inside = [
+                i for i in hits if float(carrier_hz[a]) <= rows["carrier_hz"][i] <= float(carrier_hz[b])
+            ]
+            worst_i = min(inside, key=lambda i: rows["margin_db"][i])
+            out.append(
+                {
+                    "start_hz": lo_hz,
+                    "stop_hz": hi_hz,
+                    "label": name,
+                    "rule": rule,
+                    "band": rows["band"][worst_i],
+                    "worst_margin_db": rows["margin_db"][worst_i],
+                }
+            )
+    return sorted(out, key=lambda r: (r["start_hz"], r["label"]))
+
+
+def _fails_at(lineup, name: str, rule_name: str, f_hz: float, tones_for, combine) -> bool:
+    """Whether product ``name`` fails under the rule called ``rule_name`` with the carrier at ``f_hz``."""
+    result = lineup.run(tone_freqs_hz=tones_for(np.array([f_hz])))
+    levels = result.levels(None, combine)
+    ev = evaluate(lineup, result, levels)
+    names = result.slot_labels(levels, 0)
+    for g, n in enumerate(names):
+        j = int(ev.rule[0, g])
+        if n == name and j >= 0 and ev.margin_db[0, g] < 0:
+            rule = ev.rules[j][0]
+            if f"{rule.origin}: {rule.name}" == rule_name:
+                return True
+    return False
+
+
+def _bisect_edge(lineup, name, rule, good_hz: float, bad_hz: float, tones_for, combine) -> float:
+    """The frequency between a passing and a failing channel where ``name`` starts to fail."""
+    while abs(bad_hz - good_hz) > FREQ_TOL_HZ:
+        mid = 0.5 * (good_hz + bad_hz)
+        if _fails_at(lineup, name, rule, mid, tones_for, combine):
+            bad_hz = mid
+        else:
+            good_hz = mid
+    return bad_hz
