@@ -317,7 +317,7 @@ def test_15_209_field_limits(row):
     )
     assert hits, "no rule for this row"
     assert hits[0].start_hz == pytest.approx(start * MHZ, rel=1e-12)
-    for a, b in zip(hits, hits[1:], strict=False):
+    for a, b in itertools.pairwise(hits):
         assert a.stop_hz == pytest.approx(b.start_hz, rel=1e-12)
     if math.isinf(stop):
         assert math.isinf(hits[-1].stop_hz)
