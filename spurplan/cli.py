@@ -12,37 +12,26 @@ import click
 
 from . import __version__
 from .notices import PLANNING_NOTICE, POWER_NOTICE
+from .tables import (
+    BANDS_TABLE,
+    BUDGET_TABLE,
+    CHECK_TABLE,
+    DRIVE_TABLE,
+    ELEMENT_TABLE,
+    NEEDED_TABLE,
+    PRODUCT_TABLE,
+    RESPONSE_TABLE,
+    RULES_TABLE,
+    TUNE_TABLE,
+    element_display,
+    mhz,
+    product_display,
+    tune_display,
+)
 
 EPILOG = f"{PLANNING_NOTICE} {POWER_NOTICE}"
 FORMATS = ("table", "csv", "json")
 COMBINES = ("worst", "power", "phase")
-
-PRODUCT_TABLE = [
-    ("freq_hz", "freq (MHz)", None),
-    ("level_dbm", "level (dBm)", ".2f"),
-    ("dbc", "dBc", ".2f"),
-    ("order", "order", "d"),
-    ("label", "product", None),
-    ("kind", "kind", None),
-    ("stage", "largest from", None),
-    ("flags", "flags", None),
-]
-
-BUDGET_TABLE = [
-    ("stage", "stage", None),
-    ("kind", "kind", None),
-    ("gain_db", "gain (dB)", ".2f"),
-    ("cum_gain_db", "cum gain (dB)", ".2f"),
-    ("carrier_in_dbm", "in (dBm)", ".2f"),
-    ("carrier_out_dbm", "out (dBm)", ".2f"),
-    ("compression_db", "compr (dB)", ".2f"),
-    ("oip3_dbm", "OIP3 (dBm)", ".2f"),
-    ("cascade_iip3_dbm", "casc IIP3 (dBm)", ".2f"),
-    ("cascade_oip3_dbm", "casc OIP3 (dBm)", ".2f"),
-    ("p1db_dbm", "P1dB (dBm)", ".2f"),
-    ("p1db_from", "P1dB from", None),
-    ("headroom_db", "headroom (dB)", ".2f"),
-]
 
 
 class _Group(click.Group):
@@ -132,13 +121,7 @@ def spectrum(lineup, stage, fmt, combine):
     elif fmt == "csv":
         click.echo(to_csv(rows), nl=False)
     else:
-        shown = dict(rows)
-        shown["freq_hz"] = [f"{f / 1e6:.6f}" for f in rows["freq_hz"]]
-        shown["label"] = [f"{a} ({b})" if b else a for a, b in zip(rows["label"], rows["also"], strict=True)]
-        shown["flags"] = [
-            " ".join(t for t, on in (("EXTRAPOLATED", e), ("UNCONVERGED", u)) if on)
-            for e, u in zip(rows["model_extrapolated"], rows["not_converged"], strict=True)
-        ]
+        shown = product_display(rows)
         click.echo(f"{summary['lineup']}: products at {summary['node']} (combine = {summary['combine']})")
         click.echo(text_table(shown, PRODUCT_TABLE), nl=False)
         click.echo(PLANNING_NOTICE)
@@ -165,25 +148,6 @@ def budget(lineup, fmt):
         click.echo(f"{result.lineup.name}: cascade budget (strongest carrier)")
         click.echo(text_table(rows, BUDGET_TABLE), nl=False)
         click.echo(PLANNING_NOTICE)
-
-
-ELEMENT_TABLE = [
-    ("position", "#", "d"),
-    ("branch", "arm", None),
-    ("part", "part", None),
-    ("g", "g", ".4f"),
-    ("l_nh", "L (nH)", ".4g"),
-    ("c_pf", "C (pF)", ".4g"),
-]
-
-RESPONSE_TABLE = [
-    ("freq_mhz", "freq (MHz)", ".6f"),
-    ("label", "product", None),
-    ("level_in_dbm", "level in (dBm)", ".2f"),
-    ("s21_db", "S21 (dB)", ".3f"),
-    ("s21_deg", "phase (deg)", ".2f"),
-    ("flags", "flags", None),
-]
 
 
 @main.command("filter", epilog=EPILOG)
@@ -277,21 +241,6 @@ def filter_cmd(
     click.echo(PLANNING_NOTICE)
 
 
-CHECK_TABLE = [
-    ("verdict", "", None),
-    ("freq_mhz", "freq (MHz)", ".6f"),
-    ("label", "product", None),
-    ("level_in_rbw_dbm", "level (dBm/RBW)", ".2f"),
-    ("limit_dbm", "limit (dBm)", ".2f"),
-    ("margin_db", "margin (dB)", ".2f"),
-    ("limit_form", "limit", None),
-    ("rule", "rule", None),
-    ("band", "protected band", None),
-    ("stage", "largest from", None),
-    ("flags", "flags", None),
-]
-
-
 def _size(text: str) -> tuple[int, int]:
     try:
         w, h = (int(v) for v in text.lower().split("x"))
@@ -367,24 +316,6 @@ def check(lineup, fmt, combine, plot_file, plot_size):
     sys.exit(0 if outcome.passed else 1)
 
 
-BANDS_TABLE = [
-    ("name", "name", None),
-    ("kind", "kind", None),
-    ("entries", "entries", "d"),
-    ("status", "status of values", None),
-    ("title", "title", None),
-]
-
-RULES_TABLE = [
-    ("name", "entry", None),
-    ("start_mhz", "start (MHz)", ".6g"),
-    ("stop_mhz", "stop (MHz)", ".6g"),
-    ("limit", "limit", None),
-    ("status", "status", None),
-    ("source", "source", None),
-]
-
-
 @main.command(epilog=EPILOG)
 @click.argument("name", required=False)
 @click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
@@ -411,25 +342,6 @@ def bands(name, fmt):
         click.echo(title)
         click.echo(text_table(rows, table), nl=False)
         click.echo(PLANNING_NOTICE)
-
-
-DRIVE_TABLE = [
-    ("input_dbm", "input (dBm)", ".2f"),
-    ("output_dbm", "output (dBm)", ".2f"),
-    ("worst_margin_db", "worst margin (dB)", ".2f"),
-    ("worst_label", "worst product", None),
-    ("verdict", "", None),
-]
-
-TUNE_TABLE = [
-    ("carrier_mhz", "carrier (MHz)", ".6f"),
-    ("freq_mhz", "product (MHz)", ".6f"),
-    ("label", "product", None),
-    ("margin_db", "margin (dB)", ".2f"),
-    ("verdict", "", None),
-    ("band", "protected band", None),
-    ("rule", "rule", None),
-]
 
 
 def _progress(total: int, label: str):
@@ -572,10 +484,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
     elif fmt == "csv":
         click.echo(to_csv(rows), nl=False)
     else:
-        shown = dict(rows)
-        shown["carrier_mhz"] = [f / 1e6 for f in rows["carrier_hz"]]
-        shown["freq_mhz"] = [f / 1e6 for f in rows["freq_hz"]]
-        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
+        shown = tune_display(rows)
         click.echo(f"{lu.name}: {len(freqs)} channels, products that fail or land in a protected band")
         click.echo(text_table(shown, TUNE_TABLE), nl=False)
         if not sw.failing:
@@ -588,16 +497,6 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
             )
         click.echo(PLANNING_NOTICE)
     sys.exit(1 if sw.failing else 0)
-
-
-NEEDED_TABLE = [
-    ("freq_mhz", "freq (MHz)", ".6f"),
-    ("label", "product", None),
-    ("margin_db", "margin now (dB)", ".2f"),
-    ("rejection_needed_db", "more rejection needed (dB)", ".2f"),
-    ("rule", "rule", None),
-    ("band", "protected band", None),
-]
 
 
 @main.command(epilog=EPILOG)
@@ -642,7 +541,7 @@ def remedy(lineup, at_stage, margin, write_file, fmt):
         click.echo(PLANNING_NOTICE)
         return
     shown = dict(found.needed)
-    shown["freq_mhz"] = [f / 1e6 for f in shown["freq_hz"]]
+    shown["freq_mhz"] = mhz(shown["freq_hz"])
     click.echo(text_table(shown, NEEDED_TABLE), nl=False)
     if not found.found:
         click.echo(f"NO FILTER FOUND: {found.reason}.")
@@ -653,10 +552,7 @@ def remedy(lineup, at_stage, margin, write_file, fmt):
     where = f"after stage '{found.after}'" if found.after else "at the lineup input"
     click.echo(f"Insert {where}:")
     click.echo(found.snippet)
-    cols = found.filter.elements()
-    cols["l_nh"] = [None if v is None else v * 1e9 for v in cols["l_h"]]
-    cols["c_pf"] = [None if v is None else v * 1e12 for v in cols["c_f"]]
-    click.echo(text_table(cols, ELEMENT_TABLE), nl=False)
+    click.echo(text_table(element_display(found.filter.elements()), ELEMENT_TABLE), nl=False)
     word = "PASS" if out.passed else "FAIL"
     worst = out.rows
     i = out.worst

@@ -17,6 +17,7 @@ from .fields import Fields
 from .outputs import save_figure, write_atomic
 from .provenance import provenance
 from .stages.filter import Filter, read_prototype
+from .tables import element_display, mhz
 from .units import parse_freq_hz, parse_impedance_ohm
 
 # Points of a Touchstone file written for a synthesized ladder.
@@ -40,15 +41,12 @@ class FilterView:
         return self.stage.elements()
 
     def element_display(self) -> dict[str, list]:
-        cols = dict(self.elements)
-        cols["l_nh"] = [None if v is None else v * 1e9 for v in cols["l_h"]]
-        cols["c_pf"] = [None if v is None else v * 1e12 for v in cols["c_f"]]
-        return cols
+        return element_display(self.elements)
 
     def response_display(self) -> dict[str, list]:
         cols = dict(self.response)
-        cols["freq_mhz"] = [f / 1e6 for f in cols["freq_hz"]]
-        cols["flags"] = ["BEYOND DATA" if b else "" for b in cols["beyond_data"]]
+        cols["freq_mhz"] = mhz(cols["freq_hz"])
+        cols["flags"] = ["BEYOND-DATA" if b else "" for b in cols["beyond_data"]]
         return cols
 
     def summary(self) -> dict:

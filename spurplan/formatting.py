@@ -100,3 +100,32 @@ def _finite(value):
     if isinstance(value, list):
         return [_finite(v) for v in value]
     return value
+
+
+def html_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]], row_class=None) -> str:
+    """An HTML ``<table>`` of the same columns as :func:`text_table` (values escaped).
+
+    ``row_class(i)`` may return a CSS class for row i (for example "fail").
+    """
+    import html
+
+    head = "".join(f"<th>{html.escape(h)}</th>" for _, h, _ in spec)
+    n = len(next(iter(columns.values()), []))
+    body = []
+    for i in range(n):
+        cls = row_class(i) if row_class else None
+        attr = f' class="{cls}"' if cls else ""
+        cells = "".join(f"<td>{html.escape(_cell(columns[c][i], fmt))}</td>" for c, _, fmt in spec)
+        body.append(f"<tr{attr}>{cells}</tr>")
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+
+
+def markdown_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]) -> str:
+    """A Markdown pipe table of the same columns as :func:`text_table`."""
+    header = [h for _, h, _ in spec]
+    n = len(next(iter(columns.values()), []))
+    lines = ["| " + " | ".join(header) + " |", "|" + "|".join("---" for _ in header) + "|"]
+    for i in range(n):
+        cells = [_cell(columns[c][i], fmt).replace("|", "\\|") for c, _, fmt in spec]
+        lines.append("| " + " | ".join(cells) + " |")
+    return "\n".join(lines) + "\n"
