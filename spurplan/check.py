@@ -95,6 +95,33 @@ class CheckResult:
             "notice": PLANNING_NOTICE,
         }
 
+    def _repr_html_(self) -> str:
+        """Jupyter: the verdict, then the product table with failing rows marked."""
+        import html
+
+        from .formatting import html_table
+        from .tables import CHECK_TABLE, check_display
+
+        s = self.summary()
+        if s["worst"] is None:
+            verdict = "no product falls under a rule"
+        else:
+            w = s["worst"]
+            verdict = (
+                f"{'PASS' if self.passed else 'FAIL'}: worst margin {w['margin_db']:+.2f} dB, {w['label']} at "
+                f"{w['freq_hz'] / 1e6:.6f} MHz under {w['rule']}"
+            )
+        failing = [p is False for p in self.rows["pass"]]
+        table = html_table(check_display(self.rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None)
+        style = "<style>tr.fail td {background: #fde2e2; font-weight: bold}</style>"
+        return f"{style}<p><b>{html.escape(s['lineup'])}</b></p><p><b>{html.escape(verdict)}</b></p>{table}"
+
+    def plot(self, size_px=(1200, 700)):
+        """The output spectrum against the mask; returns a matplotlib Figure."""
+        from .plots import check_figure
+
+        return check_figure(self, size_px)
+
     def table(self):
         """The rows as a pandas DataFrame."""
         import pandas as pd

@@ -566,5 +566,29 @@ def remedy(lineup, at_stage, margin, write_file, fmt):
     click.echo(PLANNING_NOTICE)
 
 
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option(
+    "-o",
+    "--output",
+    "out_file",
+    required=True,
+    type=click.Path(dir_okay=False),
+    help="FILE.html (self-contained) or FILE.md (figures beside it).",
+)
+def report(lineup, out_file):
+    """Write a design-review report of LINEUP: budget, check, figures, assumptions, cautions.
+
+    Sweeps are added where the lineup's [report] table asks for them.
+    """
+    from .report import write_report
+
+    lu = _load(lineup)
+    path = write_report(lu, out_file)
+    _warn(lu.run())
+    click.echo(f"wrote {path}")
+    click.echo(PLANNING_NOTICE)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

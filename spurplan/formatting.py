@@ -18,7 +18,9 @@ def _cell(value, fmt: str | None) -> str:
     if isinstance(value, float) and math.isinf(value):
         return "inf" if value > 0 else "-inf"
     if fmt and isinstance(value, (int, float)) and not isinstance(value, bool):
-        return format(value, fmt)
+        text = format(value, fmt)
+        # A value that rounds to zero reads "0.00", not "-0.00".
+        return text[1:] if text.startswith("-") and not any(ch in "123456789" for ch in text) else text
     if isinstance(value, bool):
         return "yes" if value else ""
     if isinstance(value, list):

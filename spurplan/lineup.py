@@ -71,6 +71,22 @@ class Analysis:
 
 
 @dataclass(frozen=True)
+class ReportSpec:
+    """What the design-review report adds beyond the check (``[report]`` in the lineup).
+
+    Attributes
+    ----------
+    drive : (start_dbm, stop_dbm, step_db) or None
+        A drive sweep of the strongest carrier's input power.
+    tune : (start_hz, stop_hz, step_hz) or None
+        A tuning sweep of the strongest carrier's frequency.
+    """
+
+    drive: tuple[float, float, float] | None = None
+    tune: tuple[float, float, float] | None = None
+
+
+@dataclass(frozen=True)
 class Lineup:
     """A transmitter lineup.
 
@@ -99,6 +115,7 @@ class Lineup:
     source: Path | None = None
     notes: tuple[str, ...] = field(default=())
     mask: object = None
+    report: ReportSpec | None = None
 
     @property
     def tone_names(self) -> list[str]:

@@ -13,6 +13,7 @@ File layout (key names are the interface: extend, don't rename)::
     [analysis]    max_order, combine, beyond_data, linear_sections
     [mask]        use, files, antenna_gain, spurious_boundary, [[mask.rule]], [[mask.band]]
                   (see spurplan.mask_files)
+    [report]      drive = {start, stop, step}, tune = {start, stop, step}
 """
 
 from __future__ import annotations
@@ -24,12 +25,12 @@ from . import engine
 from .errors import LineupError
 from .fields import Fields
 from .filters import BEYOND_POLICIES
-from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup
+from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup, ReportSpec
 from .mask_files import read_mask
 from .stages import KINDS, LoadContext
-from .units import parse_angle_rad, parse_freq_hz, parse_impedance_ohm, parse_power_dbm
+from .units import parse_angle_rad, parse_freq_hz, parse_gain_db, parse_impedance_ohm, parse_power_dbm
 
-TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask")
+TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask", "report")
 # The torus engine's cost grows as (grid)^tones; beyond this many base tones a
 # check no longer fits a laptop's memory at useful orders.
 MAX_CARRIERS = 3
@@ -109,6 +110,7 @@ def from_dict(
     _check_size(stages, len(carriers), analysis, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
+    report = _report(_table(doc, "report", name), name) if "report" in doc else None
     return Lineup(
         name=title,
         carriers=carriers,
@@ -118,6 +120,7 @@ def from_dict(
         source=source,
         notes=notes,
         mask=mask,
+        report=report,
     )
 
 
@@ -157,6 +160,33 @@ def _analysis(table, file: str) -> Analysis:
     sections = f.text("linear_sections", default="matched", choices=LINEAR_SECTIONS)
     f.finish()
     return Analysis(max_order=max_order, combine=combine, beyond_data=beyond, linear_sections=sections)
+
+
+def _report(table, file: str) -> ReportSpec:
+    """``[report]``: optional sweeps, ``drive = {start, stop, step}``, ``tune = {start, stop, step}``."""
+    from .sweep import SweepError, sweep_points
+
+    f = Fields(table, file, "[report]")
+    out = {}
+    for key, parse, unit, what in (
+        ("drive", parse_power_dbm, "dBm", "drive"),
+        ("tune", parse_freq_hz, "Hz", "channel"),
+    ):
+        raw = f.raw(key)
+        if raw is None:
+            continue
+        sub = Fields(raw, file, f"[report] {key}")
+        start = sub.quantity("start", parse, required=True)
+        stop = sub.quantity("stop", parse, required=True)
+        step = sub.quantity("step", parse_gain_db if key == "drive" else parse_freq_hz, required=True)
+        sub.finish()
+        try:
+            sweep_points(start, stop, step, what, unit)
+        except SweepError as exc:
+            raise f.error(key, str(exc).replace("--", "")) from None
+        out[key] = (start, stop, step)
+    f.finish()
+    return ReportSpec(**out)
 
 
 def _stage(table, file: str, index: int, context: LoadContext):

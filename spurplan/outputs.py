@@ -30,11 +30,19 @@ def write_atomic(path: str | Path, data: bytes | str) -> Path:
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(payload)
+        # mkstemp makes the file private (0600); give it the usual permissions.
+        os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
     return path
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def save_figure(fig, path: str | Path, dpi: int = 120) -> Path:

@@ -155,6 +155,11 @@ def save_check_plot(outcome, path, size_px=(1200, 700)):
     return _save(check_figure(outcome, size_px), path)
 
 
+def close(fig) -> None:
+    """Release a figure made here (pyplot keeps figures alive until closed)."""
+    _pyplot().close(fig)
+
+
 def _save(fig, path, dpi: int = 100):
     from .outputs import save_figure
 
@@ -264,3 +269,25 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
 
 def save_tune_plot(sweep, path, size_px=(1200, 700)):
     return _save(tune_figure(sweep, size_px), path)
+
+
+def spectrum_figure(result, stage=None, size_px=(1200, 600), dpi: int = 100):
+    """The products at a node as stems (dBm against frequency)."""
+    plt = _pyplot()
+    rows = result.product_rows(stage)
+    freq = np.asarray(rows["freq_hz"], dtype=float)
+    level = np.asarray(rows["level_dbm"], dtype=float)
+    carrier = np.array([k == "carrier" for k in rows["kind"]], dtype=bool)
+    scale, unit = _freq_axis(freq)
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    bottom = max(float(level.min()) - 10.0, -250.0) if level.size else -150.0
+    ax.vlines(freq[~carrier] / scale, bottom, level[~carrier], color="tab:blue", lw=1.2)
+    ax.plot(freq[~carrier] / scale, level[~carrier], "o", color="tab:blue", ms=3, label="products")
+    ax.vlines(freq[carrier] / scale, bottom, level[carrier], color="tab:green", lw=2.0, label="carrier(s)")
+    ax.set_ylim(bottom, float(level.max()) + 5 if level.size else 0)
+    ax.set_xlabel(f"frequency ({unit})")
+    ax.set_ylabel("level (dBm)")
+    ax.set_title(f"{result.lineup.name}: spectrum at {stage or 'the output'} (planning estimate)")
+    ax.grid(True, alpha=0.35)
+    ax.legend(loc="upper right", fontsize=8)
+    return fig

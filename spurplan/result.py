@@ -28,6 +28,13 @@ from .units import ratio_db, vpeak_to_dbm
 # engine (float64 FFTs reach about -300 dBc), not products.
 REPORT_FLOOR_DBC = -200.0
 
+
+def _escape(text) -> str:
+    import html
+
+    return html.escape(str(text))
+
+
 PRODUCT_COLUMNS = [
     "freq_hz",
     "level_dbm",
@@ -165,6 +172,22 @@ class Result:
             "not_converged": [not_conv] * n,
             "beyond_data": lv.beyond[0, keep].tolist(),
         }
+
+    def _repr_html_(self) -> str:
+        """Jupyter: the products at the output as an HTML table."""
+        from .formatting import html_table
+        from .tables import PRODUCT_TABLE, product_display
+
+        rows = self.product_rows()
+        s = self.summary()
+        head = f"<p><b>{_escape(s['lineup'])}</b>: products at the output (combine = {s['combine']})</p>"
+        return head + html_table(product_display(rows), PRODUCT_TABLE)
+
+    def plot(self, stage: str | None = None):
+        """The spectrum at a node as stems; returns a matplotlib Figure."""
+        from .plots import spectrum_figure
+
+        return spectrum_figure(self, stage)
 
     @property
     def extrapolated_stages(self) -> list[str]:

@@ -152,6 +152,26 @@ class DriveSweep:
             "model_extrapolated": self.extrapolated.tolist(),
         }
 
+    def plot(self, size_px=(1200, 700)):
+        """Products and limits against drive; returns a matplotlib Figure."""
+        from .plots import drive_figure
+
+        return drive_figure(self, size_px)
+
+    def table(self):
+        """:meth:`rows` as a pandas DataFrame."""
+        import pandas as pd
+
+        return pd.DataFrame(self.rows())
+
+    def _repr_html_(self) -> str:
+        from .formatting import html_table
+        from .tables import DRIVE_TABLE, drive_display
+
+        return f"<p><b>{self.status}</b>: {self.summary()}</p>" + html_table(
+            drive_display(self.rows()), DRIVE_TABLE
+        )
+
     def summary(self) -> dict:
         return {
             "lineup": self.lineup.name,
@@ -309,6 +329,25 @@ class TuneSweep:
     worst_margin_db: np.ndarray
     rows: dict
     failing: list
+
+    def plot(self, size_px=(1200, 700)):
+        """Product frequency against carrier frequency; returns a matplotlib Figure."""
+        from .plots import tune_figure
+
+        return tune_figure(self, size_px)
+
+    def table(self):
+        """:attr:`rows` as a pandas DataFrame."""
+        import pandas as pd
+
+        return pd.DataFrame(self.rows)
+
+    def _repr_html_(self) -> str:
+        from .formatting import html_table
+        from .tables import TUNE_TABLE, tune_display
+
+        head = "every channel passes" if not self.failing else f"{len(self.failing)} failing range(s)"
+        return f"<p><b>{head}</b></p>" + html_table(tune_display(self.rows), TUNE_TABLE)
 
     def summary(self) -> dict:
         return {
