@@ -74,9 +74,16 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     lineup = result.lineup
     stages = lineup.stages
     strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
-    col = _carrier_column(result, strongest)
-    # Small-signal gain at the carrier: the figure for amplifiers, |S21| for filters.
-    gains = [float(v) for v in ratio_db(result.propagation.response[:, batch, col])]
+    # The carrier's product index at each node (a mixer moves it to the wanted product).
+    col = [result.carrier_columns(i)[strongest] for i in range(len(stages) + 1)]
+    # Small-signal gain at the carrier: the figure for amplifiers and mixers (conversion
+    # gain), |S21| for filters.
+    gains = [
+        float(s.conversion_gain_db)
+        if hasattr(s, "conversion_gain_db")
+        else float(ratio_db(result.propagation.response[i, batch, col[i]]))
+        for i, s in enumerate(stages)
+    ]
     oip3 = [s.figures.oip3_dbm if isinstance(s, Amplifier) else None for s in stages]
     iip3 = cascade_iip3_dbm(gains, oip3)
     cols = {c: [] for c in BUDGET_COLUMNS}
@@ -84,8 +91,8 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     for i, stage in enumerate(stages):
         node_in = result.propagation.nodes[i, batch]
         node_out = result.propagation.nodes[i + 1, batch]
-        p_in = float(vpeak_to_dbm(node_in[col], lineup.r_ohm))
-        p_out = float(vpeak_to_dbm(node_out[col], lineup.r_ohm))
+        p_in = float(vpeak_to_dbm(node_in[col[i]], lineup.r_ohm))
+        p_out = float(vpeak_to_dbm(node_out[col[i + 1]], lineup.r_ohm))
         cum += gains[i]
         p1db, source = _p1db(stage, lineup.r_ohm)
         cols["stage"].append(stage.name)
@@ -102,12 +109,6 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         cols["p1db_from"].append(source)
         cols["headroom_db"].append(None if p1db is None else p1db - p_out)
     return cols
-
-
-def _carrier_column(result, k: int) -> int:
-    unit = np.zeros(result.mix.shape[1], dtype=int)
-    unit[k] = 1
-    return int(np.nonzero((result.mix == unit).all(axis=1))[0][0])
 
 
 def _p1db(stage, r_ohm: float) -> tuple[float | None, str]:

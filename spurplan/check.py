@@ -198,16 +198,18 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     freq, level = levels.freq_hz, levels.level_dbm
     product = levels.valid & ~levels.is_carrier
     p_dbm = levels.carrier_total_dbm
-    tones = result.tone_freqs_hz
+    carriers_hz = result.carrier_freqs_hz()
     strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
-    f_carrier = tones[:, strongest]
-    bw_k = np.array([c.bandwidth_hz or 0.0 for c in lineup.carriers])
+    f_carrier = carriers_hz[:, strongest]
+    # Occupied bandwidth per base tone: the carriers' own, none for an LO.
+    n_lo = len(lineup.mixers)
+    bw_k = np.array([0.0] * n_lo + [c.bandwidth_hz or 0.0 for c in lineup.carriers])
     bandwidth = np.abs(result.mix[levels.rep]).astype(float) @ bw_k
 
     domain = np.where(product, 0, -1)
-    for k, width in enumerate(bw_k):
-        if width:
-            near = np.abs(freq - tones[:, k : k + 1]) < mask.spurious_boundary * width
+    for k, c in enumerate(lineup.carriers):
+        if c.bandwidth_hz:
+            near = np.abs(freq - carriers_hz[:, k : k + 1]) < mask.spurious_boundary * c.bandwidth_hz
             domain = np.where(product & near, 1, domain)
     spurious = domain == 0
 
@@ -304,7 +306,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
             out[key].append(rows[key][i])
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
-    f_carrier = max(lineup.carriers, key=lambda c: c.power_dbm).freq_hz
+    f_carrier = output_carrier_hz(result, batch)
     return CheckResult(
         result=result,
         rows=out,
@@ -322,13 +324,18 @@ class _Rows:
     result: object
     rows: slice
 
-    @property
-    def tone_freqs_hz(self):
-        return self.result.tone_freqs_hz[self.rows]
+    def carrier_freqs_hz(self):
+        return self.result.carrier_freqs_hz()[self.rows]
 
     @property
     def mix(self):
         return self.result.mix
+
+
+def output_carrier_hz(result, batch: int = 0) -> float:
+    """Frequency of the strongest carrier at the lineup output (after mixers, the wanted product)."""
+    strongest = int(np.argmax([c.power_dbm for c in result.lineup.carriers]))
+    return float(result.carrier_freqs_hz()[batch, strongest])
 
 
 def bands_at(mask, freq_hz: float) -> str | None:
@@ -347,7 +354,7 @@ def _covers(rule, examined, freq: np.ndarray, f_carrier) -> np.ndarray:
 def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none."""
     lineup = outcome.result.lineup
-    f_carrier = max(lineup.carriers, key=lambda c: c.power_dbm).freq_hz
+    f_carrier = output_carrier_hz(outcome.result)
     freq_hz = np.asarray(freq_hz, dtype=float)
     gain = lineup.mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
@@ -363,7 +370,7 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
 def _coverage_notes(lineup, mask, f_carrier: float) -> list[str]:
     """Warn where the analysis order does not reach a rule set's examined range."""
     notes = []
-    reach = lineup.analysis.max_order * max(c.freq_hz for c in lineup.carriers)
+    reach = lineup.analysis.max_order * float(np.max(lineup.tone_freqs_hz))
     for s in mask.sets:
         top = s.examined.upper_hz(f_carrier)
         if s.rules and math.isfinite(top) and top > reach * (1 + 1e-9):

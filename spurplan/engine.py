@@ -72,17 +72,40 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     grid[(slice(None), *pos)] = 0.5 * x_phasors
     grid[(slice(None), *neg)] += 0.5 * np.conj(x_phasors)
     samples = sfft.ifftn(grid, axes=axes, norm="forward").real
-    out = sfft.rfftn(transfer(samples), axes=axes, norm="forward")
+    flat = samples.reshape(batch, -1)
+    return torus_coefficients(transfer(samples), mix), flat.min(axis=1), flat.max(axis=1)
+
+
+def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
+    """Peak phasors (B, P) of the canonical products in real torus samples (B, N, ..., N)."""
+    k = mix.shape[1]
+    n = samples.shape[1]
+    out = sfft.rfftn(samples, axes=tuple(range(1, k + 1)), norm="forward")
     # rfftn keeps last-axis indices 0 .. n//2: read m directly where its last entry
     # is >= 0, else read -m and conjugate.
-    last = mix[:, -1]
-    direct = last >= 0
+    direct = mix[:, -1] >= 0
     src = np.where(direct[:, None], mix, -mix)
     idx = (*tuple(src[:, i] % n for i in range(k - 1)), src[:, -1])
     coeff = out[(slice(None), *idx)]
-    coeff = np.where(direct[None, :], coeff, np.conj(coeff))
-    flat = samples.reshape(batch, -1)
-    return 2.0 * coeff, flat.min(axis=1), flat.max(axis=1)
+    return 2.0 * np.where(direct[None, :], coeff, np.conj(coeff))
+
+
+def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, n: int) -> np.ndarray:
+    """Analytic signal on the torus: ``sum X_m exp(j m . theta)`` over positive frequencies.
+
+    Each product enters once, at its positive frequency (the conjugate phasor at
+    ``-m`` where ``m . f < 0``), so the real part is the signal and the imaginary part
+    its Hilbert transform.  Returns complex samples (B, N, ..., N).
+    """
+    batch = x_phasors.shape[0]
+    k = mix.shape[1]
+    grid = np.zeros((batch,) + (n,) * k, dtype=complex)
+    positive = freqs_hz >= 0
+    for sign, take in ((1, positive), (-1, ~positive)):
+        vals = np.where(take, x_phasors if sign > 0 else np.conj(x_phasors), 0.0)
+        idx = tuple((sign * mix[:, i]) % n for i in range(k))
+        grid[(slice(None), *idx)] += vals
+    return sfft.ifftn(grid, axes=tuple(range(1, k + 1)), norm="forward")
 
 
 def alias_free_grid(degree: int, m_in: int, m_keep: int) -> int:
@@ -254,6 +277,12 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
         transfer = stage.transfer
         if transfer is None:
             y = h * x
+            extrap.append(np.zeros(len(x), dtype=bool))
+            conv.append(np.ones(len(x), dtype=bool))
+        elif hasattr(transfer, "convert"):
+            # A frequency converter (mixer): it makes a new spectrum from its input and
+            # its own LO, with no linear passage (h = 0).
+            y = transfer.convert(x, mix, freqs_hz)
             extrap.append(np.zeros(len(x), dtype=bool))
             conv.append(np.ones(len(x), dtype=bool))
         else:

@@ -15,7 +15,7 @@ import numpy as np
 from . import engine
 from .errors import LineupError, OutOfDataRange
 from .sections import with_sections
-from .spectrum import default_tone_names, label, mixing_vectors, product_freqs_hz
+from .spectrum import default_tone_names, label, mixing_vectors, product_freqs_hz, product_index
 from .units import dbm_to_vpeak
 
 Combine = Literal["worst", "power", "phase"]
@@ -118,8 +118,47 @@ class Lineup:
     report: ReportSpec | None = None
 
     @property
+    def mixers(self) -> list:
+        """Mixer stages in signal order; mixer i owns base tone i (its LO)."""
+        return [s for s in self.stages if getattr(s, "lo_freq_hz", None) is not None]
+
+    @property
+    def n_tones(self) -> int:
+        """Base tones of the engine: every mixer's LO, then the carriers."""
+        return len(self.mixers) + len(self.carriers)
+
+    @property
+    def tone_freqs_hz(self) -> np.ndarray:
+        return np.array([m.lo_freq_hz for m in self.mixers] + [c.freq_hz for c in self.carriers])
+
+    @property
     def tone_names(self) -> list[str]:
-        return default_tone_names(len(self.carriers))
+        n_lo = len(self.mixers)
+        if not n_lo:
+            return default_tone_names(len(self.carriers))
+        los = ["LO"] if n_lo == 1 else [f"LO{i + 1}" for i in range(n_lo)]
+        ifs = ["IF"] if len(self.carriers) == 1 else [f"IF{k + 1}" for k in range(len(self.carriers))]
+        return los + ifs
+
+    def carrier_vectors(self, node: int | None = None) -> np.ndarray:
+        """Mixing vectors (K_c, K) of the carriers at the output of stage ``node``.
+
+        At the input they are unit vectors; every mixer passed maps a carrier v to
+        its wanted product, ``LO + v`` (upper sideband) or ``LO - v`` (lower).
+        """
+        node = len(self.stages) if node is None else node
+        n_lo = len(self.mixers)
+        vecs = np.zeros((len(self.carriers), self.n_tones), dtype=np.int64)
+        vecs[np.arange(len(self.carriers)), n_lo + np.arange(len(self.carriers))] = 1
+        lo_i = 0
+        for stage in self.stages[:node]:
+            if getattr(stage, "lo_freq_hz", None) is None:
+                continue
+            lo = np.zeros(self.n_tones, dtype=np.int64)
+            lo[lo_i] = 1
+            vecs = lo + vecs if stage.sideband == "upper" else lo - vecs
+            lo_i += 1
+        return vecs
 
     def stage_index(self, name: str) -> int:
         """1-based position of the stage called ``name`` (node number)."""
@@ -141,7 +180,7 @@ class Lineup:
         offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
         x = np.zeros((offset.size, len(mix)), dtype=complex)
         for k, c in enumerate(self.carriers):
-            col = int(np.nonzero((mix == np.eye(len(self.carriers), dtype=int)[k]).all(axis=1))[0][0])
+            col = product_index(mix, self.carrier_vectors(0)[k])
             amp = dbm_to_vpeak(c.power_dbm + offset, self.r_ohm)
             x[:, col] = amp * np.exp(1j * c.phase_rad)
         return x
@@ -154,8 +193,8 @@ class Lineup:
         drive_offset_db : float or ndarray (B,)
             Added to every carrier's input power (dB); an array makes a batch.
         tone_freqs_hz : ndarray (B, K) or (K,), optional
-            Carrier frequencies per batch element (a tuning sweep); default the
-            lineup's own.
+            Base-tone frequencies per batch element (a tuning sweep), in the order of
+            :attr:`tone_freqs_hz` (LOs, then carriers); default the lineup's own.
 
         Returns
         -------
@@ -163,13 +202,13 @@ class Lineup:
         """
         from .result import Result
 
-        mix = mixing_vectors(len(self.carriers), self.analysis.max_order)
+        mix = mixing_vectors(self.n_tones, self.analysis.max_order)
         if tone_freqs_hz is None:
-            tone_freqs_hz = [c.freq_hz for c in self.carriers]
+            tone_freqs_hz = self.tone_freqs_hz
         tones = np.atleast_2d(np.asarray(tone_freqs_hz, dtype=float))
         offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
         batch = max(len(tones), len(offset))
-        tones = np.broadcast_to(tones, (batch, len(self.carriers)))
+        tones = np.broadcast_to(tones, (batch, self.n_tones))
         x_in = self.input_phasors(mix, np.broadcast_to(offset, (batch,)))
         freqs = product_freqs_hz(mix, tones)
         stages = self.stages

@@ -107,7 +107,12 @@ def from_dict(
             )
         seen_names.add(stage.name)
         stages.append(stage)
-    _check_size(stages, len(carriers), analysis, name)
+    lo_index = 0
+    for i, stage in enumerate(stages):
+        if getattr(stage, "lo_freq_hz", None) is not None:
+            stages[i] = stage.with_lo_index(lo_index)
+            lo_index += 1
+    _check_size(stages, len(carriers) + lo_index, analysis, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
     report = _report(_table(doc, "report", name), name) if "report" in doc else None
@@ -208,6 +213,9 @@ def _stage(table, file: str, index: int, context: LoadContext):
 
 def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
     degrees = [s.transfer.degree or 8 for s in stages if s.transfer is not None]
+    degrees += [
+        max(abs(n) + m for m, n, _ in s.transfer.terms) for s in stages if hasattr(s.transfer, "terms")
+    ]
     degree = max(degrees, default=1)
     m = analysis.max_order
     points = engine.alias_free_grid(degree, m, m) ** n_tones

@@ -66,8 +66,12 @@ class NodeLevels:
             return 10.0 * np.log10(mw)
 
 
-def node_levels(result, node: int, combine: str, rows=slice(None)) -> NodeLevels:
-    """Merge and combine the products at ``node`` of a run, for the batch ``rows``."""
+def node_levels(result, node: int, combine: str, rows=slice(None), carrier_columns=None) -> NodeLevels:
+    """Merge and combine the products at ``node`` of a run, for the batch ``rows``.
+
+    ``carrier_columns`` are the product indices of the carriers at the node (after a
+    mixer, the wanted products); default the base tones.
+    """
     prop = result.propagation
     mix = result.mix
     f = result.freqs_hz[rows]
@@ -99,7 +103,11 @@ def node_levels(result, node: int, combine: str, rows=slice(None)) -> NodeLevels
         level = per_slot(np.abs(contrib).sum(axis=0))
     else:
         level = np.sqrt(per_slot((np.abs(contrib) ** 2).sum(axis=0)))
-    tones = np.broadcast_to(tone_index(mix) >= 0, f.shape)
+    carrier = tone_index(mix) >= 0
+    if carrier_columns is not None:
+        carrier = np.zeros(n_prod, dtype=bool)
+        carrier[list(carrier_columns)] = True
+    tones = np.broadcast_to(carrier, f.shape)
     is_carrier = per_slot(tones) > 0
     level = np.where(is_carrier, modelled, level)
     strength = np.abs(coherent)

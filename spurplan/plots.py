@@ -90,7 +90,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
         [r if r is not None else t for r, t in zip(rows["level_in_rbw_dbm"], rows["level_dbm"], strict=True)],
         dtype=float,
     )
-    carriers = [c.freq_hz for c in outcome.result.lineup.carriers]
+    carriers = list(outcome.result.carrier_freqs_hz()[0])
     top = max(float(freq.max()) if freq.size else 0.0, max(carriers)) * 1.08
     scale, unit = _freq_axis(np.array([top]))
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
@@ -259,7 +259,7 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
             ax.plot(xc[bad] / sx, f[bad] / sy, "s", color="tab:red", ms=3)
     for r in sweep.failing:
         ax.axvspan(r["start_hz"] / sx, r["stop_hz"] / sx, color="tab:red", alpha=0.08, lw=0)
-    ax.set_xlabel(f"carrier frequency ({ux})")
+    ax.set_xlabel(f"{'LO' if sweep.lineup.mixers else 'carrier'} frequency ({ux})")
     ax.set_ylabel(f"product frequency ({uy}); red: the product fails")
     verdict = "every channel passes" if not sweep.failing else f"{len(sweep.failing)} failing range(s)"
     ax.set_title(f"{sweep.lineup.name}: tuning sweep, {verdict} (planning estimate)")

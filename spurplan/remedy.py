@@ -156,7 +156,7 @@ def remedy(
 
     if not needed["freq_hz"]:
         return result(reason=f"the lineup already meets the mask with {margin_db:g} dB margin")
-    carriers = [c.freq_hz for c in lineup.carriers]
+    carriers = list(before.result.carrier_freqs_hz()[0])
     lo, hi = min(carriers), max(carriers)
     above = [f for f in needed["freq_hz"] if f > hi]
     below = [f for f in needed["freq_hz"] if f < lo]

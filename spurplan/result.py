@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .node_table import node_levels
-from .spectrum import label, labels, orders, tone_index
+from .spectrum import label, labels, orders, product_index
 from .units import ratio_db, vpeak_to_dbm
 
 # Rows more than this far below the strongest carrier are numerical noise of the
@@ -81,20 +81,23 @@ class Result:
     def source_names(self) -> list[str]:
         return ["input"] + [s.name for s in self.lineup.stages]
 
+    def carrier_columns(self, node: int) -> list[int]:
+        """Product index of each carrier at ``node`` (after mixers: the wanted products)."""
+        return [product_index(self.mix, v) for v in self.lineup.carrier_vectors(node)]
+
+    def carrier_freqs_hz(self, stage: str | None = None) -> np.ndarray:
+        """Frequency (Hz) of each carrier at a node for every batch element; (B, K_c)."""
+        vecs = self.lineup.carrier_vectors(self.node_index(stage)).astype(float)
+        return np.abs(self.tone_freqs_hz @ vecs.T)
+
     def carrier_levels_dbm(self, stage: str | None = None, batch: int = 0) -> np.ndarray:
-        """Modelled level (dBm) of each carrier at a node; shape (K,)."""
-        node = self.node_index(stage)
-        tones = tone_index(self.mix)
-        cols = [int(np.nonzero(tones == k)[0][0]) for k in range(self.mix.shape[1])]
-        x = self.propagation.nodes[node, batch, cols]
-        return vpeak_to_dbm(x, self.lineup.r_ohm)
+        """Modelled level (dBm) of each carrier at a node; shape (K_c,)."""
+        return self.carrier_levels_dbm_batch(stage)[batch]
 
     def carrier_levels_dbm_batch(self, stage: str | None = None) -> np.ndarray:
-        """Modelled level (dBm) of each carrier at a node for every batch element; (B, K)."""
+        """Modelled level (dBm) of each carrier at a node for every batch element; (B, K_c)."""
         node = self.node_index(stage)
-        tones = tone_index(self.mix)
-        cols = [int(np.nonzero(tones == k)[0][0]) for k in range(self.mix.shape[1])]
-        return vpeak_to_dbm(self.propagation.nodes[node][:, cols], self.lineup.r_ohm)
+        return vpeak_to_dbm(self.propagation.nodes[node][:, self.carrier_columns(node)], self.lineup.r_ohm)
 
     def slot_labels(self, levels, row: int = 0) -> list[str]:
         """Label of every slot of a :meth:`levels` row ("" for unused slots)."""
@@ -130,7 +133,10 @@ class Result:
 
         See :class:`spurplan.node_table.NodeLevels`.
         """
-        return node_levels(self, self.node_index(stage), combine or self.lineup.analysis.combine, rows)
+        node = self.node_index(stage)
+        return node_levels(
+            self, node, combine or self.lineup.analysis.combine, rows, self.carrier_columns(node)
+        )
 
     def product_rows(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
         """The rows of :meth:`products` as a dict of columns (lists), without pandas."""

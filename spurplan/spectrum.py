@@ -77,6 +77,15 @@ def product_freqs_hz(mix: np.ndarray, tone_freqs_hz: np.ndarray) -> np.ndarray:
     return np.asarray(tone_freqs_hz, dtype=float) @ mix.T.astype(float)
 
 
+def product_index(mix: np.ndarray, vector) -> int:
+    """Row of ``mix`` holding ``vector`` or its negative (the canonical representative)."""
+    v = np.asarray(vector)
+    hit = np.nonzero((mix == v).all(axis=1) | (mix == -v).all(axis=1))[0]
+    if hit.size == 0:
+        raise ValueError(f"mixing vector {v.tolist()} is beyond the analysis order")
+    return int(hit[0])
+
+
 def tone_index(mix: np.ndarray) -> np.ndarray:
     """Index of the base tone each product *is*, or -1 for true products; shape (P,)."""
     out = np.full(len(mix), -1, dtype=np.int64)

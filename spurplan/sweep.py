@@ -349,9 +349,15 @@ class TuneSweep:
         head = "every channel passes" if not self.failing else f"{len(self.failing)} failing range(s)"
         return f"<p><b>{head}</b></p>" + html_table(tune_display(self.rows), TUNE_TABLE)
 
+    @property
+    def variable(self) -> str:
+        """What was swept: "LO" (first mixer's LO) or "carrier"."""
+        return "LO" if self.lineup.mixers else "carrier"
+
     def summary(self) -> dict:
         return {
             "lineup": self.lineup.name,
+            "swept": self.variable,
             "channels": len(self.carrier_hz),
             "pass": not self.failing,
             "failing_ranges": self.failing,
@@ -361,18 +367,29 @@ class TuneSweep:
 def tune_sweep(
     lineup, carrier_hz: np.ndarray, *, combine=None, refine: bool = True, progress=None
 ) -> TuneSweep:
-    """Sweep the carrier frequency at fixed drive (every carrier moves together)."""
+    """Sweep the tuning at fixed drive.
+
+    Without a mixer the swept frequency is the strongest carrier's (every carrier moves
+    with it); with mixers it is the first mixer's LO (IF and other LOs fixed), which is
+    how an upconverting transmitter tunes.  ``carrier_hz`` holds the swept frequency.
+    """
     mask = require_mask(lineup)
-    k = _strongest(lineup)
-    base = np.array([c.freq_hz for c in lineup.carriers])
+    base = lineup.tone_freqs_hz
     carrier_hz = np.asarray(carrier_hz, dtype=float)
     if carrier_hz.size == 0:
         raise SweepError("no channels: expected at least one carrier frequency")
-    if np.any(carrier_hz + (base.min() - base[k]) <= 0):
-        raise SweepError("a channel puts a carrier at or below 0 Hz: expected positive frequencies")
+    if lineup.mixers:
+        shift = np.zeros(len(base))
+        shift[0] = 1.0
+        ref = base[0]
+    else:
+        shift = np.ones(len(base))
+        ref = base[len(lineup.mixers) + _strongest(lineup)]
+    if np.any(carrier_hz[:, None] + (base - ref)[None, :] * shift <= 0):
+        raise SweepError("a channel puts a tone at or below 0 Hz: expected positive frequencies")
 
     def tones_for(f):
-        return f[:, None] + (base - base[k])[None, :]
+        return base[None, :] + (f[:, None] - ref) * shift[None, :]
 
     def one_chunk(chunk):
         result = lineup.run(tone_freqs_hz=tones_for(chunk))

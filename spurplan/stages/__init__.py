@@ -23,11 +23,13 @@ from .amplifier import Amplifier
 from .attenuator import Attenuator
 from .base import LoadContext, Stage
 from .filter import Filter
+from .mixer import Mixer
 
 KINDS: dict[str, type] = {
     "amplifier": Amplifier,
     "attenuator": Attenuator,
     "filter": Filter,
+    "mixer": Mixer,
 }
 
-__all__ = ["KINDS", "Amplifier", "Attenuator", "Filter", "LoadContext", "Stage"]
+__all__ = ["KINDS", "Amplifier", "Attenuator", "Filter", "LoadContext", "Mixer", "Stage"]
