@@ -590,5 +590,66 @@ def report(lineup, out_file):
     click.echo(PLANNING_NOTICE)
 
 
+@main.command(epilog=EPILOG)
+@_lineup_arg
+@click.option("--stage", required=True, help="The mixer stage.")
+@click.option(
+    "--max-order", default=7, show_default=True, type=click.IntRange(1, 15), help="Highest m + |n| shown."
+)
+@click.option("--all", "show_all", is_flag=True, help="Also list products the model puts at no level.")
+@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@click.option(
+    "--plot",
+    "plot_file",
+    type=click.Path(dir_okay=False),
+    help="Draw product frequency against LO frequency.",
+)
+@click.option("--lo-start", help="LO range for the plot, e.g. '1.1 GHz' (default: LO -20 %).")
+@click.option("--lo-stop", help="LO range for the plot (default: LO +20 %).")
+@click.option(
+    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
+)
+def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
+    """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
+    from .formatting import text_table, to_csv, to_json
+    from .spur_chart import spur_chart
+    from .tables import SPUR_TABLE, spur_display
+
+    size = _size(plot_size)
+    lu = _load(lineup)
+    chart = spur_chart(lu, stage, max_order)
+    rows = chart.rows
+    if not show_all:
+        keep = [
+            i
+            for i, (t, v) in enumerate(zip(rows["table_dbc"], rows["model_dbm"], strict=True))
+            if t is not None or v is not None
+        ]
+        rows = {c: [vals[i] for i in keep] for c, vals in rows.items()}
+    if plot_file:
+        from .plots import save_spur_plot
+
+        lo = chart.mixer.lo_freq_hz
+        span = (
+            _parse("freq", lo_start, "--lo-start") if lo_start else 0.8 * lo,
+            _parse("freq", lo_stop, "--lo-stop") if lo_stop else 1.2 * lo,
+        )
+        save_spur_plot(chart, span, plot_file, size)
+    if fmt == "json":
+        click.echo(to_json(chart.summary(), "products", rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        m = chart.mixer
+        click.echo(
+            f"{lu.name}: mixer '{m.name}', LO {m.lo_freq_hz / 1e6:.6g} MHz, {m.sideband} sideband wanted; "
+            f"passband of '{chart.filter_name or 'no filter after the mixer'}'"
+        )
+        click.echo(text_table(spur_display(rows), SPUR_TABLE), nl=False)
+        hits = chart.summary()["in_passband"]
+        click.echo("IN THE PASSBAND: " + (", ".join(hits) if hits else "no product besides the wanted one"))
+        click.echo(PLANNING_NOTICE)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

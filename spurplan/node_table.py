@@ -115,9 +115,11 @@ def node_levels(result, node: int, combine: str, rows=slice(None), carrier_colum
     top_source = np.argmax(strength, axis=0)
     beyond = per_slot(prop.beyond[:node, rows].any(axis=0)) > 0
 
-    # Representative: the lowest-order member of each slot (then the lowest index).
+    # Representative: the strongest member of each slot (products that coincide are
+    # named after the one that matters), then the lowest order, then the lowest index.
     order_of = np.broadcast_to(orders(mix), f.shape).ravel()
-    by_slot = np.lexsort((np.tile(np.arange(n_prod), batch), order_of, flat))
+    strength_of = np.round(-20 * np.log10(np.abs(contrib.sum(axis=0)).ravel() + 1e-300), 6)
+    by_slot = np.lexsort((np.tile(np.arange(n_prod), batch), order_of, strength_of, flat))
     first = by_slot[np.unique(flat[by_slot], return_index=True)[1]]
     rep = np.zeros(size, dtype=int)
     rep[flat[first]] = first % n_prod

@@ -291,3 +291,69 @@ def spectrum_figure(result, stage=None, size_px=(1200, 600), dpi: int = 100):
     ax.grid(True, alpha=0.35)
     ax.legend(loc="upper right", fontsize=8)
     return fig
+
+
+def spur_figure(chart, lo_span_hz, size_px=(1200, 700), dpi: int = 100, points: int = 400):
+    """Mixer products against LO frequency; the following filter's passband and protected bands shaded."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    mixer = chart.mixer
+    lo = np.linspace(lo_span_hz[0], lo_span_hz[1], points)
+    k = int(np.argmax([c.power_dbm for c in chart.lineup.carriers]))
+    if_hz = chart.lineup.carriers[k].freq_hz
+    rows = chart.rows
+    sx, ux = _freq_axis(lo)
+    shown = [
+        i
+        for i, (t, w) in enumerate(zip(rows["table_dbc"], rows["wanted"], strict=True))
+        if t is not None or w
+    ]
+    top = max(max(abs(rows["m"][i] * lo[-1] + rows["n"][i] * if_hz) for i in shown), 1.0)
+    sy, uy = _freq_axis(np.array([top]))
+    flt = [s for s in chart.lineup.stages if s.name == chart.filter_name]
+    if flt:
+        grid = np.linspace(top / 2000, top * 1.05, 2000)
+        with np.errstate(divide="ignore"):
+            db = 20 * np.log10(np.abs(flt[0].response(grid)))
+        ref = db.max()
+        inside = db >= ref - 3.0
+        for a, b in _runs(grid, inside):
+            ax.axhspan(a / sy, b / sy, color="tab:green", alpha=0.15, lw=0)
+    if chart.lineup.mask is not None:
+        for band in chart.lineup.mask.bands:
+            if band.start_hz < top:
+                ax.axhspan(
+                    band.start_hz / sy, min(band.stop_hz, top) / sy, color="tab:orange", alpha=0.2, lw=0
+                )
+    for i in shown:
+        f = np.abs(rows["m"][i] * lo + rows["n"][i] * if_hz)
+        wanted = rows["wanted"][i]
+        ax.plot(lo / sx, f / sy, color="black" if wanted else "tab:blue", lw=2.0 if wanted else 1.0)
+        ax.annotate(
+            rows["label"][i], (lo[-1] / sx, f[-1] / sy), fontsize=7, xytext=(3, 0), textcoords="offset points"
+        )
+    ax.axvline(mixer.lo_freq_hz / sx, color="tab:red", lw=1.0, ls="--")
+    ax.set_xlabel(f"LO frequency ({ux})")
+    ax.set_ylabel(f"product frequency ({uy}); green: passband of {chart.filter_name or '-'}")
+    ax.set_title(f"{chart.lineup.name}: mixer products against LO (planning estimate)")
+    ax.set_ylim(0, top * 1.05 / sy)
+    ax.grid(True, alpha=0.35)
+    return fig
+
+
+def _runs(x: np.ndarray, flags: np.ndarray):
+    """(start, stop) of the stretches of ``x`` where ``flags`` holds."""
+    out, start = [], None
+    for xi, f in zip(x, flags, strict=True):
+        if f and start is None:
+            start = xi
+        if not f and start is not None:
+            out.append((start, xi))
+            start = None
+    if start is not None:
+        out.append((start, x[-1]))
+    return out
+
+
+def save_spur_plot(chart, lo_span_hz, path, size_px=(1200, 700)):
+    return _save(spur_figure(chart, lo_span_hz, size_px), path)

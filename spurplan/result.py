@@ -159,9 +159,8 @@ class Result:
             return plus[i] if f[i] >= 0 else minus[i]
 
         def also(g: int) -> str:
-            members = np.nonzero(group == g)[0]
-            members = members[np.lexsort((members, order_of[members]))]
-            return " ".join(name(i) for i in members[1:])
+            members = [i for i in np.nonzero(group == g)[0] if i != lv.rep[0, g]]
+            return " ".join(name(i) for i in sorted(members, key=lambda i: (order_of[i], i)))
 
         n = len(keep)
         return {

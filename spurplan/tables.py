@@ -110,6 +110,27 @@ NEEDED_TABLE = [
     ("band", "protected band", None),
 ]
 
+SPUR_TABLE = [
+    ("label", "product", None),
+    ("m", "m", "d"),
+    ("n", "n", "d"),
+    ("freq_mhz", "freq (MHz)", ".6f"),
+    ("table_dbc", "table (dBc)", ".1f"),
+    ("model_dbc", "model (dBc)", ".2f"),
+    ("marks", "marks", None),
+    ("band", "protected band", None),
+]
+
+
+def spur_display(rows: dict) -> dict:
+    shown = dict(rows)
+    shown["freq_mhz"] = mhz(rows["freq_hz"])
+    shown["marks"] = [
+        "WANTED" if w else ("IN PASSBAND" if p else "")
+        for w, p in zip(rows["wanted"], rows["in_passband"], strict=True)
+    ]
+    return shown
+
 
 def verdict_words(passes: list) -> list[str]:
     """ "FAIL" / "pass" / "-" for True/False/None: failing rows are marked in text."""

@@ -1,0 +1,118 @@
+"""The m x n chart of a mixer: every ``|m f_LO + n f_IF|`` with its level and where it lands.
+
+For each product of LO order m and IF order n (``m + |n|`` up to a chosen order) the
+chart gives its frequency, the datasheet level (dBc at the stated IF drive, where the
+table has one), the level the model gives at the mixer's output in this lineup, and
+two marks: whether it falls in the passband of the first filter after the mixer
+(within 3 dB of that filter's response at the wanted output) and which protected
+band, if any, it lands in.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import LineupError
+from .result import REPORT_FLOOR_DBC
+from .stages import Filter, Mixer
+from .stages.mixer import spur_label
+from .units import ratio_db, vpeak_to_dbm
+
+PASSBAND_DB = 3.0
+
+
+@dataclass(frozen=True)
+class SpurChart:
+    lineup: object
+    mixer: Mixer
+    rows: dict
+    filter_name: str | None
+
+    def summary(self) -> dict:
+        from .provenance import provenance
+
+        r = self.rows
+        in_pass = [
+            lab
+            for lab, p, w, lv in zip(r["label"], r["in_passband"], r["wanted"], r["model_dbm"], strict=True)
+            if p and not w and lv is not None
+        ]
+        return {
+            "lineup": self.lineup.name,
+            "mixer": self.mixer.name,
+            "lo_hz": self.mixer.lo_freq_hz,
+            "sideband": self.mixer.sideband,
+            "following_filter": self.filter_name,
+            "in_passband": in_pass,
+            **provenance(self.lineup),
+        }
+
+
+def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
+    """Build the chart of mixer ``stage`` (the strongest carrier is the IF)."""
+    index = lineup.stage_index(stage)
+    mixer = lineup.stages[index - 1]
+    if not isinstance(mixer, Mixer):
+        raise LineupError(
+            f"stage {stage!r} is a {type(mixer).__name__.lower()}: expected a mixer stage", field="--stage"
+        )
+    k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
+    if_hz = lineup.carriers[k].freq_hz
+    result = lineup.run()
+    node = result.propagation.nodes[index, 0]
+    mix = result.mix
+    lo_col = mixer.transfer.lo_index
+    if_col = len(lineup.mixers) + k
+    wanted_dbm = float(result.carrier_levels_dbm(stage)[k])
+    after = [s for s in lineup.stages[index:] if isinstance(s, Filter)]
+    flt = after[0] if after else None
+    ref_db = (
+        float(ratio_db(flt.response(np.array([abs(mixer.lo_freq_hz + mixer.wanted[1] * if_hz)])))[0])
+        if flt
+        else None
+    )
+    cols = {
+        c: []
+        for c in (
+            "m",
+            "n",
+            "label",
+            "freq_hz",
+            "table_dbc",
+            "model_dbm",
+            "model_dbc",
+            "in_passband",
+            "band",
+            "wanted",
+        )
+    }
+    for m in range(0, max_order + 1):
+        for n in range(-max_order, max_order + 1):
+            if m + abs(n) > max_order or (m == 0 and n <= 0) or m + abs(n) == 0:
+                continue
+            f = abs(m * mixer.lo_freq_hz + n * if_hz)
+            vec = np.zeros(mix.shape[1], dtype=np.int64)
+            vec[lo_col], vec[if_col] = m, n
+            hit = np.nonzero((mix == vec).all(axis=1) | (mix == -vec).all(axis=1))[0]
+            level = float(vpeak_to_dbm(node[hit[0]], lineup.r_ohm)) if hit.size else None
+            # Below the report floor the model makes nothing (FFT rounding only).
+            if level is not None and not level - wanted_dbm > REPORT_FLOOR_DBC:
+                level = None
+            cols["m"].append(m)
+            cols["n"].append(n)
+            cols["label"].append(spur_label(m, n))
+            cols["freq_hz"].append(f)
+            cols["table_dbc"].append(mixer.table.get((m, n)))
+            cols["model_dbm"].append(level)
+            cols["model_dbc"].append(None if level is None else level - wanted_dbm)
+            in_pass = False
+            if flt is not None and f > 0:
+                in_pass = bool(float(ratio_db(flt.response(np.array([f])))[0]) >= ref_db - PASSBAND_DB)
+            cols["in_passband"].append(in_pass)
+            from .check import bands_at
+
+            cols["band"].append(bands_at(lineup.mask, f) if lineup.mask is not None else None)
+            cols["wanted"].append((m, n) == mixer.wanted)
+    return SpurChart(lineup=lineup, mixer=mixer, rows=cols, filter_name=None if flt is None else flt.name)
