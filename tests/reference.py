@@ -139,8 +139,40 @@ class Linear:
     h: Callable[[np.ndarray], np.ndarray]
 
 
+@dataclass(frozen=True)
+class Mixing:
+    """A frequency converter: ``y = Re sum c exp(j m w_LO t) z^n`` on the record.
+
+    ``z`` is the analytic signal of the input (positive-frequency bins doubled, the
+    negative ones removed: exact on a periodic record); ``conj(z)^|n|`` for n < 0.
+    ``terms`` are ``(m, n, c)``; the LO sits on bin ``lo_bin`` with phase 0.
+    """
+
+    terms: tuple
+    lo_bin: int
+
+
+def _analytic(x: np.ndarray) -> np.ndarray:
+    spec = np.fft.fft(x)
+    n = len(x)
+    h = np.zeros(n)
+    h[0] = 1.0
+    h[1 : n // 2] = 2.0
+    h[n // 2] = 1.0
+    return np.fft.ifft(spec * h)
+
+
 def _apply(stage, x: np.ndarray, df_hz: float) -> np.ndarray:
-    """One stage on the samples: a transfer callable, a flat gain in dB, or Linear."""
+    """One stage on the samples: a transfer callable, a flat gain in dB, Linear or Mixing."""
+    if isinstance(stage, Mixing):
+        n = len(x)
+        z = _analytic(x)
+        lo = np.exp(2j * np.pi * ((stage.lo_bin * np.arange(n, dtype=np.int64)) % n) / n)
+        y = np.zeros(n)
+        for m, k, c in stage.terms:
+            base = np.ones(n) if k == 0 else (z**k if k > 0 else np.conj(z) ** (-k))
+            y += np.real(c * lo**m * base)
+        return y
     if isinstance(stage, Linear):
         spec = np.fft.rfft(x)
         f = np.arange(len(spec)) * df_hz
