@@ -651,5 +651,74 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
         click.echo(PLANNING_NOTICE)
 
 
+CAUSE_TABLE = [
+    ("label", "product", None),
+    ("rule", "rule", None),
+    ("samples", "failing samples", "d"),
+    ("fraction", "fraction", ".4f"),
+]
+
+
+@main.command("yield", epilog=EPILOG)
+@_lineup_arg
+@click.option("--samples", type=click.IntRange(1, 10_000_000), default=10_000, show_default=True)
+@click.option(
+    "--seed", type=int, default=0, show_default=True, help="Same seed, same samples, wherever they run."
+)
+@click.option(
+    "--channels",
+    "channel_file",
+    type=click.Path(dir_okay=False),
+    help="Also evaluate at these channels (one frequency per line).",
+)
+@click.option(
+    "--scheduler", help="Address of a running dask.distributed scheduler, e.g. tcp://127.0.0.1:8786."
+)
+@click.option(
+    "--workers", type=click.IntRange(1, 256), help="Start a local Dask cluster with this many workers."
+)
+@click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
+@click.option(
+    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw the histogram of worst margins."
+)
+def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
+    """Monte Carlo yield of LINEUP over its part tolerances and corners."""
+    from .formatting import text_table, to_json
+    from .montecarlo import run_yield
+    from .sweep import read_channels
+
+    if scheduler and workers:
+        raise click.UsageError("give either --scheduler or --workers")
+    lu = _load(lineup)
+    channels = read_channels(channel_file) if channel_file else None
+    with _progress(samples, "yield") as bar:
+        res = run_yield(
+            lu,
+            samples,
+            seed=seed,
+            channels_hz=channels,
+            scheduler=scheduler,
+            workers=workers,
+            progress=None if bar is None else bar.update,
+        )
+    if plot_file:
+        from .plots import save_yield_plot
+
+        save_yield_plot(res, plot_file)
+    causes = {c: [r[c] for r in res.causes] for c in ("label", "rule", "samples", "fraction")}
+    if fmt == "json":
+        click.echo(to_json(res.summary(), "causes", causes), nl=False)
+        return
+    lo, hi = res.interval
+    click.echo(f"{lu.name}: Monte Carlo yield, {samples} samples, seed {seed}, {res.where}")
+    click.echo(
+        f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {samples} pass); 95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+    )
+    if res.causes:
+        click.echo("What fails the rest (worst product of each failing sample):")
+        click.echo(text_table(causes, CAUSE_TABLE), nl=False)
+    click.echo(PLANNING_NOTICE)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

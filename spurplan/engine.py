@@ -152,7 +152,7 @@ def apply_memoryless(
         n = max(n, 32)
     n_max = round(MAX_GRID_POINTS ** (1.0 / k))
 
-    y, lo, hi = _eval_chunked(x_phasors, mix, transfer, n)
+    y, lo, hi = _eval_chunked(x_phasors, mix, transfer, n, np.arange(batch))
     converged = np.full(batch, degree is not None)
     grid_used = n
     # Oversampled models: double the grid for the batch elements that have not
@@ -160,7 +160,7 @@ def apply_memoryless(
     todo = np.nonzero(~converged)[0]
     while todo.size and n * 2 <= n_max:
         n *= 2
-        y2, lo2, hi2 = _eval_chunked(x_phasors[todo], mix, transfer, n)
+        y2, lo2, hi2 = _eval_chunked(x_phasors[todo], mix, transfer, n, todo)
         scale = np.abs(y2).max(axis=1, keepdims=True)
         tol = rtol * np.abs(y2) + CONVERGENCE_FLOOR * scale
         ok = np.all(np.abs(y2 - y[todo]) <= tol, axis=1)
@@ -171,10 +171,18 @@ def apply_memoryless(
     return MemorylessResult(spectrum=y, peak_neg_v=lo, peak_pos_v=hi, converged=converged, grid=grid_used)
 
 
-def _eval_chunked(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
-    """:func:`_torus_eval` over batch chunks that keep each array below ``_CHUNK_POINTS``."""
+def _eval_chunked(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int, rows: np.ndarray):
+    """:func:`_torus_eval` over batch chunks that keep each array below ``_CHUNK_POINTS``.
+
+    ``rows`` are the batch elements ``x_phasors`` holds (a model with per-sample
+    parameters is cut to the same rows).
+    """
     chunk = max(1, _CHUNK_POINTS // n ** mix.shape[1])
-    parts = [_torus_eval(x_phasors[s : s + chunk], mix, transfer, n) for s in range(0, len(x_phasors), chunk)]
+    take = getattr(transfer, "take", None)
+    parts = [
+        _torus_eval(x_phasors[s : s + chunk], mix, take(rows[s : s + chunk]) if take else transfer, n)
+        for s in range(0, len(x_phasors), chunk)
+    ]
     return tuple(np.concatenate(arrays) for arrays in zip(*parts, strict=True))
 
 
@@ -287,7 +295,7 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
             conv.append(np.ones(len(x), dtype=bool))
         else:
             res = apply_memoryless(x, mix, transfer)
-            y = res.spectrum * (h / transfer.gain)
+            y = res.spectrum * (h / np.reshape(transfer.gain, (-1, 1)))
             lo, hi = transfer.valid_peak_v
             extrap.append((res.peak_neg_v < lo) | (res.peak_pos_v > hi))
             conv.append(res.converged)

@@ -40,7 +40,7 @@ and loses dB in the passband, and scikit-rf's rational fit is wild on sparse dat
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Literal
 
 import numpy as np
@@ -173,6 +173,51 @@ def _arm_impedance(el: Element, w: np.ndarray, proto: Prototype) -> np.ndarray:
     if z_c is None:
         return z_l
     return z_l + z_c if el.branch == "series" else 1.0 / (1.0 / z_l + 1.0 / z_c)
+
+
+def ladder_s21(
+    proto: Prototype, freq_hz: np.ndarray, r_ohm: float, scale=None, q_scale=(1.0, 1.0), part_scale=None
+) -> np.ndarray:
+    """S21 of the ladder by ABCD matrices, for arrays of frequencies and of part values.
+
+    The same circuit as :func:`ladder_network`, vectorised so that every Monte Carlo
+    sample can have its own parts: ``scale`` (B,) moves the whole response in
+    frequency (every L and C divided by it), ``q_scale`` multiplies the unloaded Qs,
+    and ``part_scale`` (B, N) multiplies each element's L and C.  ``freq_hz`` is
+    (B, P).  ABCD of a series arm Z is [[1, Z], [0, 1]], of a shunt arm [[1, 0],
+    [1/Z, 1]], and ``S21 = 2 / (A + B/R0 + C R0 + D)`` between R0 terminations (Pozar,
+    Microwave Engineering, ABCD parameters; from memory).
+    """
+    f = np.maximum(np.asarray(freq_hz, dtype=float), _MIN_EVAL_HZ)
+    w = 2 * math.pi * f
+    k = 1.0 if scale is None else np.reshape(scale, (-1, 1))
+    q = replace(
+        proto,
+        q_inductor=None if proto.q_inductor is None else proto.q_inductor * np.reshape(q_scale[0], (-1, 1)),
+        q_capacitor=None
+        if proto.q_capacitor is None
+        else proto.q_capacitor * np.reshape(q_scale[1], (-1, 1)),
+    )
+    a, b, c, d = (
+        np.ones(f.shape, complex),
+        np.zeros(f.shape, complex),
+        np.zeros(f.shape, complex),
+        np.ones(f.shape, complex),
+    )
+    for i, el in enumerate(ladder_elements(proto, r_ohm)):
+        p = 1.0 if part_scale is None else np.reshape(np.asarray(part_scale)[:, i], (-1, 1))
+        moved = replace(
+            el,
+            l_h=None if el.l_h is None else el.l_h * p / k,
+            c_f=None if el.c_f is None else el.c_f * p / k,
+        )
+        z = _arm_impedance(moved, w, q)
+        if el.branch == "series":
+            a, b, c, d = a, a * z + b, c, c * z + d
+        else:
+            y = 1.0 / z
+            a, b, c, d = a + b * y, b, c + d * y, d
+    return 2.0 / (a + b / r_ohm + c * r_ohm + d)
 
 
 def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):

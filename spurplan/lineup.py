@@ -116,6 +116,7 @@ class Lineup:
     notes: tuple[str, ...] = field(default=())
     mask: object = None
     report: ReportSpec | None = None
+    tolerances: object = None
 
     @property
     def mixers(self) -> list:

@@ -14,6 +14,7 @@ File layout (key names are the interface: extend, don't rename)::
     [mask]        use, files, antenna_gain, spurious_boundary, [[mask.rule]], [[mask.band]]
                   (see spurplan.mask_files)
     [report]      drive = {start, stop, step}, tune = {start, stop, step}
+    [[corner]]    name, shift = {"stage.figure" = "..."}   (and per stage: tolerance = {...})
 """
 
 from __future__ import annotations
@@ -27,10 +28,11 @@ from .fields import Fields
 from .filters import BEYOND_POLICIES
 from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup, ReportSpec
 from .mask_files import read_mask
+from .montecarlo import Tolerances, read_corners, read_tolerance
 from .stages import KINDS, LoadContext
 from .units import parse_angle_rad, parse_freq_hz, parse_gain_db, parse_impedance_ohm, parse_power_dbm
 
-TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask", "report")
+TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask", "report", "corner")
 # The torus engine's cost grows as (grid)^tones; beyond this many base tones a
 # check no longer fits a laptop's memory at useful orders.
 MAX_CARRIERS = 3
@@ -95,9 +97,17 @@ def from_dict(
         r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=strongest.freq_hz
     )
     stages = []
+    spreads = []
     seen_names: set[str] = set()
     for i, table in enumerate(_array(doc, "stage", name), start=1):
         stage = _stage(table, name, i, context)
+        if isinstance(table, dict) and "tolerance" in table:
+            where = f"stage {i} {stage.name!r}"
+            if not isinstance(table["tolerance"], dict):
+                raise LineupError(
+                    f"{table['tolerance']!r}: expected a table", file=name, stage=where, field="tolerance"
+                )
+            spreads.extend(read_tolerance(table["tolerance"], name, where, i - 1, stage))
         if stage.name in seen_names:
             raise LineupError(
                 f"{stage.name!r} is used twice: expected unique stage names",
@@ -115,6 +125,8 @@ def from_dict(
     _check_size(stages, len(carriers) + lo_index, analysis, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
+    corners = read_corners(doc["corner"], name, stages) if "corner" in doc else ()
+    tolerances = Tolerances(items=tuple(spreads), corners=corners)
     report = _report(_table(doc, "report", name), name) if "report" in doc else None
     return Lineup(
         name=title,
@@ -126,6 +138,7 @@ def from_dict(
         notes=notes,
         mask=mask,
         report=report,
+        tolerances=tolerances,
     )
 
 
@@ -200,6 +213,7 @@ def _stage(table, file: str, index: int, context: LoadContext):
     raw_name = table.get("name")
     where = f"stage {index} {raw_name!r}" if isinstance(raw_name, str) else f"stage {index}"
     f = Fields(table, file, where)
+    f.raw("tolerance")  # read by the Monte Carlo layer (spurplan.montecarlo)
     kind = f.text("kind", choices=tuple(KINDS))
     if kind is None:
         raise f.error("kind", f"is required: expected one of {', '.join(KINDS)}")

@@ -43,32 +43,54 @@ import numpy as np
 _VALID_GAIN_DEVIATION_DB = 1.0
 
 
+def per_sample(value, x):
+    """Broadcast a parameter that is a scalar or one value per batch element (B,)
+    against samples ``x`` of shape (B, ...)."""
+    if np.ndim(value) == 0:
+        return value
+    return np.reshape(value, (-1,) + (1,) * (np.ndim(x) - 1))
+
+
+def _take(value, rows):
+    return value if np.ndim(value) == 0 else np.asarray(value)[rows]
+
+
 @dataclass(frozen=True)
 class Polynomial:
     """``y = sum_n a_n x^n`` for n = 1 .. D, in volts.
 
     Parameters
     ----------
-    coeffs : tuple of float
-        ``(a1, a2, ..., aD)``; ``a_n`` in V^(1-n).
+    coeffs : tuple of float, or of ndarray (B,)
+        ``(a1, a2, ..., aD)``; ``a_n`` in V^(1-n).  Arrays give every batch element its
+        own coefficients (Monte Carlo samples); the samples passed in then lead with
+        that batch axis.
     """
 
-    coeffs: tuple[float, ...]
+    coeffs: tuple
 
     @property
     def degree(self) -> int:
-        nz = [n for n, a in enumerate(self.coeffs, start=1) if a != 0.0]
+        nz = [n for n, a in enumerate(self.coeffs, start=1) if np.any(np.asarray(a) != 0.0)]
         return max(nz) if nz else 1
 
     @property
-    def gain(self) -> float:
+    def gain(self):
         return self.coeffs[0]
+
+    @property
+    def batched(self) -> bool:
+        return any(np.ndim(a) for a in self.coeffs)
+
+    def take(self, rows) -> Polynomial:
+        """The model of the batch elements ``rows`` (itself when not batched)."""
+        return Polynomial(tuple(_take(a, rows) for a in self.coeffs)) if self.batched else self
 
     def __call__(self, x):
         x = np.asarray(x)
         y = np.zeros_like(x, dtype=float)
         for a in reversed(self.coeffs):
-            y = (y + a) * x
+            y = (y + per_sample(a, x)) * x
         return y
 
     def derivative(self, x):
@@ -96,8 +118,11 @@ class Polynomial:
 
     @functools.cached_property
     def valid_peak_v(self) -> tuple[float, float]:
-        """Input peaks (V) where the instantaneous gain ``y/x`` leaves a1 by 1 dB."""
-        if self.degree == 1:
+        """Input peaks (V) where the instantaneous gain ``y/x`` leaves a1 by 1 dB.
+
+        Not computed for batched (sampled) coefficients: ``(-inf, inf)``.
+        """
+        if self.degree == 1 or self.batched:
             return -math.inf, math.inf
         lo, hi = self.turning_points()
         # Search each side on a log grid up to the turning point (or far out).
@@ -144,8 +169,19 @@ class SoftLimitedPolynomial:
     degree = None
 
     @property
-    def gain(self) -> float:
+    def gain(self):
         return self.poly.gain
+
+    @property
+    def batched(self) -> bool:
+        return self.poly.batched or bool(np.ndim(self.clip_neg_v) or np.ndim(self.clip_pos_v))
+
+    def take(self, rows) -> SoftLimitedPolynomial:
+        if not self.batched:
+            return self
+        return SoftLimitedPolynomial(
+            self.poly.take(rows), _take(self.clip_neg_v, rows), _take(self.clip_pos_v, rows), self.smoothness
+        )
 
     @property
     def valid_peak_v(self) -> tuple[float, float]:
@@ -159,7 +195,7 @@ class SoftLimitedPolynomial:
     def limit_input(self, x):
         """The smooth input limiter ``c(x)``, applied with each side's own level."""
         x = np.asarray(x, dtype=float)
-        xc = np.where(x >= 0.0, self.clip_pos_v, -self.clip_neg_v)
+        xc = np.where(x >= 0.0, per_sample(self.clip_pos_v, x), -per_sample(self.clip_neg_v, x))
         two_s = 2 * self.smoothness
         return x / (1.0 + (x / xc) ** two_s) ** (1.0 / two_s)
 

@@ -357,3 +357,29 @@ def _runs(x: np.ndarray, flags: np.ndarray):
 
 def save_spur_plot(chart, lo_span_hz, path, size_px=(1200, 700)):
     return _save(spur_figure(chart, lo_span_hz, size_px), path)
+
+
+def yield_figure(result, size_px=(1000, 600), dpi: int = 100):
+    """Histogram of every sample's worst margin, the failing side marked."""
+    plt = _pyplot()
+    fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
+    m = result.worst_margin_db[np.isfinite(result.worst_margin_db)]
+    if m.size:
+        bins = np.linspace(min(m.min(), -1.0), max(m.max(), 1.0), 60)
+        ax.hist(m[m >= 0], bins=bins, color="tab:blue", label="pass")
+        ax.hist(m[m < 0], bins=bins, color="tab:red", label="FAIL")
+    ax.axvline(0.0, color="black", lw=1.2)
+    lo, hi = result.interval
+    ax.set_title(
+        f"{result.lineup.name}: yield {100 * result.yield_fraction:.2f} % "
+        f"(95 % Wilson {100 * lo:.2f}-{100 * hi:.2f} %, {result.samples} samples; planning estimate)"
+    )
+    ax.set_xlabel("worst margin of a sample (dB)")
+    ax.set_ylabel("samples")
+    ax.grid(True, alpha=0.35)
+    ax.legend()
+    return fig
+
+
+def save_yield_plot(result, path, size_px=(1000, 600)):
+    return _save(yield_figure(result, size_px), path)

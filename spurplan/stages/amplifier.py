@@ -72,20 +72,24 @@ class AmplifierFigures:
 
 
 def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
-    """Polynomial coefficients (V^(1-n)) from datasheet figures (module docstring)."""
-    a1 = 10.0 ** (fig.gain_db / 20.0)
+    """Polynomial coefficients (V^(1-n)) from datasheet figures (module docstring).
+
+    The figures may be arrays (one value per Monte Carlo sample); the coefficients
+    are then arrays too.
+    """
+    a1 = 10.0 ** (np.asarray(fig.gain_db, dtype=float) / 20.0)
     coeffs = {1: a1}
     odd_sign = 1.0 if fig.expansive else -1.0
     for n, ohip in fig.ohip_dbm.items():
-        a_ihip = float(dbm_to_vpeak(ohip - fig.gain_db, r_ohm))
+        a_ihip = dbm_to_vpeak(ohip - fig.gain_db, r_ohm)
         sign = odd_sign if n % 2 else 1.0
         coeffs[n] = sign * 2.0 ** (n - 1) * a1 / a_ihip ** (n - 1)
     # Two-tone intercepts take precedence over harmonic ones (the loader has
     # checked that they agree).
     if fig.oip2_dbm is not None:
-        coeffs[2] = a1 / float(dbm_to_vpeak(fig.oip2_dbm - fig.gain_db, r_ohm))
+        coeffs[2] = a1 / dbm_to_vpeak(fig.oip2_dbm - fig.gain_db, r_ohm)
     if fig.oip3_dbm is not None:
-        a_iip3 = float(dbm_to_vpeak(fig.oip3_dbm - fig.gain_db, r_ohm))
+        a_iip3 = dbm_to_vpeak(fig.oip3_dbm - fig.gain_db, r_ohm)
         coeffs[3] = odd_sign * (4.0 / 3.0) * a1 / a_iip3**2
     degree = max(coeffs)
     return Polynomial(tuple(coeffs.get(n, 0.0) for n in range(1, degree + 1)))
@@ -207,6 +211,103 @@ def build_transfer(fig: AmplifierFigures, r_ohm: float) -> tuple[object, list[st
         if hi - lo < 1e-4:
             break
     return model(math.exp(0.5 * (lo + hi))), []
+
+
+def sampled_transfer(amp: Amplifier, deltas: dict, r_ohm: float):
+    """The amplifier's model with its figures moved per Monte Carlo sample.
+
+    Parameters
+    ----------
+    deltas : dict of str -> ndarray (B,)
+        Shifts in dB of ``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db`` and ``ohip2``
+        .. ``ohip9`` (output-referred intercepts, dBm).
+
+    With ``psat`` the clip levels follow each sample's rail exactly.  With only
+    ``p1db`` the nominal fit's input clip levels move by the sample's P1dB shift less
+    its gain shift (an approximation: refitting every sample would be slow).
+    """
+    from dataclasses import replace as _replace
+
+    fig = amp.figures
+    batch = len(next(iter(deltas.values())))
+    zero = np.zeros(batch)
+
+    def moved(value, key):
+        return None if value is None else value + deltas.get(key, zero)
+
+    sample = _replace(
+        fig,
+        gain_db=fig.gain_db + deltas.get("gain", zero),
+        oip3_dbm=moved(fig.oip3_dbm, "oip3"),
+        oip2_dbm=moved(fig.oip2_dbm, "oip2"),
+        ohip_dbm={n: v + deltas.get(f"ohip{n}", zero) for n, v in fig.ohip_dbm.items()},
+    )
+    poly = polynomial_from_figures(sample, r_ohm)
+    nominal = amp.transfer
+    if not isinstance(nominal, SoftLimitedPolynomial):
+        return poly
+    if fig.psat_dbm is not None:
+        rail = (math.pi / 4.0) * dbm_to_vpeak(fig.psat_dbm + deltas.get("psat", zero), r_ohm)
+        neg, pos = _clip_levels_batched(poly, rail)
+        return SoftLimitedPolynomial(poly, neg, pos, nominal.smoothness)
+    shift = 10 ** ((deltas.get("p1db", zero) - deltas.get("gain", zero)) / 20)
+    return SoftLimitedPolynomial(
+        poly, nominal.clip_neg_v * shift, nominal.clip_pos_v * shift, nominal.smoothness
+    )
+
+
+def _turning_points_batched(coeffs: list, degree: int) -> tuple[np.ndarray, np.ndarray]:
+    """Nearest roots of dy/dx on each side of 0, per sample: closed form up to a cubic."""
+    batch = len(coeffs[0])
+    neg, pos = np.full(batch, -np.inf), np.full(batch, np.inf)
+    if degree == 1:
+        return neg, pos
+    a1, a2 = coeffs[0], coeffs[1]
+    a3 = coeffs[2] if degree >= 3 else np.zeros(batch)
+    if degree <= 3:
+        # dy/dx = a1 + 2 a2 x + 3 a3 x^2 = 0 (quadratic formula; linear where a3 = 0).
+        with np.errstate(divide="ignore", invalid="ignore"):
+            disc = 4 * a2**2 - 12 * a3 * a1
+            sq = np.sqrt(np.where(disc >= 0, disc, np.nan))
+            quad = np.stack([(-2 * a2 + sq) / (6 * a3), (-2 * a2 - sq) / (6 * a3)])
+            lin = np.broadcast_to(-a1 / (2 * a2), (2, batch))
+            roots = np.where(a3 != 0, quad, np.where(np.arange(2)[:, None] == 0, lin, np.nan))
+        pos = np.where(roots > 0, roots, np.inf).min(axis=0)
+        neg = np.where(roots < 0, roots, -np.inf).max(axis=0)
+        return neg, pos
+    for b in range(batch):
+        neg[b], pos[b] = Polynomial(tuple(float(c[b]) for c in coeffs)).turning_points()
+    return neg, pos
+
+
+def _clip_levels_batched(poly: Polynomial, rail_v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per-sample :func:`_clip_levels`: input levels where each side reaches +/- ``rail_v``."""
+    batch = len(rail_v)
+    coeffs = [np.broadcast_to(np.asarray(a, dtype=float), (batch,)) for a in poly.coeffs]
+    turn_neg, turn_pos = _turning_points_batched(coeffs, poly.degree)
+    levels = []
+    for side, turn in ((1.0, turn_pos), (-1.0, -turn_neg)):
+
+        def out(x, side=side):
+            y = np.zeros_like(x)
+            for c in reversed(coeffs):
+                y = (y + c) * (side * x)
+            return side * y
+
+        capped = np.isfinite(turn) & (out(np.where(np.isfinite(turn), turn, 0.0)) <= rail_v)
+        hi = np.where(np.isfinite(turn), turn, rail_v / np.abs(coeffs[0]))
+        for _ in range(60):  # grow the bracket where the polynomial has no turning point
+            short = ~np.isfinite(turn) & (out(hi) < rail_v)
+            if not short.any():
+                break
+            hi = np.where(short, 2 * hi, hi)
+        lo = np.zeros(batch)
+        for _ in range(100):
+            mid = 0.5 * (lo + hi)
+            below = out(mid) < rail_v
+            lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
+        levels.append(np.where(capped, turn, 0.5 * (lo + hi)))
+    return -levels[1], levels[0]
 
 
 @dataclass(frozen=True)

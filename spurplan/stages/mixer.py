@@ -37,6 +37,7 @@ import numpy as np
 
 from ..engine import alias_free_grid, torus_analytic, torus_coefficients
 from ..fields import Fields
+from ..nonlinear import per_sample
 from ..units import dbm_to_vpeak, parse_freq_hz, parse_gain_db, parse_power_dbm
 from .base import LoadContext
 
@@ -98,8 +99,13 @@ class MixerModel:
         y = np.zeros(z.shape)
         for m, n, c in self.terms:
             base = np.ones_like(z) if n == 0 else (z ** abs(n) if n > 0 else np.conj(z) ** abs(n))
-            y += np.real(c * lo**m * base)
+            y += np.real(per_sample(c, z) * lo**m * base)
         return torus_coefficients(y, mix)
+
+    def scaled(self, gain_delta_db: np.ndarray) -> MixerModel:
+        """Every term moved by a per-sample conversion-gain shift (dB, (B,))."""
+        k = 10 ** (np.asarray(gain_delta_db) / 20)
+        return MixerModel(tuple((m, n, c * k) for m, n, c in self.terms), self.lo_index)
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,469 @@
+"""Monte Carlo yield over part tolerances and corners, in process or on a Dask cluster.
+
+Tolerances are written per stage in the lineup::
+
+    [[stage]]
+    ...
+    tolerance = { gain = "0.5 dB", oip3 = { uniform = "2 dB" }, psat = "0.3 dB" }
+    # filters: tolerance = { cutoff = "2 %", q_inductor = "10 %", elements = "3 %" }
+
+A bare value is the standard deviation of a normal distribution; ``{ uniform = X }``
+spreads uniformly within +/- X.  Level figures move in dB (amplifier ``gain``,
+``oip3``, ``oip2``, ``psat``, ``p1db``, ``ohip2`` .. ``ohip9``; attenuator ``loss``;
+mixer ``conversion_gain``); filter figures move in per cent (``cutoff`` or
+``center``: the whole response in frequency; ``q_inductor``, ``q_capacitor``;
+``elements``: every L and C on its own).  Named corners shift figures together::
+
+    [[corner]]
+    name = "hot"
+    shift = { "pa.gain" = "-1.5 dB", "pa.oip3" = "-2 dB", "harmonic low-pass.cutoff" = "-1 %" }
+
+A sample passes when it meets the mask at every corner (the nominal one if none
+are given) and at every channel asked for.  Samples are drawn batch by batch from
+``numpy.random.default_rng([seed, batch])``: the seed belongs to the batch, not to
+the process that evaluates it, so the result is the same in process and on any
+number of Dask workers.  Each batch is one pass of the vectorised engine.
+
+Yield is reported with the Wilson score interval (95 %) for a binomial proportion
+(Wilson 1927; see also Agresti and Coull 1998; from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .check import evaluate
+from .engine import propagate
+from .errors import LineupError
+from .fields import Fields
+from .filters import ladder_s21
+from .result import Result
+from .spectrum import mixing_vectors, product_freqs_hz
+from .stages import Amplifier, Attenuator, Filter, Mixer
+from .stages.amplifier import sampled_transfer
+from .units import parse_gain_db
+
+DB_FIGURES = {
+    Amplifier: ("gain", "oip3", "oip2", "psat", "p1db", *(f"ohip{n}" for n in range(2, 10))),
+    Attenuator: ("loss",),
+    Mixer: ("conversion_gain",),
+}
+PERCENT_FIGURES = ("cutoff", "center", "q_inductor", "q_capacitor", "elements")
+BATCH_SAMPLES = 2000
+Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (standard tables)
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """One figure of one stage: ``kind`` "normal" (value = sigma) or "uniform" (+/- value).
+
+    ``value`` is in dB for level figures and a fraction (0.02 = 2 %) for filter figures.
+    """
+
+    stage: int
+    figure: str
+    kind: str
+    value: float
+
+
+@dataclass(frozen=True)
+class Corner:
+    name: str
+    shifts: tuple[tuple[int, str, float], ...] = ()
+
+
+@dataclass(frozen=True)
+class Tolerances:
+    """Everything the lineup says about spread: per-figure distributions and corners."""
+
+    items: tuple[Tolerance, ...] = ()
+    corners: tuple[Corner, ...] = field(default=())
+
+
+def _figures_of(stage) -> tuple[tuple[str, ...], bool]:
+    for kind, names in DB_FIGURES.items():
+        if isinstance(stage, kind):
+            return names, False
+    if isinstance(stage, Filter) and stage.prototype is not None:
+        return PERCENT_FIGURES, True
+    return (), False
+
+
+def _amount(text, f: Fields, key: str, percent: bool) -> float:
+    if percent:
+        if isinstance(text, str) and text.strip().endswith("%"):
+            try:
+                value = float(text.strip()[:-1])
+            except ValueError:
+                value = math.nan
+            if math.isfinite(value) and abs(value) < 100:
+                return value / 100.0
+        raise f.error(key, f"{text!r}: expected a relative amount in %, e.g. '2 %'")
+    from .errors import UnitError
+
+    try:
+        return parse_gain_db(text)
+    except UnitError as exc:
+        raise f.error(key, str(exc)) from None
+
+
+def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Tolerance, ...]:
+    """A stage's ``tolerance = {...}`` table."""
+    names, percent = _figures_of(stage)
+    f = Fields(raw, file, f"{where} tolerance")
+    out = []
+    for key in list(raw):
+        if key not in names:
+            f.raw(key)
+            allowed = ", ".join(names) or "none (this stage has no figures that spread)"
+            from .fields import _did_you_mean
+
+            raise f.error(key, f"cannot spread{_did_you_mean(key, names)}: expected one of {allowed}")
+        value = raw[key]
+        kind = "normal"
+        if isinstance(value, dict):
+            sub = Fields(value, file, f"{where} tolerance {key}")
+            kinds = [k for k in ("normal", "uniform") if k in value]
+            if len(kinds) != 1 or len(value) != 1:
+                raise sub.error(None, f"{value!r}: expected {{ normal = ... }} or {{ uniform = ... }}")
+            kind = kinds[0]
+            value = value[kind]
+        amount = _amount(value, f, key, percent)
+        if amount < 0:
+            raise f.error(key, f"{raw[key]!r}: expected a spread >= 0")
+        f.raw(key)
+        out.append(Tolerance(stage=index, figure=key, kind=kind, value=amount))
+    f.finish()
+    return tuple(out)
+
+
+def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
+    """The lineup's ``[[corner]]`` tables."""
+    if not isinstance(raw, list):
+        raise LineupError("'corner' must be an array of tables ([[corner]])", file=file)
+    names = {s.name: i for i, s in enumerate(stages)}
+    out = []
+    for c, table in enumerate(raw, start=1):
+        f = Fields(table, file, f"corner {c}")
+        name = f.text("name") or f"corner {c}"
+        shifts = []
+        raw_shift = f.raw("shift", {})
+        if not isinstance(raw_shift, dict):
+            raise f.error("shift", f'{raw_shift!r}: expected a table {{ "stage.figure" = "-1 dB" }}')
+        for key, text in raw_shift.items():
+            stage_name, _, figure = key.rpartition(".")
+            if stage_name not in names:
+                raise f.error("shift", f"{key!r}: expected 'stage.figure' naming a stage of the lineup")
+            i = names[stage_name]
+            allowed, percent = _figures_of(stages[i])
+            if figure not in allowed:
+                raise f.error(
+                    "shift", f"{key!r}: {figure!r} cannot shift; expected one of {', '.join(allowed)}"
+                )
+            shifts.append((i, figure, _amount(text, f, "shift", percent)))
+        f.finish()
+        out.append(Corner(name=name, shifts=tuple(shifts)))
+    return tuple(out)
+
+
+def draw(tolerances: Tolerances, n: int, seed: int, batch: int) -> dict:
+    """Deltas per (stage, figure) for ``n`` samples of batch ``batch``; (n,) arrays.
+
+    ``elements`` draws one column per ladder element and is (n, N).
+    """
+    rng = np.random.default_rng([seed, batch])
+    out = {}
+    for t in tolerances.items:
+        width = t.value
+        shape = (n, 64) if t.figure == "elements" else (n,)
+        if t.kind == "normal":
+            out[(t.stage, t.figure)] = rng.normal(0.0, width, shape)
+        else:
+            out[(t.stage, t.figure)] = rng.uniform(-width, width, shape)
+    return out
+
+
+def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
+    """The lineup's stages with every sample's figures (per-sample model parameters)."""
+    shift = {(i, fig): v for i, fig, v in (corner.shifts if corner else ())}
+    out = []
+    for i, stage in enumerate(lineup.stages):
+        d = {}
+        names, _ = _figures_of(stage)
+        for fig in names:
+            value = deltas.get((i, fig), 0.0) + shift.get((i, fig), 0.0)
+            if np.ndim(value) or value:
+                d[fig] = np.broadcast_to(value, (n,) if fig != "elements" else np.shape(value) or (n,))
+        out.append(_sampled(stage, d, n, lineup.r_ohm))
+    return out
+
+
+@dataclass(frozen=True)
+class _Sampled:
+    """A stage seen by the engine with per-sample parameters."""
+
+    name: str
+    transfer: object
+    response_fn: object
+    data_range_hz: object = None
+
+    def response(self, freq_hz):
+        return self.response_fn(freq_hz)
+
+
+def _sampled(stage, d: dict, n: int, r_ohm: float):
+    if not d:
+        return stage
+    if isinstance(stage, Amplifier):
+        transfer = sampled_transfer(stage, d, r_ohm)
+        gain = 10 ** (d.get("gain", 0.0) / 20)
+
+        def amp_response(f):
+            return stage.response(f) * np.reshape(gain, (-1, 1))
+
+        return _Sampled(stage.name, transfer, amp_response, stage.data_range_hz)
+    if isinstance(stage, Attenuator):
+        k = 10 ** (-d["loss"] / 20)
+        return _Sampled(stage.name, None, lambda f: stage.response(f) * np.reshape(k, (-1, 1)))
+    if isinstance(stage, Mixer):
+        return _Sampled(stage.name, stage.transfer.scaled(d["conversion_gain"]), stage.response)
+    proto = stage.prototype
+    scale = 1.0 + d.get("cutoff", 0.0) + d.get("center", 0.0)
+    q_scale = (1.0 + d.get("q_inductor", 0.0), 1.0 + d.get("q_capacitor", 0.0))
+    parts = d.get("elements")
+    if parts is not None:
+        parts = 1.0 + np.asarray(parts)[:, : proto.order]
+
+    def filter_response(f):
+        return ladder_s21(
+            proto, f, stage.r_ohm, scale=np.broadcast_to(scale, (n,)), q_scale=q_scale, part_scale=parts
+        )
+
+    return _Sampled(stage.name, None, filter_response)
+
+
+def evaluate_batch(
+    lineup, tolerances: Tolerances, seed: int, batch: int, n: int, channels_hz=None, combine=None
+) -> dict:
+    """Draw and evaluate batch ``batch`` of ``n`` samples; a plain dict of arrays (picklable).
+
+    Returns ``worst_margin_db`` (n,), the label and rule of each sample's worst product,
+    and ``passed`` (n,).  Every corner and channel is one more copy of the batch through
+    the same engine pass.
+    """
+    deltas = draw(tolerances, n, seed, batch)
+    corners = tolerances.corners or (None,)
+    tones = np.atleast_2d(
+        lineup.tone_freqs_hz if channels_hz is None else _channel_tones(lineup, channels_hz)
+    )
+    worst = np.full(n, np.inf)
+    labels = np.full(n, "", dtype=object)
+    rules = np.full(n, "", dtype=object)
+    mix = mixing_vectors(lineup.n_tones, lineup.analysis.max_order)
+    for corner in corners:
+        stages = sampled_stages(lineup, deltas, corner, n)
+        for t in tones:
+            x_in = lineup.input_phasors(mix, np.zeros(n))
+            freqs = product_freqs_hz(mix, np.broadcast_to(t, (n, len(t))))
+            prop = propagate(stages, x_in, mix, freqs)
+            result = Result(
+                lineup=lineup,
+                mix=mix,
+                freqs_hz=freqs,
+                propagation=prop,
+                tone_freqs_hz=np.broadcast_to(t, (n, len(t))),
+            )
+            levels = result.levels(None, combine)
+            ev = evaluate(lineup, result, levels)
+            w = ev.worst_margin_db
+            slot = ev.worst_slot
+            names = _slot_names(result, levels, slot)
+            rule = [
+                ""
+                if ev.rule[b, slot[b]] < 0
+                else f"{ev.rules[ev.rule[b, slot[b]]][0].origin}: {ev.rules[ev.rule[b, slot[b]]][0].name}"
+                for b in range(n)
+            ]
+            better = w < worst
+            worst = np.where(better, w, worst)
+            labels = np.where(better, names, labels)
+            rules = np.where(better, np.asarray(rule, dtype=object), rules)
+    return {"worst_margin_db": worst, "label": labels.tolist(), "rule": rules.tolist(), "passed": worst >= 0}
+
+
+def _slot_names(result, levels, slot: np.ndarray) -> np.ndarray:
+    from .spectrum import labels
+
+    plus, minus = labels(result.mix, result.lineup.tone_names)
+    rows = np.arange(len(slot))
+    rep = levels.rep[rows, slot]
+    sign = levels.sign[rows, slot]
+    return np.array([plus[r] if s > 0 else minus[r] for r, s in zip(rep, sign, strict=True)], dtype=object)
+
+
+def _channel_tones(lineup, channels_hz) -> np.ndarray:
+    """Base-tone frequencies for each channel (the tuning rule of spurplan.sweep)."""
+    base = lineup.tone_freqs_hz
+    if lineup.mixers:
+        shift, ref = np.eye(len(base))[0], base[0]
+    else:
+        k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
+        shift, ref = np.ones(len(base)), base[len(lineup.mixers) + k]
+    return base[None, :] + (np.asarray(channels_hz, dtype=float)[:, None] - ref) * shift[None, :]
+
+
+def wilson_interval(passed: int, n: int, z: float = Z_95) -> tuple[float, float]:
+    """Wilson score interval for a binomial proportion (Wilson 1927; from memory)."""
+    if n == 0:
+        return 0.0, 1.0
+    p = passed / n
+    denom = 1 + z * z / n
+    centre = (p + z * z / (2 * n)) / denom
+    half = z * math.sqrt(p * (1 - p) / n + z * z / (4 * n * n)) / denom
+    return max(0.0, centre - half), min(1.0, centre + half)
+
+
+@dataclass(frozen=True)
+class YieldResult:
+    """What :func:`run_yield` found."""
+
+    lineup: object
+    samples: int
+    seed: int
+    passed: int
+    worst_margin_db: np.ndarray
+    causes: list
+    where: str
+
+    @property
+    def yield_fraction(self) -> float:
+        return self.passed / self.samples
+
+    @property
+    def interval(self) -> tuple[float, float]:
+        return wilson_interval(self.passed, self.samples)
+
+    def summary(self) -> dict:
+        from .provenance import provenance
+
+        lo, hi = self.interval
+        return {
+            "lineup": self.lineup.name,
+            "samples": self.samples,
+            "seed": self.seed,
+            "passed": self.passed,
+            "yield": self.yield_fraction,
+            "interval_95": [lo, hi],
+            "interval_method": "Wilson score",
+            "causes": self.causes,
+            "ran_on": self.where,
+            **provenance(self.lineup),
+        }
+
+    def plot(self, size_px=(1000, 600)):
+        from .plots import yield_figure
+
+        return yield_figure(self, size_px)
+
+
+def run_yield(
+    lineup,
+    samples: int,
+    seed: int = 0,
+    channels_hz=None,
+    scheduler: str | None = None,
+    workers: int | None = None,
+    batch_samples: int = BATCH_SAMPLES,
+    combine=None,
+    progress=None,
+) -> YieldResult:
+    """Monte Carlo yield of ``lineup`` over its tolerances (see the module docstring).
+
+    Parameters
+    ----------
+    scheduler : str, optional
+        Address of a running ``dask.distributed`` scheduler.
+    workers : int, optional
+        Start a local Dask cluster with this many worker processes.
+    """
+    tolerances = lineup.tolerances
+    if lineup.mask is None:
+        raise LineupError("no emission limits: expected a [mask] table", file=str(lineup.source))
+    sizes = [min(batch_samples, samples - s) for s in range(0, samples, batch_samples)]
+    jobs = [(lineup, tolerances, seed, b, size, channels_hz, combine) for b, size in enumerate(sizes)]
+    if scheduler or workers:
+        parts, where = _on_dask(jobs, scheduler, workers, progress)
+    else:
+        parts, where = [], "in process"
+        for job in jobs:
+            parts.append(evaluate_batch(*job))
+            if progress:
+                progress(job[4])
+    worst = np.concatenate([p["worst_margin_db"] for p in parts])
+    labels = [x for p in parts for x in p["label"]]
+    rules = [x for p in parts for x in p["rule"]]
+    failing = worst < 0
+    counts: dict = {}
+    for i in np.nonzero(failing)[0]:
+        counts[(labels[i], rules[i])] = counts.get((labels[i], rules[i]), 0) + 1
+    causes = [
+        {"label": k[0], "rule": k[1], "samples": v, "fraction": v / samples}
+        for k, v in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
+    ]
+    return YieldResult(
+        lineup=lineup,
+        samples=samples,
+        seed=seed,
+        passed=int((~failing).sum()),
+        worst_margin_db=worst,
+        causes=causes,
+        where=where,
+    )
+
+
+def _batch_job(job):
+    return evaluate_batch(*job)
+
+
+def _on_dask(jobs, scheduler, workers, progress):
+    """Evaluate the batches on a dask.distributed cluster (optional dependency)."""
+    try:
+        import dask
+        from dask.distributed import Client, LocalCluster
+    except ImportError:
+        raise LineupError(
+            "dask.distributed is not installed: expected pip install 'spurplan[dask]' for --scheduler/--workers"
+        ) from None
+    cluster = None
+    if scheduler:
+        client = Client(scheduler)
+        where = f"dask scheduler {scheduler}"
+    else:
+        # Dask's workers trim freed memory back to the OS from 64 kB up by default; the
+        # engine allocates and frees grids of megabytes per batch, and the trimming
+        # halved its speed (measured with tests/benchmarks/yield.py).
+        with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": str(1 << 30)}):
+            cluster = LocalCluster(
+                n_workers=workers,
+                threads_per_worker=1,
+                processes=True,
+                host="127.0.0.1",
+                dashboard_address=None,
+            )
+        client = Client(cluster)
+        where = f"local dask cluster, {workers} workers"
+    try:
+        futures = client.map(_batch_job, jobs, pure=False)
+        parts = []
+        for fut, job in zip(futures, jobs, strict=True):
+            parts.append(fut.result())
+            if progress:
+                progress(job[4])
+    finally:
+        client.close()
+        if cluster is not None:
+            cluster.close()
+    return parts, where
