@@ -76,6 +76,22 @@ def _lineup_arg(f):
     return click.argument("lineup", required=False, type=click.Path(dir_okay=False))(f)
 
 
+def _format_option(f):
+    return click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)(f)
+
+
+def _combine_option(f):
+    return click.option(
+        "--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine."
+    )(f)
+
+
+def _plot_size_option(f):
+    return click.option(
+        "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
+    )(f)
+
+
 def _load(path):
     from .lineup_file import load
     from .resources import example_path
@@ -104,8 +120,8 @@ def _warn(result) -> None:
 @main.command(epilog=EPILOG)
 @_lineup_arg
 @click.option("--stage", default=None, help="Report at this stage's output instead of the lineup output.")
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
-@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@_format_option
+@_combine_option
 def spectrum(lineup, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
     from .formatting import text_table, to_csv, to_json
@@ -129,7 +145,7 @@ def spectrum(lineup, stage, fmt, combine):
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@_format_option
 def budget(lineup, fmt):
     """Print the cascade budget of LINEUP: levels, gains, cascaded IP3, P1dB headroom."""
     from .budget import budget_rows
@@ -172,7 +188,7 @@ def budget(lineup, fmt):
 @click.option(
     "--touchstone", "ts_file", type=click.Path(dir_okay=False), help="Write the network to this .s2p file."
 )
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@_format_option
 def filter_cmd(
     lineup,
     stage,
@@ -255,17 +271,15 @@ def _size(text: str) -> tuple[int, int]:
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
-@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@_format_option
+@_combine_option
 @click.option(
     "--plot",
     "plot_file",
     type=click.Path(dir_okay=False),
     help="Draw the spectrum against the mask (PNG/SVG/PDF).",
 )
-@click.option(
-    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
-)
+@_plot_size_option
 def check(lineup, fmt, combine, plot_file, plot_size):
     """Check every product at the output of LINEUP against its [mask].
 
@@ -318,7 +332,7 @@ def check(lineup, fmt, combine, plot_file, plot_size):
 
 @main.command(epilog=EPILOG)
 @click.argument("name", required=False)
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@_format_option
 def bands(name, fmt):
     """List the shipped rule sets and band lists, or show NAME with its sources."""
     from .bands_view import band_rows, catalogue_rows, describe
@@ -370,14 +384,12 @@ def _parse(kind, text, option):
 @click.option("--stop", required=True, help="Last drive, e.g. '+10 dBm'.")
 @click.option("--step", required=True, help="Drive step, e.g. '0.5 dB'.")
 @click.option("--target-output", is_flag=True, help="Start/stop are the carrier's output power instead.")
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
-@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@_format_option
+@_combine_option
 @click.option(
     "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw products and limits against drive."
 )
-@click.option(
-    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
-)
+@_plot_size_option
 def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
     from .formatting import text_table, to_csv, to_json
@@ -443,17 +455,15 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
     type=click.Path(dir_okay=False),
     help="A file of carrier frequencies, one per line with unit.",
 )
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
-@click.option("--combine", type=click.Choice(COMBINES), default=None, help="Override [analysis] combine.")
+@_format_option
+@_combine_option
 @click.option(
     "--plot",
     "plot_file",
     type=click.Path(dir_okay=False),
     help="Draw product frequency against carrier frequency.",
 )
-@click.option(
-    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
-)
+@_plot_size_option
 def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
     from .formatting import text_table, to_csv, to_json
@@ -597,7 +607,7 @@ def report(lineup, out_file):
     "--max-order", default=7, show_default=True, type=click.IntRange(1, 15), help="Highest m + |n| shown."
 )
 @click.option("--all", "show_all", is_flag=True, help="Also list products the model puts at no level.")
-@click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)
+@_format_option
 @click.option(
     "--plot",
     "plot_file",
@@ -606,9 +616,7 @@ def report(lineup, out_file):
 )
 @click.option("--lo-start", help="LO range for the plot, e.g. '1.1 GHz' (default: LO -20 %).")
 @click.option("--lo-stop", help="LO range for the plot (default: LO +20 %).")
-@click.option(
-    "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
-)
+@_plot_size_option
 def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
     from .formatting import text_table, to_csv, to_json

@@ -18,6 +18,29 @@ from typing import Any
 from .errors import LineupError, UnitError
 
 
+def read_toml(path, what: str) -> dict:
+    """Parse a TOML file; any problem is a one-line LineupError naming the file.
+
+    ``what`` names the kind of file for the message, e.g. "a lineup file".
+    """
+    import tomllib
+    from pathlib import Path
+
+    name = str(path)
+    try:
+        text = Path(path).read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise LineupError(f"file not found: expected {what} (TOML)", file=name) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise LineupError(
+            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name
+        ) from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise LineupError(f"not valid TOML: {exc}", file=name) from None
+
+
 class Fields:
     """Reader for one table.
 

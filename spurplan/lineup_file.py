@@ -19,12 +19,11 @@ File layout (key names are the interface: extend, don't rename)::
 
 from __future__ import annotations
 
-import tomllib
 from pathlib import Path
 
 from . import engine
 from .errors import LineupError
-from .fields import Fields
+from .fields import Fields, read_toml
 from .filters import BEYOND_POLICIES
 from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup, ReportSpec
 from .mask_files import read_mask
@@ -56,18 +55,7 @@ def load(path: str | Path) -> Lineup:
     """
     path = Path(path)
     name = str(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise LineupError("file not found: expected a lineup file (TOML)", file=name) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise LineupError(
-            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name
-        ) from None
-    try:
-        doc = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise LineupError(f"not valid TOML: {exc}", file=name) from None
+    doc = read_toml(path, "a lineup file")
     return from_dict(doc, name=name, base_dir=path.parent, source=path)
 
 

@@ -37,12 +37,11 @@ from __future__ import annotations
 import itertools
 import math
 import re
-import tomllib
 from dataclasses import replace
 from pathlib import Path
 
 from .errors import LineupError, UnitError
-from .fields import Fields, _did_you_mean
+from .fields import Fields, _did_you_mean, read_toml
 from .masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
 from .resources import data_dir
 from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
@@ -77,16 +76,7 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
     """
     path = Path(path)
     file = str(path)
-    try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise LineupError("file not found: expected a rule set file (TOML)", file=file) from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise LineupError(
-            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=file
-        ) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise LineupError(f"not valid TOML: {exc}", file=file) from None
+    doc = read_toml(path, "a rule set file")
     top = Fields(doc, file, "")
     for key in ("ruleset", "rule", "band"):
         top.raw(key)
