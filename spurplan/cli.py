@@ -400,7 +400,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
     dstep = _parse("db", step, "--step")
     size = _size(plot_size)
     lu = _load(lineup)
-    n = len(sweep_points(lo, hi, dstep, "drive", "dBm"))
+    n = len(sweep_points(lo, hi, dstep, "drive", "dBm", "dB"))
     with _progress(n, "drive sweep") as bar:
         sw = drive_sweep(
             lu,

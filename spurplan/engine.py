@@ -73,7 +73,10 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     grid[(slice(None), *neg)] += 0.5 * np.conj(x_phasors)
     samples = sfft.ifftn(grid, axes=axes, norm="forward").real
     flat = samples.reshape(batch, -1)
-    return torus_coefficients(transfer(samples), mix), flat.min(axis=1), flat.max(axis=1)
+    # Absurd figures can overflow the model; propagate() turns that into an error.
+    with np.errstate(over="ignore", invalid="ignore"):
+        out = transfer(samples)
+    return torus_coefficients(out, mix), flat.min(axis=1), flat.max(axis=1)
 
 
 def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
@@ -282,6 +285,14 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
     nodes, added, resp, extrap, conv, beyond = [x], [], [], [], [], []
     for stage in stages:
         h = response_at(stage.response, freqs_hz)
+        if not np.all(np.isfinite(h)):
+            b, p = np.argwhere(~np.isfinite(h))[0]
+            from .errors import LineupError
+
+            raise LineupError(
+                f"the response is not a finite number at {abs(freqs_hz[b, p]):.6g} Hz: expected a usable S21",
+                stage=f"stage {stage.name!r}",
+            )
         transfer = stage.transfer
         if transfer is None:
             y = h * x
@@ -300,6 +311,14 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
             extrap.append((res.peak_neg_v < lo) | (res.peak_pos_v > hi))
             conv.append(res.converged)
         y = np.where(dc, 0.0, y)
+        if not np.all(np.isfinite(y)):
+            from .errors import LineupError
+
+            raise LineupError(
+                "the model's output is not a finite number at this drive: expected figures and drive "
+                "that a real stage could have",
+                stage=f"stage {stage.name!r}",
+            )
         beyond.append(_beyond_data(stage.data_range_hz, freqs_hz, x, y))
         added.append(y - h * x)
         resp.append(h)

@@ -51,7 +51,9 @@ class LineupError(SpurplanError, ValueError):
         if self.field:
             parts.append(f"field '{self.field}'")
         prefix = ": ".join(parts)
-        return f"{prefix}: {self.message}" if prefix else self.message
+        text = f"{prefix}: {self.message}" if prefix else self.message
+        # One line, whatever a value holds (a name with a line break, say).
+        return " ".join(text.split())
 
 
 @dataclass(eq=False)
@@ -64,11 +66,16 @@ class OutOfDataRange(SpurplanError, ValueError):
     data_stop_hz: float
     product: str = ""
     hint: str = ""
+    file: str | None = None
+    data_file: str | None = None
 
     def __str__(self) -> str:
         what = f"product {self.product} at " if self.product else ""
         tail = f"; {self.hint}" if self.hint else ""
-        return (
-            f"stage '{self.stage}': {what}{self.freq_hz:.6g} Hz is outside the "
-            f"S-parameter data ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz){tail}"
+        head = f"{self.file}: " if self.file else ""
+        data = f" of {self.data_file}" if self.data_file else ""
+        text = (
+            f"{head}stage '{self.stage}': {what}{self.freq_hz:.6g} Hz is outside the "
+            f"S-parameter data{data} ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz){tail}"
         )
+        return " ".join(text.split())

@@ -28,17 +28,47 @@ def read_toml(path, what: str) -> dict:
 
     name = str(path)
     try:
-        text = Path(path).read_text(encoding="utf-8")
+        # utf-8-sig: a byte-order mark (some Windows editors write one) is not TOML.
+        text = Path(path).read_text(encoding="utf-8-sig")
     except FileNotFoundError:
         raise LineupError(f"file not found: expected {what} (TOML)", file=name) from None
-    except (OSError, UnicodeDecodeError) as exc:
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
         raise LineupError(
             f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name
         ) from None
     try:
         return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise LineupError(f"not valid TOML: {exc}", file=name) from None
+        raise LineupError(f"not valid TOML: {exc}{_line_context(text, str(exc))}", file=name) from None
+
+
+def _line_context(text: str, message: str) -> str:
+    """The offending line of a TOML error, quoted, so the message shows the key."""
+    import re
+
+    m = re.search(r"line (\d+)", message)
+    if not m:
+        return ""
+    lines = text.splitlines()
+    n = int(m.group(1))
+    if not 1 <= n <= len(lines):
+        return ""
+    line = lines[n - 1].strip()
+    return f": {line[:120]!r}" if line else ""
+
+
+def existing_file(base_dir, rel: str, fields: Fields, key: str):
+    """``base_dir / rel`` as an existing file, or a located error (bad names included)."""
+    from pathlib import Path
+
+    try:
+        path = (Path(base_dir) / rel).resolve()
+        ok = path.is_file()
+    except (OSError, ValueError) as exc:
+        raise fields.error(key, f"{rel[:200]!r}: not a usable file name ({exc.__class__.__name__})") from None
+    if not ok:
+        raise fields.error(key, f"{rel[:200]!r}: file not found (looked for {str(path)[:300]})")
+    return path
 
 
 class Fields:

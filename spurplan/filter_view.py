@@ -97,7 +97,12 @@ def stage_view(lineup, name: str) -> FilterView:
     i = lineup.stage_index(name)
     stage = lineup.stages[i - 1]
     if not isinstance(stage, Filter):
-        raise LineupError(f"stage {name!r} is a {type(stage).__name__.lower()}: expected a filter stage")
+        kind = type(stage).__name__.lower()
+        raise LineupError(
+            f"{name!r} is {'an' if kind[0] in 'aeiou' else 'a'} {kind} stage: expected a filter stage",
+            file=None if lineup.source is None else str(lineup.source),
+            field="--stage",
+        )
     result = lineup.run()
     what = stage.source or "synthesized ladder"
     return FilterView(

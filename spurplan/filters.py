@@ -55,6 +55,7 @@ MAX_FILTER_ORDER = 15
 BEYOND_POLICIES: tuple[str, ...] = ("error", "hold", "no_rejection")
 # Frequencies below this (Hz) are evaluated here: 0 Hz would make capacitors open.
 _MIN_EVAL_HZ = 1.0
+_OPEN_CONDUCTANCE_S = 1e-15
 
 
 def butterworth_g(order: int) -> np.ndarray:
@@ -172,7 +173,12 @@ def _arm_impedance(el: Element, w: np.ndarray, proto: Prototype) -> np.ndarray:
         return z_c
     if z_c is None:
         return z_l
-    return z_l + z_c if el.branch == "series" else 1.0 / (1.0 / z_l + 1.0 / z_c)
+    if el.branch == "series":
+        return z_l + z_c
+    # A lossless parallel resonator is an open circuit at resonance, where the two
+    # admittances cancel exactly; a conductance far below any real part (1e-15 S)
+    # keeps the impedance finite there without changing the response elsewhere.
+    return 1.0 / (1.0 / z_l + 1.0 / z_c + _OPEN_CONDUCTANCE_S)
 
 
 def ladder_s21(

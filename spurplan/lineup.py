@@ -161,8 +161,9 @@ class Lineup:
             lo_i += 1
         return vecs
 
-    def stage_index(self, name: str) -> int:
-        """1-based position of the stage called ``name`` (node number)."""
+    def stage_index(self, name: str, option: str = "--stage") -> int:
+        """1-based position of the stage called ``name`` (node number); ``option`` names
+        the command-line option that gave it, for the error."""
         for i, stage in enumerate(self.stages, start=1):
             if stage.name == name:
                 return i
@@ -170,7 +171,7 @@ class Lineup:
         raise LineupError(
             f"no stage named {name!r}: expected one of {known}",
             file=None if self.source is None else str(self.source),
-            field="--stage",
+            field=option,
         )
 
     def input_phasors(self, mix: np.ndarray, drive_offset_db=0.0) -> np.ndarray:
@@ -240,4 +241,6 @@ class Lineup:
             data_stop_hz=hi,
             product=label(mix[p] * (1 if f >= 0 else -1), self.tone_names),
             hint='set [analysis] beyond_data = "hold" or "no_rejection" to proceed, or extend the data',
+            file=None if self.source is None else str(self.source),
+            data_file=getattr(stage, "source", None),
         )

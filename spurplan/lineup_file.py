@@ -187,7 +187,7 @@ def _report(table, file: str) -> ReportSpec:
         step = sub.quantity("step", parse_gain_db if key == "drive" else parse_freq_hz, required=True)
         sub.finish()
         try:
-            sweep_points(start, stop, step, what, unit)
+            sweep_points(start, stop, step, what, unit, "dB" if key == "drive" else unit)
         except SweepError as exc:
             raise f.error(key, str(exc).replace("--", "")) from None
         out[key] = (start, stop, step)

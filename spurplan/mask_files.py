@@ -41,7 +41,7 @@ from dataclasses import replace
 from pathlib import Path
 
 from .errors import LineupError, UnitError
-from .fields import Fields, _did_you_mean, read_toml
+from .fields import Fields, _did_you_mean, existing_file, read_toml
 from .masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
 from .resources import data_dir
 from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
@@ -328,10 +328,7 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
     if not isinstance(files, list) or not all(isinstance(p, str) for p in files):
         raise f.error("files", f"{files!r}: expected a list of file names")
     for rel in files:
-        path = (base_dir / rel).resolve()
-        if not path.is_file():
-            raise f.error("files", f"{rel!r}: file not found (looked for {path})")
-        sets.append(load_ruleset(path))
+        sets.append(load_ruleset(existing_file(base_dir, rel, f, "files")))
     inline_rules = tuple(
         read_rule(
             Fields(t, file, f"[[mask.rule]] {i}"),

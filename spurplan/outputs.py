@@ -24,15 +24,21 @@ def write_atomic(path: str | Path, data: bytes | str) -> Path:
     payload = data.encode("utf-8") if isinstance(data, str) else data
     folder = path.parent if str(path.parent) else Path(".")
     try:
-        fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{path.name}.", suffix=".part")
-    except OSError as exc:
-        raise OutputError(f"{path}: cannot write ({exc.strerror}): expected a writable folder") from None
+        fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{path.name[:80]}.", suffix=".part")
+    except (OSError, ValueError) as exc:
+        reason = getattr(exc, "strerror", None) or str(exc)
+        raise OutputError(f"{path}: cannot write ({reason}): expected a writable folder") from None
     try:
         with os.fdopen(fd, "wb") as handle:
             handle.write(payload)
         # mkstemp makes the file private (0600); give it the usual permissions.
         os.chmod(tmp, 0o666 & ~_umask())
         os.replace(tmp, path)
+    except OSError as exc:
+        Path(tmp).unlink(missing_ok=True)
+        raise OutputError(
+            f"{path}: cannot write ({exc.strerror or exc.__class__.__name__}): expected room on a writable disk"
+        ) from None
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise

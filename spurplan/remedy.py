@@ -219,7 +219,7 @@ def _mhz(hz: float) -> str:
 
 def _position(lineup, at: str | None) -> int:
     if at is not None:
-        return lineup.stage_index(at)
+        return lineup.stage_index(at, option="--at")
     amps = [i for i, s in enumerate(lineup.stages, start=1) if isinstance(s, Amplifier)]
     return amps[-1] if amps else len(lineup.stages)
 

@@ -55,8 +55,11 @@ def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
     index = lineup.stage_index(stage)
     mixer = lineup.stages[index - 1]
     if not isinstance(mixer, Mixer):
+        kind = type(mixer).__name__.lower()
         raise LineupError(
-            f"stage {stage!r} is a {type(mixer).__name__.lower()}: expected a mixer stage", field="--stage"
+            f"{stage!r} is {'an' if kind[0] in 'aeiou' else 'a'} {kind} stage: expected a mixer stage",
+            file=None if lineup.source is None else str(lineup.source),
+            field="--stage",
         )
     k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
     if_hz = lineup.carriers[k].freq_hz

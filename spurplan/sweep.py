@@ -30,17 +30,24 @@ class SweepError(SpurplanError, ValueError):
     """Sweep arguments that do not make a sweep."""
 
 
-def sweep_points(start: float, stop: float, step: float, what: str, unit: str) -> np.ndarray:
+def sweep_points(
+    start: float, stop: float, step: float, what: str, unit: str, step_unit: str | None = None
+) -> np.ndarray:
     """``start, start + step, ... <= stop``; errors name the argument and the value."""
+    step_unit = step_unit or unit
     if not (math.isfinite(start) and math.isfinite(stop) and math.isfinite(step)):
         raise SweepError(f"--start/--stop/--step: expected finite {what}s")
     if step <= 0:
-        raise SweepError(f"--step {step:g} {unit}: expected a step > 0")
+        raise SweepError(f"--step {step:g} {step_unit}: expected a step > 0")
     if stop < start:
         raise SweepError(f"--stop {stop:g} {unit} is below --start {start:g} {unit}: expected stop >= start")
-    n = math.floor((stop - start) / step * (1 + 1e-12)) + 1
-    if n > MAX_POINTS:
-        raise SweepError(f"{n} {what} points: expected at most {MAX_POINTS} (use a larger --step)")
+    count = (stop - start) / step
+    if not count < MAX_POINTS:
+        shown = f"{count:.3g}" if math.isfinite(count) else "too many"
+        raise SweepError(
+            f"--step {step:g} {step_unit} makes {shown} {what} points: expected at most {MAX_POINTS} (use a larger --step)"
+        )
+    n = math.floor(count * (1 + 1e-12)) + 1
     return start + step * np.arange(n)
 
 
@@ -63,9 +70,12 @@ def read_channels(path) -> np.ndarray:
         if not text:
             continue
         try:
-            out.append(parse_freq_hz(text))
+            value = parse_freq_hz(text)
         except UnitError as exc:
             raise LineupError(str(exc), file=f"{path}:{n}") from None
+        if value <= 0:
+            raise LineupError(f"{text!r}: expected a carrier frequency > 0 Hz", file=f"{path}:{n}")
+        out.append(value)
     if not out:
         raise LineupError("no frequencies: expected one per line, e.g. '462.5625 MHz'", file=str(path))
     if len(out) > MAX_POINTS:
@@ -203,7 +213,7 @@ def drive_sweep(
     require_mask(lineup)
     k = _strongest(lineup)
     nominal = lineup.carriers[k].power_dbm
-    points = sweep_points(start_dbm, stop_dbm, step_db, "drive", "dBm")
+    points = sweep_points(start_dbm, stop_dbm, step_db, "drive", "dBm", "dB")
     offsets = points - nominal
     if target_output:
         offsets = _inputs_for_outputs(lineup, points, combine)

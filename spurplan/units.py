@@ -31,7 +31,8 @@ _DISTANCE_SCALE = {"m": 1.0, "km": 1e3, "cm": 1e-2}
 # converted), not transmitters.
 MAX_FREQ_HZ = 1e12
 POWER_RANGE_DBM = (-300.0, 100.0)
-GAIN_RANGE_DB = (-400.0, 200.0)
+GAIN_RANGE_DB = (-300.0, 100.0)
+IMPEDANCE_RANGE_OHM = (1e-3, 1e6)
 
 FREQ_UNITS = "a frequency with its unit (Hz, kHz, MHz or GHz), e.g. '455 MHz'"
 POWER_UNITS = "a power with its unit (dBm, dBW, W, mW or uW), e.g. '-8 dBm'"
@@ -145,7 +146,12 @@ def parse_impedance_ohm(text: object) -> float:
     scale = _IMPEDANCE_SCALE.get(unit.lower())
     if scale is None or value <= 0:
         raise UnitError(text, f"{IMPEDANCE_UNITS} (> 0)")
-    return value * scale
+    ohm = value * scale
+    if not IMPEDANCE_RANGE_OHM[0] <= ohm <= IMPEDANCE_RANGE_OHM[1]:
+        raise UnitError(
+            text, f"{IMPEDANCE_UNITS} (from {IMPEDANCE_RANGE_OHM[0]:g} to {IMPEDANCE_RANGE_OHM[1]:g} ohm)"
+        )
+    return ohm
 
 
 def parse_angle_rad(text: object) -> float:

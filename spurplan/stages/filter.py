@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..fields import Fields
+from ..fields import Fields, existing_file
 from ..filters import (
     FAMILIES,
     MAX_FILTER_ORDER,
@@ -35,6 +35,11 @@ from ..filters import (
 from ..units import parse_freq_hz, parse_gain_db
 from .base import LoadContext
 
+# Below this (Hz) a filter edge or bandwidth is a typing mistake, and its element
+# values overflow.
+MIN_EDGE_HZ = 1.0
+# Unloaded Q of real inductors and capacitors lies well inside this.
+Q_RANGE = (0.5, 1e12)
 # |S21| above this (dB) in a filter file is not a passive filter.
 _PASSIVE_SLACK_DB = 0.5
 
@@ -72,7 +77,11 @@ class Filter:
     def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
         """Full 2x2 S-matrix at ``freq_hz`` (any shape), shape ``freq_hz.shape + (2, 2)``."""
         f = np.asarray(freq_hz, dtype=float)
-        uniq, inverse = np.unique(f, return_inverse=True)
+        # Ladders are evaluated from 1 Hz up (0 Hz would open every capacitor); clamp
+        # first so that the frequencies handed to scikit-rf stay strictly increasing.
+        uniq, inverse = np.unique(
+            np.maximum(f, 1.0) if self.prototype is not None else f, return_inverse=True
+        )
         key = uniq.tobytes()
         s = self._cache.get(key)
         if s is None:
@@ -166,8 +175,11 @@ def read_prototype(fields: Fields) -> Prototype:
         if cutoff is None or center is not None or bandwidth is not None:
             raise sub.error("cutoff", f"expected 'cutoff' (and no 'center' or 'bandwidth') for a {response}")
         edge = cutoff
-    if edge <= 0:
-        raise sub.error("cutoff" if response != "bandpass" else "center", "expected a frequency > 0 Hz")
+    if edge < MIN_EDGE_HZ or (bandwidth is not None and bandwidth < MIN_EDGE_HZ):
+        raise sub.error(
+            "cutoff" if response != "bandpass" else "center",
+            f"expected an edge and bandwidth of at least {MIN_EDGE_HZ:g} Hz",
+        )
     q_l = _q(sub, "q_inductor")
     q_c = _q(sub, "q_capacitor")
     first = sub.text("first", default="shunt", choices=("shunt", "series"))
@@ -189,13 +201,13 @@ def _q(sub: Fields, key: str) -> float | None:
     value = sub.raw(key)
     if value is None:
         return None
+    lo, hi = Q_RANGE
     if (
         isinstance(value, bool)
         or not isinstance(value, (int, float))
-        or not math.isfinite(value)
-        or value <= 0
+        or not (math.isfinite(value) and lo <= value <= hi)
     ):
-        raise sub.error(key, f"{value!r}: expected an unloaded Q, a number > 0")
+        raise sub.error(key, f"{value!r}: expected an unloaded Q, a number from {lo:g} to {hi:g}")
     return float(value)
 
 
@@ -207,9 +219,8 @@ def read_touchstone(fields: Fields, context: LoadContext):
     port = fields.raw("input_port", 1)
     if port not in (1, 2) or isinstance(port, bool):
         raise fields.error("input_port", f"{port!r}: expected 1 or 2")
-    path = (context.base_dir / rel).resolve()
-    if not path.is_file():
-        raise fields.error("touchstone", f"{rel!r}: file not found (looked for {path})")
+    path = existing_file(context.base_dir, rel, fields, "touchstone")
+    _precheck_touchstone(path, rel, fields)
     import skrf
 
     notes = []
@@ -245,6 +256,72 @@ def read_touchstone(fields: Fields, context: LoadContext):
         notes.append(f"{rel}: |S21| reaches {peak:+.2f} dB, more than a passive filter can")
     beyond = context.beyond_data
     return SParameterTable.from_s21(f, s21, beyond), _SMatrixTable(f, s, beyond), notes
+
+
+_NUMBER_FORMATS = ("ri", "ma", "db")
+
+
+def _precheck_touchstone(path, rel: str, fields: Fields) -> None:
+    """Reject what a Touchstone reader would misread silently (version 1 files).
+
+    Every data value a number; 1- and 2-port files one frequency point of
+    ``1 + 2 N^2`` values per line, larger ones whole points over several lines (N from
+    the file's extension); frequencies finite and non-negative in the unit of the
+    option line; magnitudes not negative in MA form (Touchstone file format
+    specification, version 1.1; from memory).
+    """
+    import re
+
+    def bad(message: str):
+        return fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {message}")
+
+    try:
+        text = path.read_text(encoding="utf-8", errors="strict")
+    except (OSError, UnicodeDecodeError) as exc:
+        raise bad(f"{exc.__class__.__name__}, expected a text file") from None
+    m = re.search(r"\.s(\d+)p$", str(path).lower())
+    if m is None:
+        raise bad("expected a file name ending in .s2p")
+    ports = int(m.group(1))
+    per_point = 1 + 2 * ports * ports
+    rows, form, unit = [], "ma", 1e9
+    for n, line in enumerate(text.splitlines(), start=1):
+        body = line.split("!", 1)[0].strip()
+        if not body:
+            continue
+        if body.startswith("["):
+            return  # Touchstone 2.0 keywords: leave the layout to the reader
+        if body.startswith("#"):
+            words = body[1:].lower().split()
+            form = next((w for w in words if w in _NUMBER_FORMATS), "ma")
+            unit = next((_UNITS[w] for w in words if w in _UNITS), 1e9)
+            continue
+        values = []
+        for token in body.split():
+            try:
+                values.append(float(token))
+            except ValueError:
+                raise bad(f"line {n}: {token[:40]!r} is not a number") from None
+        if ports <= 2 and len(values) != per_point:
+            raise bad(f"line {n} holds {len(values)} values: expected {per_point} for a {ports}-port file")
+        rows.extend(values)
+    if not rows:
+        raise bad("no data, expected rows of frequency and S-parameters")
+    if len(rows) % per_point:
+        raise bad(
+            f"{len(rows)} values: expected whole frequency points of {per_point} for a {ports}-port file"
+        )
+    data = np.array(rows).reshape(-1, per_point)
+    with np.errstate(over="ignore"):
+        freq = data[:, 0] * unit
+    wrong = ~(np.isfinite(freq) & (freq >= 0))
+    if wrong.any():
+        raise bad(f"frequency {data[wrong, 0][0]:g}: expected finite frequencies >= 0")
+    if form == "ma" and np.any(data[:, 1::2] < 0):
+        raise bad("negative magnitude in MA data, expected magnitudes >= 0 (is the file RI?)")
+
+
+_UNITS = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
 
 
 @dataclass(frozen=True)
