@@ -86,6 +86,10 @@ def _combine_option(f):
     )(f)
 
 
+def _plot_option(help_text: str):
+    return click.option("--plot", "plot_file", type=click.Path(dir_okay=False), help=help_text)
+
+
 def _plot_size_option(f):
     return click.option(
         "--plot-size", default="1200x700", show_default=True, help="Figure size in pixels, WIDTHxHEIGHT."
@@ -273,12 +277,7 @@ def _size(text: str) -> tuple[int, int]:
 @_lineup_arg
 @_format_option
 @_combine_option
-@click.option(
-    "--plot",
-    "plot_file",
-    type=click.Path(dir_okay=False),
-    help="Draw the spectrum against the mask (PNG/SVG/PDF).",
-)
+@_plot_option("Draw the spectrum against the mask (PNG/SVG/PDF).")
 @_plot_size_option
 def check(lineup, fmt, combine, plot_file, plot_size):
     """Check every product at the output of LINEUP against its [mask].
@@ -457,12 +456,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 )
 @_format_option
 @_combine_option
-@click.option(
-    "--plot",
-    "plot_file",
-    type=click.Path(dir_okay=False),
-    help="Draw product frequency against carrier frequency.",
-)
+@_plot_option("Draw product frequency against carrier frequency.")
 @_plot_size_option
 def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
@@ -608,12 +602,7 @@ def report(lineup, out_file):
 )
 @click.option("--all", "show_all", is_flag=True, help="Also list products the model puts at no level.")
 @_format_option
-@click.option(
-    "--plot",
-    "plot_file",
-    type=click.Path(dir_okay=False),
-    help="Draw product frequency against LO frequency.",
-)
+@_plot_option("Draw product frequency against LO frequency.")
 @click.option("--lo-start", help="LO range for the plot, e.g. '1.1 GHz' (default: LO -20 %).")
 @click.option("--lo-stop", help="LO range for the plot (default: LO +20 %).")
 @_plot_size_option
