@@ -186,7 +186,16 @@ def remedy(
         if found:
             worst, snippet, flt, outcome = max(found, key=lambda t: t[0])
             return result(snippet=snippet, filter=flt, outcome=outcome, tried=tried)
-    return result(tried=tried, reason=f"no {kind} filter up to order {MAX_FILTER_ORDER} meets the target")
+    nearest = min(needed["freq_hz"], key=lambda f: min(abs(f - lo), abs(f - hi)))
+    gap = min(abs(nearest - lo), abs(nearest - hi)) / hi
+    reason = f"no {kind} filter up to order {MAX_FILTER_ORDER} meets the target"
+    if gap < edge_factor - 1:
+        label = needed["label"][needed["freq_hz"].index(nearest)]
+        reason += (
+            f": {label} at {nearest / 1e6:.6g} MHz lies within {100 * gap:.2g} % of the carrier, too close for a "
+            "filter to separate; change the frequency plan (with a mixer, the LO side: see spurplan spurs)"
+        )
+    return result(tried=tried, reason=reason)
 
 
 def _shape(

@@ -234,7 +234,7 @@ def _lineup_section(lineup) -> Section:
 
 
 def _figures_text(stage) -> str:
-    from .stages import Amplifier, Attenuator, Filter
+    from .stages import Amplifier, Attenuator, Filter, Mixer
 
     if isinstance(stage, Amplifier):
         f = stage.figures
@@ -247,6 +247,12 @@ def _figures_text(stage) -> str:
         return ", ".join(parts)
     if isinstance(stage, Attenuator):
         return f"loss {stage.loss_db:g} dB"
+    if isinstance(stage, Mixer):
+        return (
+            f"LO {stage.lo_freq_hz / 1e6:g} MHz at {stage.lo_power_dbm:+g} dBm, conversion gain "
+            f"{stage.conversion_gain_db:+g} dB, {stage.sideband} sideband wanted, {len(stage.table)} spur-table terms "
+            f"at {stage.spur_drive_dbm:+g} dBm IF"
+        )
     if isinstance(stage, Filter):
         if stage.prototype is not None:
             p = stage.prototype

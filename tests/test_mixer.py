@@ -192,7 +192,7 @@ def test_if_mixer_bandpass_pa_lowpass_equals_brute_force():
 
 
 def test_upconverter_example_low_side_lo_puts_2lo_minus_if_in_the_passband():
-    # Invented example: IF 295 MHz to 900 MHz. Low-side LO 595 MHz: 2 x 595 - 295 = 895
+    # Invented example: IF 295 MHz to 900 MHz. Low-side LO 605 MHz: 2 x 605 - 295 = 915
     # MHz (arithmetic) lands inside the 880-920 MHz band-pass and fails; the high-side
     # LO (1195 MHz, lower sideband) puts no tabulated product there and passes.
     low = spurplan.load(example_path("upconverter_low_side.toml"))
@@ -202,7 +202,7 @@ def test_upconverter_example_low_side_lo_puts_2lo_minus_if_in_the_passband():
     assert spur_chart(high, "mixer").summary()["in_passband"] == []
     outcome = check(low)
     assert not outcome.passed and outcome.rows["label"][outcome.worst] == "2LO-IF"
-    assert outcome.rows["freq_hz"][outcome.worst] == pytest.approx(895e6)
+    assert outcome.rows["freq_hz"][outcome.worst] == pytest.approx(915e6)
     assert check(high).passed
     out = CliRunner().invoke(
         main, ["spurs", str(example_path("upconverter_low_side.toml")), "--stage", "mixer"]
