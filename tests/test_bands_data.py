@@ -23,9 +23,8 @@ import tomllib
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from helpers import assert_one_error_line, invoke, run_in_process
 
-from spurplan.cli import main
 from spurplan.mask_files import load_ruleset, shipped_names, shipped_path
 from spurplan.masks import STATUSES
 from spurplan.resources import data_dir
@@ -612,22 +611,8 @@ def test_gnss_bands_lie_in_the_rnss_allocations():
 # --- (c) spurplan bands ---------------------------------------------------------------------------
 
 
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
-
-
-def _invoke(*args):
-    result = _runner().invoke(main, list(args))
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        raise result.exception
-    return result
-
-
 def test_bands_lists_every_shipped_name():
-    result = _invoke("bands")
+    result = invoke("bands")
     assert result.exit_code == 0, result.stderr
     for name in NAMES:
         assert name in result.stdout
@@ -636,7 +621,7 @@ def test_bands_lists_every_shipped_name():
 
 @pytest.mark.parametrize("name", NAMES)
 def test_bands_name_shows_its_source(name):
-    result = _invoke("bands", name)
+    result = invoke("bands", name)
     assert result.exit_code == 0, result.stderr
     assert _raw(name)["ruleset"]["source"] in result.stdout
     assert name in result.stdout
@@ -644,7 +629,7 @@ def test_bands_name_shows_its_source(name):
 
 @pytest.mark.parametrize("name", ["us-fcc-15.205", "itu-rr-5.149"])
 def test_bands_name_json_lists_every_entry(name):
-    result = _invoke("bands", name, "--format", "json")
+    result = invoke("bands", name, "--format", "json")
     assert result.exit_code == 0, result.stderr
     doc = json.loads(result.stdout)
     raw = _raw(name)
@@ -656,24 +641,19 @@ def test_bands_name_json_lists_every_entry(name):
     assert all(e["status"] in STATUSES and e["source"] for e in entries)
 
 
-def _one_error_line(result) -> str:
-    assert "Traceback" not in result.stderr, result.stderr
-    assert result.exit_code == 2, result.stderr
-    assert result.stdout == ""
-    lines = result.stderr.splitlines()
-    assert len(lines) == 1, result.stderr
-    assert lines[0].startswith("spurplan: error: ")
-    return lines[0]
+def _one_error_line(*args) -> str:
+    code, out, err, detail, _ = run_in_process(args)
+    return assert_one_error_line(code, out, err, detail=detail)
 
 
 def test_bands_unknown_name_suggests_the_close_one():
-    line = _one_error_line(_invoke("bands", "us-fcc-97.30"))
+    line = _one_error_line("bands", "us-fcc-97.30")
     assert "'us-fcc-97.30'" in line
     assert "did you mean 'us-fcc-97.307'" in line
 
 
 def test_bands_unknown_name_lists_the_names():
-    line = _one_error_line(_invoke("bands", "no-such-set"))
+    line = _one_error_line("bands", "no-such-set")
     assert "'no-such-set'" in line
     for name in NAMES:
         assert name in line

@@ -11,16 +11,14 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
-import json
 import struct
 import tomllib
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
+from helpers import as_json, invoke, write
 
 import spurplan
-from spurplan.cli import main
 from spurplan.mask_files import shipped_path
 from spurplan.resources import example_path
 
@@ -89,36 +87,6 @@ combine = "worst"
 MIXED = HAND.replace(
     'h2 = "-40 dBc @ +30 dBm"\n', 'h2 = "-40 dBc @ +30 dBm"\nh3 = "-80 dBc @ +30 dBm"\n'
 ).replace("hand-worked 2nd harmonic", "one fail, one pass")
-
-
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
-
-
-def invoke(*args, expect=0):
-    result = _runner().invoke(main, [str(a) for a in args])
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        raise result.exception
-    assert result.exit_code == expect, (result.exit_code, result.stderr, result.stdout)
-    assert "Traceback" not in result.stderr
-    return result
-
-
-def _no_constants(name):
-    raise AssertionError(f"JSON output contains {name}, which is not valid JSON")
-
-
-def as_json(text: str):
-    return json.loads(text, parse_constant=_no_constants)
-
-
-def write(tmp_path: Path, name: str, text: str) -> Path:
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="module")

@@ -10,19 +10,14 @@ import csv
 import hashlib
 import importlib.metadata
 import io
-import json
 import math
-import os
-import subprocess
-import sys
 import tomllib
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
+from helpers import as_json, invoke, run_cli, write
 
 import spurplan
-from spurplan.cli import main
 
 PRODUCT_KEYS = {
     "freq_hz": float,
@@ -90,35 +85,6 @@ kind = "attenuator"
 name = "pad2"
 loss = "3 dB"
 """
-
-
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
-
-
-def invoke(*args, expect=0):
-    result = _runner().invoke(main, [str(a) for a in args])
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        raise result.exception
-    assert result.exit_code == expect, result.stderr
-    return result
-
-
-def _no_constants(name):
-    raise AssertionError(f"JSON output contains {name}, which is not valid JSON")
-
-
-def as_json(text: str):
-    return json.loads(text, parse_constant=_no_constants)
-
-
-def write(tmp_path: Path, name: str, text: str) -> Path:
-    path = tmp_path / name
-    path.write_text(text, encoding="utf-8")
-    return path
 
 
 @pytest.fixture(scope="module")
@@ -300,7 +266,7 @@ def test_budget_of_a_linear_amplifier_is_clean(tmp_path):
     text = '[[carrier]]\nfreq = "455 MHz"\npower = "-8 dBm"\n'
     text += '[[stage]]\nkind = "amplifier"\nname = "linear"\ngain = "16 dB"\n'
     path = write(tmp_path, "linear.toml", text)
-    proc = _run(["budget", str(path), "--format", "json"], cwd=tmp_path)
+    proc = run_cli(["budget", str(path), "--format", "json"], cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     assert proc.stderr == ""
     (row,) = as_json(proc.stdout)["stages"]
@@ -384,25 +350,13 @@ def test_bad_format_is_one_line_error(tmp_path):
 # --- bundled example, version, help ----------------------------------------------------------------
 
 
-def _run(args, cwd):
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1")
-    return subprocess.run(
-        [sys.executable, "-m", "spurplan.cli", *args],
-        capture_output=True,
-        text=True,
-        cwd=cwd,
-        env=env,
-        timeout=120,
-    )
-
-
 @pytest.mark.parametrize(
     "args",
     [["spectrum"], ["spectrum", "--format", "json"], ["budget"], ["budget", "--format", "csv"]],
     ids=lambda a: " ".join(a),
 )
 def test_bundled_example_from_another_directory(args, tmp_path):
-    proc = _run(args, cwd=tmp_path)
+    proc = run_cli(args, cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
     assert "Traceback" not in proc.stderr
     assert proc.stdout.strip()

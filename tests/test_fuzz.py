@@ -27,7 +27,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from click.testing import CliRunner
+from helpers import cli_runner
 from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 
@@ -589,13 +589,6 @@ CLI_COMMANDS = [
 ]
 
 
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()
-
-
 @settings(FAST, max_examples=40)
 @given(text=lineup_texts(), command=st.sampled_from(CLI_COMMANDS))
 def test_cli_exits_0_1_or_2_without_traceback(text, command, fuzz_dir):
@@ -603,7 +596,7 @@ def test_cli_exits_0_1_or_2_without_traceback(text, command, fuzz_dir):
     path = fuzz_dir / "cli.toml"
     path.write_bytes(text.encode("utf-8", "surrogatepass"))
     args = [command[0], str(path), *command[1:]]
-    result = _runner().invoke(main, args)
+    result = cli_runner().invoke(main, args)
     note(f"exit {result.exit_code}\n{result.stderr}")
     if result.exception is not None and not isinstance(result.exception, SystemExit):
         raise result.exception

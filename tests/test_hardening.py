@@ -27,6 +27,7 @@ temporary ``.NAME.*.part`` file, then ``os.replace``).
 from __future__ import annotations
 
 import csv
+import functools
 import gc
 import io
 import os
@@ -38,9 +39,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
-
-from spurplan.cli import main
+from helpers import assert_one_error_line, run_cli, run_in_process
 
 try:
     import resource
@@ -523,89 +522,38 @@ def _fill(items, tmp: Path) -> list[str]:
     return [s.replace("{tmp}", str(tmp)) for s in items]
 
 
-def assert_one_error(code, stdout: str, stderr: str, needles=(), forbid=(), detail: str = "") -> str:
-    """The contract: exit 2, no traceback, one error line (besides notes); returns that line."""
-    context = (
-        f"\n--- exit {code} ---\n--- stdout ---\n{stdout[:2000]}\n--- stderr ---\n{stderr[:4000]}{detail}"
-    )
-    assert "Traceback" not in stderr and "Traceback" not in stdout, context
-    assert code == 2, context
-    lines = stderr.splitlines()
-    errors = [ln for ln in lines if ln.startswith("spurplan: error:")]
-    assert len(errors) == 1, context
-    others = [ln for ln in lines if not ln.startswith("spurplan: error:")]
-    assert all(ln.startswith(("spurplan: note:", "spurplan: warning:")) for ln in others), context
-    line = errors[0]
-    for needle in needles:
-        assert needle in line, f"{needle!r} missing from the error line{context}"
-    for bad in forbid:
-        assert bad not in line, f"{bad!r} should not be in the error line{context}"
-    return line
+# The contract here lets notes and warnings stand beside the one error line (see above).
+assert_one_error = functools.partial(assert_one_error_line, notes_ok=True)
 
 
-def runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
-
-
-def invoke(args):
-    """Run the CLI in-process; returns (exit code, stdout, stderr, detail, seconds)."""
-    t0 = time.perf_counter()
-    result = runner().invoke(main, list(args))
-    seconds = time.perf_counter() - t0
-    detail = ""
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        import traceback
-
-        detail = "\n--- exception ---\n" + "".join(traceback.format_exception(result.exception))
-    return result.exit_code, result.stdout, result.stderr, detail, seconds
-
-
-def _limits() -> None:  # pragma: no cover - runs in the child
-    cap = 2 << 30  # 2 GiB: a runaway allocation fails instead of taking the machine
-    resource.setrlimit(resource.RLIMIT_AS, (cap, cap))
-
-
-def run_cli(args, cwd, timeout: float = 60, env_extra=None):
+def run_limited(args, cwd, timeout: float = 60):
     """Run ``python -m spurplan.cli ARGS`` as a real process, memory-limited; returns
     (CompletedProcess, seconds)."""
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", **(env_extra or {}))
     t0 = time.perf_counter()
-    try:
-        proc = subprocess.run(
-            [sys.executable, "-m", "spurplan.cli", *args],
-            capture_output=True,
-            text=True,
-            cwd=cwd,
-            env=env,
-            timeout=timeout,
-            preexec_fn=_limits if resource is not None else None,
-        )
-    except subprocess.TimeoutExpired:
-        pytest.fail(f"spurplan {' '.join(map(str, args))} did not finish within {timeout} s")
+    proc = run_cli(args, cwd, timeout=timeout, limit_memory=True)
     return proc, time.perf_counter() - t0
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if not c.only_proc], ids=lambda c: c.id)
 def test_malformed_in_process(case, tmp_path):
     _materialise(case, tmp_path)
-    code, out, err, detail, seconds = invoke(_fill(case.args, tmp_path))
+    code, out, err, detail, seconds = run_in_process(_fill(case.args, tmp_path))
     # A handle leaked on a corrupt file is test_corrupt_touchstone_leaves_no_open_file's
     # business: collect it here so that it cannot fail whichever test runs next.
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ResourceWarning)
         gc.collect()
-    assert_one_error(code, out, err, _fill(case.needles, tmp_path), case.forbid, detail)
+    assert_one_error(code, out, err, _fill(case.needles, tmp_path), forbid=case.forbid, detail=detail)
     assert seconds < case.max_seconds, f"took {seconds:.1f} s"
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc or c.only_proc], ids=lambda c: c.id)
 def test_malformed_subprocess(case, tmp_path):
     _materialise(case, tmp_path)
-    proc, seconds = run_cli(_fill(case.args, tmp_path), cwd=tmp_path, timeout=60)
-    assert_one_error(proc.returncode, proc.stdout, proc.stderr, _fill(case.needles, tmp_path), case.forbid)
+    proc, seconds = run_limited(_fill(case.args, tmp_path), cwd=tmp_path, timeout=60)
+    assert_one_error(
+        proc.returncode, proc.stdout, proc.stderr, _fill(case.needles, tmp_path), forbid=case.forbid
+    )
     # A refused sweep is refused before any work: well under the time to import the
     # libraries a few times over.
     assert seconds < 30, f"took {seconds:.1f} s"
@@ -643,7 +591,7 @@ def test_unreadable_touchstone_file(tmp_path):
     try:
         if os.access(locked, os.R_OK):
             pytest.skip("this user can read a file with mode 000 (root)")
-        code, out, err, detail, _ = invoke(["spectrum", str(tmp_path / "l.toml")])
+        code, out, err, detail, _ = run_in_process(["spectrum", str(tmp_path / "l.toml")])
         assert_one_error(
             code,
             out,
@@ -662,7 +610,7 @@ def test_unreadable_lineup_file(tmp_path):
     try:
         if os.access(path, os.R_OK):
             pytest.skip("this user can read a file with mode 000 (root)")
-        code, out, err, detail, _ = invoke(["check", str(path)])
+        code, out, err, detail, _ = run_in_process(["check", str(path)])
         assert_one_error(code, out, err, (str(path), "cannot read"), detail=detail)
     finally:
         path.chmod(0o600)
@@ -678,8 +626,8 @@ def test_crlf_line_endings_load_like_lf(tmp_path):
     lf.write_bytes(MASKED.encode("utf-8"))
     crlf.write_bytes(MASKED.replace("\n", "\r\n").encode("utf-8"))
     assert b"\r\n" in crlf.read_bytes()
-    code_lf, out_lf, err_lf, _, _ = invoke(["spectrum", str(lf), "--format", "csv"])
-    code_crlf, out_crlf, err_crlf, detail, _ = invoke(["spectrum", str(crlf), "--format", "csv"])
+    code_lf, out_lf, err_lf, _, _ = run_in_process(["spectrum", str(lf), "--format", "csv"])
+    code_crlf, out_crlf, err_crlf, detail, _ = run_in_process(["spectrum", str(crlf), "--format", "csv"])
     assert code_crlf == 0, err_crlf + detail
     assert code_lf == 0, err_lf
     assert out_crlf == out_lf
@@ -695,7 +643,7 @@ def test_data_short_of_a_product_runs_under_the_other_policies(policy, tmp_path)
         filter_lineup("short.s2p", f'beyond_data = "{policy}"\n', PA) + '[mask]\nuse = ["itu-sm329-cat-a"]\n'
     )
     (tmp_path / "l.toml").write_text(text, encoding="utf-8")
-    code, out, err, detail, _ = invoke(["check", str(tmp_path / "l.toml"), "--format", "csv"])
+    code, out, err, detail, _ = run_in_process(["check", str(tmp_path / "l.toml"), "--format", "csv"])
     assert code in (0, 1), err + detail
     assert "spurplan: error" not in err
     rows = list(csv.DictReader(io.StringIO(out)))
@@ -715,12 +663,12 @@ def test_lineup_with_a_byte_order_mark(how, tmp_path):
     plain.write_text(MASKED, encoding="utf-8")
     bom.write_bytes(("\ufeff" + MASKED).encode("utf-8"))
     if how == "in-process":
-        code, out, err, detail, _ = invoke(["spectrum", str(bom), "--format", "csv"])
+        code, out, err, detail, _ = run_in_process(["spectrum", str(bom), "--format", "csv"])
     else:
-        proc, _ = run_cli(["spectrum", str(bom), "--format", "csv"], cwd=tmp_path)
+        proc, _ = run_limited(["spectrum", str(bom), "--format", "csv"], cwd=tmp_path)
         code, out, err, detail = proc.returncode, proc.stdout, proc.stderr, ""
     if code == 0:
-        _, want, _, _, _ = invoke(["spectrum", str(plain), "--format", "csv"])
+        _, want, _, _, _ = run_in_process(["spectrum", str(plain), "--format", "csv"])
         assert out == want
     else:
         line = assert_one_error(code, out, err, (str(bom),), detail=detail)
@@ -732,7 +680,9 @@ def test_stage_name_100_kb_is_fine_or_one_line(tmp_path):
     name = "x" * 100_000
     text = CARRIER_100 + f'[[stage]]\nkind = "amplifier"\nname = "{name}"\ngain = "10 dB"\noip3 = "+30 dBm"\n'
     (tmp_path / "l.toml").write_text(text, encoding="utf-8")
-    code, out, err, detail, seconds = invoke(["spectrum", str(tmp_path / "l.toml"), "--format", "csv"])
+    code, out, err, detail, seconds = run_in_process(
+        ["spectrum", str(tmp_path / "l.toml"), "--format", "csv"]
+    )
     assert seconds < 10, f"took {seconds:.1f} s"
     assert "Traceback" not in err, detail
     if code == 2:
@@ -746,7 +696,7 @@ def test_stage_name_100_kb_subprocess(tmp_path):
     name = "y" * 100_000
     text = CARRIER_100 + f'[[stage]]\nkind = "amplifier"\nname = "{name}"\ngain = "10 dB"\nloss = "1 dB"\n'
     (tmp_path / "l.toml").write_text(text, encoding="utf-8")
-    proc, seconds = run_cli(["spectrum", str(tmp_path / "l.toml")], cwd=tmp_path)
+    proc, seconds = run_limited(["spectrum", str(tmp_path / "l.toml")], cwd=tmp_path)
     # "loss" is not an amplifier key: one line, even with a huge name in it.
     assert_one_error(proc.returncode, proc.stdout, proc.stderr, ("field 'loss'", "unknown"))
     assert seconds < 30
@@ -769,7 +719,7 @@ def test_carrier_at_1e_300_hz_is_refused_or_reported(tmp_path):
     # field) or list the carrier: a carrier is always reported (README, "Combining").
     text = '[[carrier]]\nfreq = "1e-300 Hz"\npower = "0 dBm"\n' + PA + "[analysis]\nmax_order = 3\n"
     (tmp_path / "l.toml").write_text(text, encoding="utf-8")
-    code, out, err, detail, _ = invoke(["spectrum", str(tmp_path / "l.toml"), "--format", "csv"])
+    code, out, err, detail, _ = run_in_process(["spectrum", str(tmp_path / "l.toml"), "--format", "csv"])
     if code == 2:
         assert_one_error(code, out, err, ("carrier 1", "field 'freq'", "'1e-300 Hz'"), detail=detail)
     else:
@@ -802,7 +752,7 @@ def test_carrier_at_the_centre_of_a_lossless_bandpass_passes_it(tmp_path):
     rows = {}
     for node in ("pa", None):
         args = ["spectrum", str(tmp_path / "l.toml"), "--format", "csv"] + (["--stage", node] if node else [])
-        code, out, err, detail, _ = invoke(args)
+        code, out, err, detail, _ = run_in_process(args)
         assert detail == "", detail
         assert code == 0, err
         rows[node] = {r["label"]: float(r["level_dbm"]) for r in csv.DictReader(io.StringIO(out))}
@@ -829,7 +779,7 @@ def test_lossless_bandpass_at_the_carrier_does_not_hide_a_failure(tmp_path):
     for name, q in (("lossless", ""), ("q1e9", ", q_inductor = 1e9, q_capacitor = 1e9")):
         path = tmp_path / f"{name}.toml"
         path.write_text(base % (BANDPASS % q), encoding="utf-8")
-        code, out, err, detail, _ = invoke(["check", str(path), "--format", "csv"])
+        code, out, err, detail, _ = run_in_process(["check", str(path), "--format", "csv"])
         labels = {r["label"]: r for r in csv.DictReader(io.StringIO(out))}
         outcomes[name] = (code, labels)
         assert detail == "", f"{name}: {detail}"
@@ -842,7 +792,7 @@ def test_lossless_bandpass_at_the_carrier_does_not_hide_a_failure(tmp_path):
 
 
 def _report_available() -> bool:
-    code, _, _, _, _ = invoke(["report", "--help"])
+    code, _, _, _, _ = run_in_process(["report", "--help"])
     return code == 0
 
 
@@ -878,6 +828,53 @@ class _Calls:
         self.calls = 0
 
 
+def _previous_contents(target: Path, existed: bool) -> bytes | None:
+    """Give ``target`` earlier contents when ``existed``; returns them (None: no file)."""
+    if not existed:
+        return None
+    before = b"previous contents\n"
+    target.write_bytes(before)
+    return before
+
+
+def _assert_as_before(target: Path, before: bytes | None, folder: Path) -> None:
+    """The target holds its earlier contents (or does not exist), and no temporary file is left."""
+    if before is not None:
+        assert target.read_bytes() == before
+    else:
+        assert not target.exists()
+    assert _stray(folder) == []
+
+
+def _half_then_fail_fdopen(hit: _Calls, error):
+    """An ``os.fdopen`` whose files opened for writing write half of what they are
+    given, flush it to the disk, then raise ``error()``."""
+    real_fdopen = os.fdopen
+
+    class HalfThenFail:
+        def __init__(self, handle):
+            self.handle = handle
+
+        def write(self, data):
+            hit.calls += 1
+            self.handle.write(bytes(data[: max(1, len(data) // 2)]))
+            self.handle.flush()
+            raise error()
+
+        def __enter__(self):
+            return self
+
+        def __exit__(self, *exc):
+            self.handle.close()
+            return False
+
+    def fdopen(fd, mode="r", *a, **k):
+        handle = real_fdopen(fd, mode, *a, **k)
+        return HalfThenFail(handle) if "w" in mode else handle
+
+    return fdopen
+
+
 @pytest.fixture
 def writer(request, tmp_path):
     which = request.param
@@ -891,7 +888,7 @@ def writer(request, tmp_path):
 def test_writer_works_when_not_interrupted(writer, tmp_path):
     # The control for the tests below: uninterrupted, each command writes its file.
     _, args, target = writer
-    code, _, err, detail, _ = invoke(args)
+    code, _, err, detail, _ = run_in_process(args)
     assert code in (0, 1), err + detail
     assert target.is_file() and target.stat().st_size > 0
     assert _stray(tmp_path) == []
@@ -903,9 +900,7 @@ def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, mo
     import spurplan.outputs
 
     _, args, target = writer
-    before = b"previous contents\n"
-    if existed:
-        target.write_bytes(before)
+    before = _previous_contents(target, existed)
     real_replace = os.replace
     hit = _Calls()
 
@@ -916,16 +911,12 @@ def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, mo
         return real_replace(src, dst, *a, **k)
 
     monkeypatch.setattr(spurplan.outputs.os, "replace", replace)
-    code, _, err, detail, _ = invoke(args)
+    code, _, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
     assert hit.calls >= 1, "the write did not go through spurplan.outputs (temporary file + os.replace)"
     assert code == 130, err + detail  # click's Abort, mapped by the CLI
     assert "Traceback" not in err
-    if existed:
-        assert target.read_bytes() == before
-    else:
-        assert not target.exists()
-    assert _stray(tmp_path) == []
+    _assert_as_before(target, before, tmp_path)
 
 
 @pytest.mark.parametrize("existed", [False, True], ids=["new", "existing"])
@@ -935,42 +926,14 @@ def test_interrupted_mid_write_leaves_no_partial_file(writer, existed, tmp_path,
     import spurplan.outputs
 
     _, args, target = writer
-    before = b"previous contents\n"
-    if existed:
-        target.write_bytes(before)
-    real_fdopen = os.fdopen
+    before = _previous_contents(target, existed)
     hit = _Calls()
-
-    class HalfWriter:
-        def __init__(self, handle):
-            self.handle = handle
-
-        def write(self, data):
-            hit.calls += 1
-            self.handle.write(bytes(data[: max(1, len(data) // 2)]))
-            self.handle.flush()
-            raise KeyboardInterrupt
-
-        def __enter__(self):
-            return self
-
-        def __exit__(self, *exc):
-            self.handle.close()
-            return False
-
-    def fdopen(fd, mode="r", *a, **k):
-        return HalfWriter(real_fdopen(fd, mode, *a, **k)) if "w" in mode else real_fdopen(fd, mode, *a, **k)
-
-    monkeypatch.setattr(spurplan.outputs.os, "fdopen", fdopen)
-    code, _, err, detail, _ = invoke(args)
+    monkeypatch.setattr(spurplan.outputs.os, "fdopen", _half_then_fail_fdopen(hit, KeyboardInterrupt))
+    code, _, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
     assert hit.calls >= 1, "the write did not go through spurplan.outputs.write_atomic"
     assert code == 130, err + detail
-    if existed:
-        assert target.read_bytes() == before
-    else:
-        assert not target.exists()
-    assert _stray(tmp_path) == []
+    _assert_as_before(target, before, tmp_path)
 
 
 @pytest.mark.parametrize("existed", [False, True], ids=["new", "existing"])
@@ -980,9 +943,7 @@ def test_figure_rendering_interrupted_halfway_leaves_no_file(writer, existed, tm
     import matplotlib.figure
 
     _, args, target = writer
-    before = b"previous contents\n"
-    if existed:
-        target.write_bytes(before)
+    before = _previous_contents(target, existed)
     hit = _Calls()
 
     def savefig(self, fname, *a, **k):
@@ -995,15 +956,11 @@ def test_figure_rendering_interrupted_halfway_leaves_no_file(writer, existed, tm
         raise KeyboardInterrupt
 
     monkeypatch.setattr(matplotlib.figure.Figure, "savefig", savefig)
-    code, _, err, detail, _ = invoke(args)
+    code, _, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
     assert hit.calls >= 1, "no figure was rendered"
     assert code == 130, err + detail
-    if existed:
-        assert target.read_bytes() == before
-    else:
-        assert not target.exists()
-    assert _stray(tmp_path) == []
+    _assert_as_before(target, before, tmp_path)
 
 
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
@@ -1015,32 +972,13 @@ def test_full_disk_is_one_line_and_leaves_no_partial_file(writer, tmp_path, monk
     import spurplan.outputs
 
     _, args, target = writer
-    real_fdopen = os.fdopen
     hit = _Calls()
 
-    class FullDisk:
-        def __init__(self, handle):
-            self.handle = handle
+    def full_disk():
+        return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
-        def write(self, data):
-            hit.calls += 1
-            self.handle.write(bytes(data[: max(1, len(data) // 2)]))
-            self.handle.flush()
-            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
-
-        def __enter__(self):
-            return self
-
-        def __exit__(self, *exc):
-            self.handle.close()
-            return False
-
-    def fdopen(fd, mode="r", *a, **k):
-        handle = real_fdopen(fd, mode, *a, **k)
-        return FullDisk(handle) if "w" in mode else handle
-
-    monkeypatch.setattr(spurplan.outputs.os, "fdopen", fdopen)
-    code, out, err, detail, _ = invoke(args)
+    monkeypatch.setattr(spurplan.outputs.os, "fdopen", _half_then_fail_fdopen(hit, full_disk))
+    code, out, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
     assert hit.calls >= 1, "the write did not go through spurplan.outputs.write_atomic"
     assert not target.exists()

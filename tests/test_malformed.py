@@ -16,21 +16,11 @@ one can exhaust memory.
 
 from __future__ import annotations
 
-import os
-import subprocess
-import sys
 from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
-
-from spurplan.cli import main
-
-try:
-    import resource
-except ImportError:  # not on Windows
-    resource = None
+from helpers import assert_one_error_line, invoke, run_cli, run_in_process, write
 
 # --- building blocks (TOML text) ------------------------------------------------------------------
 
@@ -420,69 +410,20 @@ def _materialise(case: Case, tmp_path: Path) -> Path:
     return path
 
 
-def _check(case: Case, path: Path, code, stdout: str, stderr: str, detail: str = "") -> None:
-    context = f"\n--- stdout ---\n{stdout}\n--- stderr ---\n{stderr}{detail}"
-    assert "Traceback" not in stderr, context
-    assert code == 2, context
-    assert stdout == "", context
-    lines = stderr.splitlines()
-    assert len(lines) == 1, context
-    assert stderr.endswith("\n"), context
-    line = lines[0]
-    assert line.startswith("spurplan: error: "), context
-    assert str(path) in line, f"the line does not name the file{context}"
-    for needle in case.needles:
-        assert needle in line, f"{needle!r} missing{context}"
-
-
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
-
-
 @pytest.mark.parametrize("command", ["spectrum", "budget"])
 @pytest.mark.parametrize("case", [c for c in CASES if not c.only_proc], ids=lambda c: c.id)
 def test_malformed_in_process(case, command, tmp_path):
     path = _materialise(case, tmp_path)
-    result = _runner().invoke(main, [command, str(path)])
-    detail = ""
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        import traceback
-
-        detail = "\n--- exception ---\n" + "".join(traceback.format_exception(result.exception))
-    _check(case, path, result.exit_code, result.stdout, result.stderr, detail)
-
-
-def _limits() -> None:  # pragma: no cover - runs in the child
-    # A runaway case must fail, not take the machine's memory.
-    cap = 2 << 30
-    resource.setrlimit(resource.RLIMIT_AS, (cap, cap))
-
-
-def run_cli(args, cwd, timeout=120):
-    """Run ``python -m spurplan.cli ARGS`` as a real process; returns CompletedProcess."""
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1")
-    try:
-        return subprocess.run(
-            [sys.executable, "-m", "spurplan.cli", *args],
-            capture_output=True,
-            text=True,
-            cwd=cwd,
-            env=env,
-            timeout=timeout,
-            preexec_fn=_limits if resource is not None else None,
-        )
-    except subprocess.TimeoutExpired:
-        pytest.fail(f"spurplan {' '.join(map(str, args))} did not finish within {timeout} s")
+    code, out, err, detail, _ = run_in_process([command, str(path)])
+    assert_one_error_line(code, out, err, case.needles, names=path, detail=detail)
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc or c.only_proc], ids=lambda c: c.id)
 def test_malformed_subprocess(case, tmp_path):
     path = _materialise(case, tmp_path)
-    proc = run_cli(["spectrum", str(path)], cwd=tmp_path)
-    _check(case, path, proc.returncode, proc.stdout, proc.stderr)
+    # A runaway case must fail, not take the machine's memory.
+    proc = run_cli(["spectrum", str(path)], cwd=tmp_path, limit_memory=True)
+    assert_one_error_line(proc.returncode, proc.stdout, proc.stderr, case.needles, names=path)
 
 
 def test_corpus_size():
@@ -515,10 +456,7 @@ NEAR_MISSES = [
 
 @pytest.mark.parametrize(("name", "text"), NEAR_MISSES, ids=[n for n, _ in NEAR_MISSES])
 def test_near_miss_is_accepted(name, text, tmp_path):
-    path = tmp_path / f"{name}.toml"
-    path.write_text(text, encoding="utf-8")
-    result = _runner().invoke(main, ["spectrum", str(path), "--format", "csv"])
-    assert result.exception is None or isinstance(result.exception, SystemExit), result.exception
-    assert result.exit_code == 0, result.stderr
+    path = write(tmp_path, f"{name}.toml", text)
+    result = invoke("spectrum", path, "--format", "csv", expect=0)
     assert result.stdout.startswith("freq_hz,")
     assert "error" not in result.stderr

@@ -16,16 +16,11 @@ case, and valid) show that each case fails for the reason it names.
 
 from __future__ import annotations
 
-import os
-import subprocess
-import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import pytest
-from click.testing import CliRunner
-
-from spurplan.cli import main
+from helpers import assert_one_error_line, invoke, run_cli, run_in_process, write
 
 # A valid lineup; the amplifier is far from compression at +40 dBm out (OIP3 +60 dBm),
 # so a run that gets past the mask prints no model warning.
@@ -362,68 +357,25 @@ assert len(set(IDS)) == len(IDS), "case ids must be unique"
 
 def _materialise(case: Case, tmp_path: Path) -> tuple[Path, Path]:
     """Write the lineup (and rule files); returns (lineup path, the file the line must name)."""
-    path = tmp_path / f"{case.id}.toml"
-    path.write_text(LINEUP + case.mask, encoding="utf-8")
+    path = write(tmp_path, f"{case.id}.toml", LINEUP + case.mask)
     for name, text in case.files.items():
-        (tmp_path / name).write_text(text, encoding="utf-8")
+        write(tmp_path, name, text)
     named = path if case.names == "lineup" else (tmp_path / case.names).resolve()
     return path, named
-
-
-def _check(case: Case, named: Path, code, stdout: str, stderr: str, detail: str = "") -> None:
-    context = f"\n--- stdout ---\n{stdout}\n--- stderr ---\n{stderr}{detail}"
-    assert "Traceback" not in stderr, context
-    assert code == 2, context
-    assert stdout == "", context
-    lines = stderr.splitlines()
-    assert len(lines) == 1, context
-    line = lines[0]
-    assert line.startswith("spurplan: error:"), context
-    assert str(named) in line, f"the line does not name {named}{context}"
-    for needle in case.needles:
-        assert needle in line, f"{needle!r} missing{context}"
-
-
-def _runner() -> CliRunner:
-    try:
-        return CliRunner(mix_stderr=False)  # click < 8.2
-    except TypeError:
-        return CliRunner()  # click >= 8.2 keeps stderr apart
 
 
 @pytest.mark.parametrize("case", CASES, ids=IDS)
 def test_malformed_mask_in_process(case, tmp_path):
     path, named = _materialise(case, tmp_path)
-    result = _runner().invoke(main, ["check", str(path)])
-    detail = ""
-    if result.exception is not None and not isinstance(result.exception, SystemExit):
-        import traceback
-
-        detail = "\n--- exception ---\n" + "".join(traceback.format_exception(result.exception))
-    _check(case, named, result.exit_code, result.stdout, result.stderr, detail)
-
-
-def run_cli(args, cwd, timeout=120):
-    """Run ``python -m spurplan.cli ARGS`` as a real process."""
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1")
-    try:
-        return subprocess.run(
-            [sys.executable, "-m", "spurplan.cli", *args],
-            capture_output=True,
-            text=True,
-            cwd=cwd,
-            env=env,
-            timeout=timeout,
-        )
-    except subprocess.TimeoutExpired:
-        pytest.fail(f"spurplan {' '.join(map(str, args))} did not finish within {timeout} s")
+    code, out, err, detail, _ = run_in_process(["check", str(path)])
+    assert_one_error_line(code, out, err, case.needles, names=named, detail=detail)
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc], ids=lambda c: c.id)
 def test_malformed_mask_subprocess(case, tmp_path):
     path, named = _materialise(case, tmp_path)
     proc = run_cli(["check", str(path)], cwd=tmp_path)
-    _check(case, named, proc.returncode, proc.stdout, proc.stderr)
+    assert_one_error_line(proc.returncode, proc.stdout, proc.stderr, case.needles, names=named)
 
 
 def test_corpus_size():
@@ -473,13 +425,10 @@ NEAR_MISSES = [
 
 @pytest.mark.parametrize(("name", "mask", "files"), NEAR_MISSES, ids=[n for n, _, _ in NEAR_MISSES])
 def test_near_miss_is_accepted(name, mask, files, tmp_path):
-    path = tmp_path / f"{name}.toml"
-    path.write_text(LINEUP + mask, encoding="utf-8")
+    path = write(tmp_path, f"{name}.toml", LINEUP + mask)
     for fname, text in files.items():
-        (tmp_path / fname).write_text(text, encoding="utf-8")
-    result = _runner().invoke(main, ["check", str(path), "--format", "csv"])
-    assert result.exception is None or isinstance(result.exception, SystemExit), result.exception
+        write(tmp_path, fname, text)
     # 0 or 1: the check ran (pass or fail is not the point here).
-    assert result.exit_code in (0, 1), result.stderr
+    result = invoke("check", path, "--format", "csv", expect=(0, 1))
     assert result.stdout.startswith("freq_hz,")
     assert "error" not in result.stderr

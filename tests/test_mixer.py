@@ -7,6 +7,7 @@ import math
 import numpy as np
 import pytest
 from click.testing import CliRunner
+from helpers import compare_with_reference, levels_by_label
 from reference import Linear, Mixing, Tone, simulate
 
 import spurplan
@@ -34,11 +35,6 @@ def _lineup(stages, carrier=("70 MHz", "-10 dBm"), max_order=7, mask=None):
     if mask:
         doc["mask"] = mask
     return from_dict(doc, name="mixer-test.toml")
-
-
-def _levels(result, stage=None):
-    rows = result.product_rows(stage, combine="phase")
-    return dict(zip(rows["label"], rows["level_dbm"], strict=True))
 
 
 def test_spur_labels_round_trip():
@@ -75,13 +71,13 @@ def test_image_and_lo_leakage_levels_follow_the_figures():
     # Wanted = IF drive + conversion gain; image = wanted - image rejection; LO leakage
     # = LO power - LO-to-RF isolation (definitions of the figures; common practice).
     lu = _lineup([_mixer(lo_isolation="35 dB", image_rejection="22 dB")])
-    lv = _levels(lu.run())
+    lv = levels_by_label(lu.run(), combine="phase")
     assert lv["LO+IF"] == pytest.approx(-10 - 6, abs=1e-9)
     assert lv["LO-IF"] == pytest.approx(-10 - 6 - 22, abs=1e-9)
     assert lv["LO"] == pytest.approx(7 - 35, abs=1e-9)
     # Lower sideband: the roles swap.
     lu = _lineup([_mixer(sideband="lower", image_rejection="22 dB")])
-    lv = _levels(lu.run())
+    lv = levels_by_label(lu.run(), combine="phase")
     assert lv["LO-IF"] == pytest.approx(-16.0, abs=1e-9)
     assert lv["LO+IF"] == pytest.approx(-38.0, abs=1e-9)
     assert lu.run().product_rows()["kind"][lu.run().product_rows()["label"].index("LO-IF")] == "carrier"
@@ -119,7 +115,7 @@ def test_ideal_multiplier_gives_sidebands_6_02_db_below_the_product():
     lu = _lineup(
         [_mixer(conversion_gain=f"{20 * math.log10(b_lo / 2)} dB")], carrier=("7 MHz", "0 dBm"), max_order=3
     )
-    lv = _levels(lu.run())
+    lv = levels_by_label(lu.run(), combine="phase")
     a_if = math.sqrt(2 * 50 * 1e-3)
     product_dbm = 10 * math.log10((a_if * b_lo) ** 2 / (2 * 50) * 1e3)
     assert lv["LO+IF"] == pytest.approx(product_dbm - 20 * math.log10(2), abs=1e-9)
@@ -183,12 +179,7 @@ def test_if_mixer_bandpass_pa_lowpass_equals_brute_force():
         df_hz=1e6,
         length=4096,
     )
-    compared = 0
-    for f, level, dbc in zip(rows["freq_hz"], rows["level_dbm"], rows["dbc"], strict=True):
-        if dbc > -150:
-            assert level == pytest.approx(ref.at(f), abs=0.01), f
-            compared += 1
-    assert compared >= 20
+    assert compare_with_reference(rows, ref, floor_dbc=-150.0, abs_db=0.01) >= 20
 
 
 def test_upconverter_example_low_side_lo_puts_2lo_minus_if_in_the_passband():

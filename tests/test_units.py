@@ -34,6 +34,17 @@ from spurplan.units import (
 # failure report into an INTERNALERROR that stops the run.  Ignore that one warning.
 pytestmark = pytest.mark.filterwarnings("ignore:mypy_extensions.TypedDict is deprecated:DeprecationWarning")
 
+
+def _rejection(parse, text, match=None) -> str:
+    """The UnitError ``parse(text)`` raises (its message matching ``match``); the message
+    must quote ``text``.  Returns the message."""
+    with pytest.raises(UnitError, match=match) as info:
+        parse(text)
+    message = str(info.value)
+    assert repr(text) in message
+    return message
+
+
 # --- frequencies ----------------------------------------------------------------------------------
 
 
@@ -76,10 +87,7 @@ def test_parse_freq_hz(text, hz):
     ],
 )
 def test_parse_freq_hz_rejects(text):
-    with pytest.raises(UnitError) as info:
-        parse_freq_hz(text)
-    message = str(info.value)
-    assert repr(text) in message
+    message = _rejection(parse_freq_hz, text)
     assert "MHz" in message and "GHz" in message  # says which unit is expected
 
 
@@ -142,10 +150,7 @@ def test_parse_power_dbm(text, dbm):
     ["-8", "-8 dB", "-8 dBc", "455 MHz", "0 W", "-2 W", "-1 mW", "nan dBm", "inf dBm", "dBm", "1 V"],
 )
 def test_parse_power_dbm_rejects(text):
-    with pytest.raises(UnitError) as info:
-        parse_power_dbm(text)
-    message = str(info.value)
-    assert repr(text) in message
+    message = _rejection(parse_power_dbm, text)
     assert "dBm" in message and "W" in message
 
 
@@ -171,9 +176,7 @@ def test_parse_gain_db(text, db):
 
 @pytest.mark.parametrize("text", ["16", "16 dBm", "16 dBc", "16 x", "nan dB"])
 def test_parse_gain_db_rejects(text):
-    with pytest.raises(UnitError, match="dB") as info:
-        parse_gain_db(text)
-    assert repr(text) in str(info.value)
+    _rejection(parse_gain_db, text, match="dB")
 
 
 def test_parse_gain_db_bare_number():
@@ -210,9 +213,7 @@ def test_parse_dbc_at(text, expected):
     ],
 )
 def test_parse_dbc_at_rejects(text):
-    with pytest.raises(UnitError, match="dBc") as info:
-        parse_dbc_at(text)
-    assert repr(text) in str(info.value)
+    _rejection(parse_dbc_at, text, match="dBc")
 
 
 def test_parse_dbc_at_positive_message():
@@ -240,9 +241,7 @@ def test_parse_impedance_ohm(text, ohm):
 
 @pytest.mark.parametrize("text", ["50", "0 ohm", "-50 ohm", "50 V", "50 dB"])
 def test_parse_impedance_ohm_rejects(text):
-    with pytest.raises(UnitError, match="ohm") as info:
-        parse_impedance_ohm(text)
-    assert repr(text) in str(info.value)
+    _rejection(parse_impedance_ohm, text, match="ohm")
 
 
 @pytest.mark.parametrize(
