@@ -74,6 +74,19 @@ class CheckResult:
     def worst_margin_db(self) -> float | None:
         return None if self.worst is None else self.rows["margin_db"][self.worst]
 
+    @property
+    def verdict(self) -> str:
+        """One line: PASS/FAIL, the worst margin, which product, rule, band and stage."""
+        if self.worst is None:
+            return "NO RULE APPLIES: no product falls under the mask"
+        w = {c: self.rows[c][self.worst] for c in ("margin_db", "label", "freq_hz", "rule", "band", "stage")}
+        return (
+            f"{'PASS' if self.passed else 'FAIL'}, worst margin {w['margin_db']:+.2f} dB: {w['label']} at "
+            f"{w['freq_hz'] / 1e6:.6f} MHz under {w['rule']}"
+            + (f" (in {w['band']})" if w["band"] else "")
+            + f", largest from {w['stage']}"
+        )
+
     def summary(self) -> dict:
         from .provenance import provenance
 
@@ -103,14 +116,7 @@ class CheckResult:
         from .tables import CHECK_TABLE, check_display
 
         s = self.summary()
-        if s["worst"] is None:
-            verdict = "no product falls under a rule"
-        else:
-            w = s["worst"]
-            verdict = (
-                f"{'PASS' if self.passed else 'FAIL'}: worst margin {w['margin_db']:+.2f} dB, {w['label']} at "
-                f"{w['freq_hz'] / 1e6:.6f} MHz under {w['rule']}"
-            )
+        verdict = self.verdict
         failing = [p is False for p in self.rows["pass"]]
         table = html_table(check_display(self.rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None)
         style = "<style>tr.fail td {background: #fde2e2; font-weight: bold}</style>"

@@ -23,6 +23,7 @@ from .tables import (
     RESPONSE_TABLE,
     RULES_TABLE,
     TUNE_TABLE,
+    check_display,
     element_display,
     mhz,
     product_display,
@@ -302,29 +303,15 @@ def check(lineup, fmt, combine, plot_file, plot_size):
     elif fmt == "csv":
         click.echo(to_csv(rows), nl=False)
     else:
-        shown = dict(rows)
-        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
-        shown["freq_mhz"] = [f / 1e6 for f in rows["freq_hz"]]
-        shown["flags"] = [
-            " ".join(
-                t for t, on in (("BEYOND-DATA", b), ("EXTRAPOLATED", e), (d.upper(), d != "spurious")) if on
-            )
-            for b, e, d in zip(rows["beyond_data"], rows["model_extrapolated"], rows["domain"], strict=True)
-        ]
+        click.echo(f"{outcome.result.lineup.name}: products at the output against the mask")
+        click.echo(text_table(check_display(rows), CHECK_TABLE), nl=False)
         summary = outcome.summary()
-        click.echo(f"{summary['lineup']}: products at the output against the mask")
-        click.echo(text_table(shown, CHECK_TABLE), nl=False)
-        worst = summary["worst"]
-        if worst is None:
-            click.echo("VERDICT: no product falls under a rule")
-        else:
-            word = "PASS" if outcome.passed else "FAIL"
-            click.echo(
-                f"VERDICT: {word}, worst margin {worst['margin_db']:+.2f} dB: {worst['label']} at "
-                f"{worst['freq_hz'] / 1e6:.6f} MHz under {worst['rule']}"
-                + (f" (in {worst['band']})" if worst["band"] else "")
-                + f", largest from {worst['stage']}; {summary['failing']} of {summary['checked']} checked products fail"
-            )
+        tail = (
+            f"; {summary['failing']} of {summary['checked']} checked products fail"
+            if outcome.worst is not None
+            else ""
+        )
+        click.echo(f"VERDICT: {outcome.verdict}{tail}")
         click.echo(PLANNING_NOTICE)
     sys.exit(0 if outcome.passed else 1)
 

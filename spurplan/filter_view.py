@@ -94,15 +94,7 @@ class FilterView:
 
 def stage_view(lineup, name: str) -> FilterView:
     """The view of filter stage ``name`` of ``lineup`` at its input products."""
-    i = lineup.stage_index(name)
-    stage = lineup.stages[i - 1]
-    if not isinstance(stage, Filter):
-        kind = type(stage).__name__.lower()
-        raise LineupError(
-            f"{name!r} is {'an' if kind[0] in 'aeiou' else 'a'} {kind} stage: expected a filter stage",
-            file=None if lineup.source is None else str(lineup.source),
-            field="--stage",
-        )
+    stage = lineup.stage_of_kind(name, Filter)
     result = lineup.run()
     what = stage.source or "synthesized ladder"
     return FilterView(

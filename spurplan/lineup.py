@@ -174,6 +174,18 @@ class Lineup:
             field=option,
         )
 
+    def stage_of_kind(self, name: str, kind: type, option: str = "--stage"):
+        """The stage called ``name``, which must be a ``kind`` (one-line error otherwise)."""
+        stage = self.stages[self.stage_index(name, option) - 1]
+        if not isinstance(stage, kind):
+            have, want = type(stage).__name__.lower(), kind.__name__.lower()
+            raise LineupError(
+                f"{name!r} is {'an' if have[0] in 'aeiou' else 'a'} {have} stage: expected a {want} stage",
+                file=None if self.source is None else str(self.source),
+                field=option,
+            )
+        return stage
+
     def input_phasors(self, mix: np.ndarray, drive_offset_db=0.0) -> np.ndarray:
         """Input peak phasors (V), shape (B, P), for carrier powers offset by ``drive_offset_db``.
 

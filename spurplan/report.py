@@ -86,7 +86,7 @@ class Report:
     def to_html(self, made_at: str) -> str:
         body = [
             f"<h1>{_e(self.title)}</h1>",
-            f'<p class="verdict {self.verdict.split()[0].lower()}">{_e(self.verdict)}</p>',
+            f'<p class="verdict {self.verdict.split(",")[0].split()[0].lower()}">{_e(self.verdict)}</p>',
         ]
         body.append(f'<p class="made">Report made {_e(made_at)}</p>')
         body.append(_provenance_html(self.provenance))
@@ -169,17 +169,7 @@ def build_report(lineup) -> Report:
 
     outcome = check(lineup)
     prov = provenance(lineup)
-    worst = outcome.summary()["worst"]
-    if worst is None:
-        verdict = "NO RULE APPLIES: no product falls under the mask"
-    else:
-        word = "PASS" if outcome.passed else "FAIL"
-        verdict = (
-            f"{word}: worst margin {worst['margin_db']:+.2f} dB, {worst['label']} at {worst['freq_hz'] / 1e6:.6f} MHz "
-            f"under {worst['rule']}"
-            + (f" (in {worst['band']})" if worst["band"] else "")
-            + f", largest from {worst['stage']}"
-        )
+    verdict = outcome.verdict
     sections = [_lineup_section(lineup), _budget_section(outcome.result)]
     rows = outcome.rows
     failing = [p is False for p in rows["pass"]]

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import LineupError
 from .result import REPORT_FLOOR_DBC
 from .stages import Filter, Mixer
 from .stages.mixer import spur_label
@@ -53,14 +52,7 @@ class SpurChart:
 def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
     """Build the chart of mixer ``stage`` (the strongest carrier is the IF)."""
     index = lineup.stage_index(stage)
-    mixer = lineup.stages[index - 1]
-    if not isinstance(mixer, Mixer):
-        kind = type(mixer).__name__.lower()
-        raise LineupError(
-            f"{stage!r} is {'an' if kind[0] in 'aeiou' else 'a'} {kind} stage: expected a mixer stage",
-            file=None if lineup.source is None else str(lineup.source),
-            field="--stage",
-        )
+    mixer = lineup.stage_of_kind(stage, Mixer)
     k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
     if_hz = lineup.carriers[k].freq_hz
     result = lineup.run()
