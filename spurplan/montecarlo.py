@@ -392,6 +392,9 @@ def run_yield(
     tolerances = lineup.tolerances
     if lineup.mask is None:
         raise LineupError("no emission limits: expected a [mask] table", file=str(lineup.source))
+    # The nominal run first: it applies the lineup's beyond-data policy (an error by
+    # default) that the sampled runs, which go straight to the engine, do not.
+    lineup.run()
     sizes = [min(batch_samples, samples - s) for s in range(0, samples, batch_samples)]
     jobs = [(lineup, tolerances, seed, b, size, channels_hz, combine) for b, size in enumerate(sizes)]
     if scheduler or workers:
