@@ -154,13 +154,6 @@ class Fields:
             raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
         return value
 
-    def boolean(self, key: str, *, default: bool) -> bool:
-        self._seen.add(key)
-        value = self.table.get(key, default)
-        if not isinstance(value, bool):
-            raise self.error(key, f"{value!r}: expected true or false")
-        return value
-
     def finish(self) -> None:
         """Raise on the first key that no getter asked for."""
         for key in self.table:

@@ -93,14 +93,6 @@ class Polynomial:
             y = (y + per_sample(a, x)) * x
         return y
 
-    def derivative(self, x):
-        """``dy/dx`` at ``x`` (V/V)."""
-        x = np.asarray(x, dtype=float)
-        y = np.zeros_like(x)
-        for n in range(len(self.coeffs), 0, -1):
-            y = y * x + n * self.coeffs[n - 1]
-        return y
-
     def turning_points(self) -> tuple[float, float]:
         """Nearest input voltages on each side of 0 where ``dy/dx = 0``.
 
@@ -186,11 +178,6 @@ class SoftLimitedPolynomial:
     @property
     def valid_peak_v(self) -> tuple[float, float]:
         return -math.inf, math.inf
-
-    @property
-    def rails_v(self) -> tuple[float, float]:
-        """Output voltages approached under hard drive (negative, positive)."""
-        return float(self.poly(self.clip_neg_v)), float(self.poly(self.clip_pos_v))
 
     def limit_input(self, x):
         """The smooth input limiter ``c(x)``, applied with each side's own level."""
