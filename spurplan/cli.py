@@ -73,6 +73,19 @@ def main():
     """
 
 
+def _machine_output(fmt: str, summary: dict, rows_key: str, rows: dict) -> bool:
+    """Print JSON or CSV for ``--format json|csv``; False when the caller prints a table."""
+    from .formatting import to_csv, to_json
+
+    if fmt == "json":
+        click.echo(to_json(summary, rows_key, rows), nl=False)
+    elif fmt == "csv":
+        click.echo(to_csv(rows), nl=False)
+    else:
+        return False
+    return True
+
+
 def _lineup_arg(f):
     return click.argument("lineup", required=False, type=click.Path(dir_okay=False))(f)
 
@@ -129,7 +142,7 @@ def _warn(result) -> None:
 @_combine_option
 def spectrum(lineup, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
 
     result = _load(lineup).run()
     if stage is not None:
@@ -137,11 +150,7 @@ def spectrum(lineup, stage, fmt, combine):
     rows = result.product_rows(stage, combine)
     summary = result.summary(stage, combine)
     _warn(result)
-    if fmt == "json":
-        click.echo(to_json(summary, "products", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, summary, "products", rows):
         shown = product_display(rows)
         click.echo(f"{summary['lineup']}: products at {summary['node']} (combine = {summary['combine']})")
         click.echo(text_table(shown, PRODUCT_TABLE), nl=False)
@@ -286,7 +295,7 @@ def check(lineup, fmt, combine, plot_file, plot_size):
     Exit status: 0 the mask is met, 1 it is violated, 2 bad input.
     """
     from .check import check as run_check
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
 
     size = _size(plot_size)
     outcome = run_check(_load(lineup), combine=combine)
@@ -298,11 +307,7 @@ def check(lineup, fmt, combine, plot_file, plot_size):
 
         save_check_plot(outcome, plot_file, size)
     rows = outcome.rows
-    if fmt == "json":
-        click.echo(to_json(outcome.summary(), "products", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, outcome.summary(), "products", rows):
         click.echo(f"{outcome.result.lineup.name}: products at the output against the mask")
         click.echo(text_table(check_display(rows), CHECK_TABLE), nl=False)
         summary = outcome.summary()
@@ -322,7 +327,7 @@ def check(lineup, fmt, combine, plot_file, plot_size):
 def bands(name, fmt):
     """List the shipped rule sets and band lists, or show NAME with its sources."""
     from .bands_view import band_rows, catalogue_rows, describe
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
 
     if name is None:
         rows = catalogue_rows()
@@ -334,11 +339,7 @@ def bands(name, fmt):
     else:
         rows, summary = band_rows(name)
         table, title = RULES_TABLE, describe(summary)
-    if fmt == "json":
-        click.echo(to_json(summary, "entries", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, summary, "entries", rows):
         click.echo(title)
         click.echo(text_table(rows, table), nl=False)
         click.echo(PLANNING_NOTICE)
@@ -378,7 +379,7 @@ def _parse(kind, text, option):
 @_plot_size_option
 def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
     from .provenance import provenance
     from .sweep import drive_sweep, sweep_points
 
@@ -403,11 +404,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
         save_drive_plot(sw, plot_file, size)
     rows = sw.rows()
     summary = {**sw.summary(), **provenance(lu)}
-    if fmt == "json":
-        click.echo(to_json(summary, "points", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, summary, "points", rows):
         shown = dict(rows)
         shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
         click.echo(
@@ -447,7 +444,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 @_plot_size_option
 def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
     from .provenance import provenance
     from .sweep import read_channels, sweep_points, tune_sweep
 
@@ -470,11 +467,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
         save_tune_plot(sw, plot_file, size)
     summary = {**sw.summary(), **provenance(lu)}
     rows = sw.rows
-    if fmt == "json":
-        click.echo(to_json(summary, "rows", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, summary, "rows", rows):
         shown = tune_display(rows)
         click.echo(f"{lu.name}: {len(freqs)} channels, products that fail or land in a protected band")
         click.echo(text_table(shown, TUNE_TABLE), nl=False)
@@ -595,7 +588,7 @@ def report(lineup, out_file):
 @_plot_size_option
 def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
-    from .formatting import text_table, to_csv, to_json
+    from .formatting import text_table
     from .spur_chart import spur_chart
     from .tables import SPUR_TABLE, spur_display
 
@@ -619,11 +612,7 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
             _parse("freq", lo_stop, "--lo-stop") if lo_stop else 1.2 * lo,
         )
         save_spur_plot(chart, span, plot_file, size)
-    if fmt == "json":
-        click.echo(to_json(chart.summary(), "products", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
+    if not _machine_output(fmt, chart.summary(), "products", rows):
         m = chart.mixer
         click.echo(
             f"{lu.name}: mixer '{m.name}', LO {m.lo_freq_hz / 1e6:.6g} MHz, {m.sideband} sideband wanted; "

@@ -329,23 +329,17 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
         raise f.error("files", f"{files!r}: expected a list of file names")
     for rel in files:
         sets.append(load_ruleset(existing_file(base_dir, rel, f, "files")))
-    inline_rules = tuple(
-        read_rule(
-            Fields(t, file, f"[[mask.rule]] {i}"),
-            origin="lineup",
-            default_source="lineup file",
-            status_required=False,
+    inline_rules, inline_bands = (
+        tuple(
+            reader(
+                Fields(t, file, f"[[mask.{key}]] {i}"),
+                origin="lineup",
+                default_source="lineup file",
+                status_required=False,
+            )
+            for i, t in enumerate(_list(f, key), start=1)
         )
-        for i, t in enumerate(_list(f, "rule"), start=1)
-    )
-    inline_bands = tuple(
-        read_band(
-            Fields(t, file, f"[[mask.band]] {i}"),
-            origin="lineup",
-            default_source="lineup file",
-            status_required=False,
-        )
-        for i, t in enumerate(_list(f, "band"), start=1)
+        for key, reader in (("rule", read_rule), ("band", read_band))
     )
     if inline_rules or inline_bands:
         sets.append(
