@@ -24,13 +24,17 @@ class UnitError(SpurplanError, ValueError):
         The text as given.
     expected : str
         What was expected, for example ``"a frequency in Hz, kHz, MHz or GHz"``.
+    hint : str
+        A did-you-mean for a near miss, e.g. ``" (did you mean 'MHz'?)"``; ``""`` if none.
+        Kept apart so that callers that re-word ``expected`` can pass it on.
     """
 
     value: object
     expected: str
+    hint: str = ""
 
     def __str__(self) -> str:
-        return f"{self.value!r}: expected {self.expected}"
+        return f"{self.value!r}: expected {self.expected}{self.hint}"
 
 
 @dataclass(eq=False)

@@ -162,6 +162,17 @@ class Fields:
                 raise self.error(key, f"unknown key{hint}")
 
 
-def _did_you_mean(word: str, options) -> str:
-    close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
+def _did_you_mean(word: str, options, *, fold_case: bool = False) -> str:
+    """``" (did you mean 'X'?)"`` for the option closest to ``word``, or ``""``.
+
+    With ``fold_case`` only an option that differs from ``word`` in letter case alone is
+    offered (unit symbols, where "mhz" is "MHz" mistyped but "grad" is not "rad").
+    """
+    if fold_case:
+        folded: dict[str, str] = {}
+        for option in options:
+            folded.setdefault(option.casefold(), option)
+        close = [folded[word.casefold()]] if word.casefold() in folded else []
+    else:
+        close = difflib.get_close_matches(word, list(options), n=1, cutoff=0.6)
     return f" (did you mean '{close[0]}'?)" if close else ""

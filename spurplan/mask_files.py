@@ -44,14 +44,18 @@ from .errors import LineupError, UnitError
 from .fields import Fields, _did_you_mean, existing_file, read_toml
 from .masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
 from .resources import data_dir
-from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
+from .units import parse_dbc, parse_dbi, parse_freq_hz, parse_gain_db, parse_power_dbm, unit_hint
 
 LIMIT_FORMS = "a limit such as '-36 dBm', '-60 dBc', '54 dBuV/m @ 3 m' or '2400/F uV/m @ 300 m'"
-_FIELD = re.compile(
-    r"^\s*(?P<k>[+-]?\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)\s*(?P<per>/\s*F\s*)?(?P<unit>dBuV/m|uV/m|mV/m)\s*@\s*"
-    r"(?P<d>\d+(?:\.\d*)?)\s*m\s*$",
-    re.IGNORECASE,
+_FIELD_UNITS = ("dBuV/m", "uV/m", "mV/m")
+# Units case-exact as SI writes them ("mV/m", not "MV/m" megavolt per metre; distance in "m");
+# the loose pattern only finds near misses to name them.
+_FIELD_FORM = (
+    r"^\s*(?P<k>[+-]?\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)\s*(?P<per>/\s*[Ff]\s*)?(?P<unit>{units})\s*@\s*"
+    r"(?P<d>\d+(?:\.\d*)?)\s*(?P<dunit>{metre})\s*$"
 )
+_FIELD = re.compile(_FIELD_FORM.format(units="dBuV/m|uV/m|mV/m", metre="m"))
+_FIELD_LOOSE = re.compile(_FIELD_FORM.format(units="dBuV/m|uV/m|mV/m", metre="m"), re.IGNORECASE)
 
 
 def shipped_names() -> list[str]:
@@ -139,34 +143,33 @@ def parse_limit(text) -> tuple[str, float, float | None, bool]:
     if not isinstance(text, str):
         raise UnitError(text, LIMIT_FORMS)
     m = _FIELD.match(text)
+    if m is None and (loose := _FIELD_LOOSE.match(text)):
+        hint = unit_hint(loose["unit"], _FIELD_UNITS) or unit_hint(loose["dunit"], ("m",))
+        raise UnitError(text, LIMIT_FORMS, hint=hint)
     if m:
-        k, unit, distance = float(m["k"]), m["unit"].lower(), float(m["d"])
+        k, unit, distance = float(m["k"]), m["unit"], float(m["d"])
         if not (math.isfinite(k) and math.isfinite(distance)) or abs(k) > 1e9:
             raise UnitError(text, f"{LIMIT_FORMS} (finite, plausible numbers)")
         if distance <= 0:
             raise UnitError(text, f"{LIMIT_FORMS} (a distance > 0 m)")
         per = m["per"] is not None
-        if unit == "dbuv/m":
+        if unit == "dBuV/m":
             if per:
                 raise UnitError(text, LIMIT_FORMS)
             return "field", k, distance, False
-        uv = k * (1e3 if unit == "mv/m" else 1.0)
+        uv = k * (1e3 if unit == "mV/m" else 1.0)
         if uv <= 0:
             raise UnitError(text, f"{LIMIT_FORMS} (a field strength > 0)")
         return "field", 20.0 * math.log10(uv), distance, per
-    lowered = text.strip().lower()
-    if "v/m" in lowered:
+    # Routing only: the parsers below read the unit case-exactly and name a near miss.
+    folded = text.strip().casefold()
+    if "v/m" in folded:
         raise UnitError(text, f"{LIMIT_FORMS} (a field strength needs '@ <distance> m')")
-    if lowered.endswith("dbc"):
-        try:
-            value = parse_gain_db(text.strip()[:-3] + "dB")
-        except UnitError:
-            raise UnitError(text, LIMIT_FORMS) from None
-        return "relative", value, None, False
+    parse, kind = (parse_dbc, "relative") if folded.endswith("dbc") else (parse_power_dbm, "absolute")
     try:
-        return "absolute", parse_power_dbm(text), None, False
-    except UnitError:
-        raise UnitError(text, LIMIT_FORMS) from None
+        return kind, parse(text), None, False
+    except UnitError as exc:
+        raise UnitError(text, LIMIT_FORMS, hint=exc.hint) from None
 
 
 def read_rule(f: Fields, origin: str, default_source: str, status_required: bool = True) -> Rule:
@@ -441,9 +444,9 @@ def _antenna_gain(f: Fields) -> tuple[tuple[float, float], ...]:
 
 
 def _dbi(text, f: Fields) -> float:
-    if isinstance(text, str) and text.strip().lower().endswith("dbi"):
-        try:
-            return parse_gain_db(text.strip()[:-3] + "dB")
-        except UnitError:
-            pass
-    raise f.error("antenna_gain", f"{text!r}: expected a gain in dBi, e.g. '2.15 dBi'")
+    try:
+        return parse_dbi(text)
+    except UnitError as exc:
+        raise f.error(
+            "antenna_gain", f"{text!r}: expected a gain in dBi, e.g. '2.15 dBi'{exc.hint}"
+        ) from None

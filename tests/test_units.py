@@ -6,6 +6,7 @@ Where a test checks a number, the comment says where the number comes from.
 from __future__ import annotations
 
 import contextlib
+import itertools
 import math
 
 import numpy as np
@@ -13,13 +14,16 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
-from spurplan.errors import SpurplanError, UnitError
+from spurplan.errors import LineupError, SpurplanError, UnitError
+from spurplan.mask_files import parse_limit
 from spurplan.units import (
     dbm_to_vpeak,
     dbm_to_w,
     format_freq,
     parse_angle_rad,
+    parse_dbc,
     parse_dbc_at,
+    parse_dbi,
     parse_freq_hz,
     parse_gain_db,
     parse_impedance_ohm,
@@ -61,7 +65,7 @@ def _rejection(parse, text, match=None) -> str:
         (".5 GHz", 0.5e9),
         ("1e3 kHz", 1e6),
         ("455MHz", 455e6),
-        ("  455 mhz  ", 455e6),
+        ("  455 MHz  ", 455e6),
         ("0 Hz", 0.0),
     ],
 )
@@ -128,7 +132,7 @@ def test_parse_freq_hz_rejects_overflow_to_infinity(text):
         ("-8 dBm", -8.0),
         ("+20 dBm", 20.0),
         ("0 dBm", 0.0),
-        ("-8 DBM", -8.0),
+        ("-8dBm", -8.0),
         # dBW = dBm - 30 (definition; arithmetic).
         ("+33 dBW", 63.0),
         ("-30 dBW", 0.0),
@@ -169,7 +173,7 @@ def test_parse_power_dbm_rejects_overflow_to_infinity():
 # --- gains and harmonic figures -------------------------------------------------------------------
 
 
-@pytest.mark.parametrize(("text", "db"), [("16 dB", 16.0), ("-3 dB", -3.0), ("0 dB", 0.0), ("3.5db", 3.5)])
+@pytest.mark.parametrize(("text", "db"), [("16 dB", 16.0), ("-3 dB", -3.0), ("0 dB", 0.0), ("3.5dB", 3.5)])
 def test_parse_gain_db(text, db):
     assert parse_gain_db(text) == db
 
@@ -275,6 +279,193 @@ def test_unit_error_is_a_value_error_and_a_spurplan_error():
         parse_power_dbm("-8 dB")
     assert info.value.value == "-8 dB"
     assert "dBm" in info.value.expected
+
+
+# --- letter case: unit symbols are case-exact -------------------------------------------------
+#
+# Source for every case below: BIPM, The International System of Units (SI Brochure), 9th
+# edition 2019 (from memory): its table of SI prefixes ("T" tera 1e12, "G" giga 1e9, "M" mega
+# 1e6, "k" kilo 1e3, "m" milli 1e-3, "u"/"µ" micro 1e-6; "K" is the kelvin, not a prefix) and
+# its rule that prefix and unit symbols are case-exact and that a unit named after a person has
+# a capital symbol (Hz after Hertz, W after Watt, the bel's B after Bell, Ω after Ohm).  The
+# spellings spurplan accepts besides the SI symbols ("ohm", "Ohm", "ohms", "kohm" ...) are its
+# documented choice (spurplan/units.py module docstring), not SI.
+
+SI = "SI Brochure, 9th edition 2019, table of SI prefixes (BIPM; from memory)"
+
+
+@pytest.mark.parametrize(
+    ("parse", "text", "meant"),
+    [
+        (parse_freq_hz, "162.5 mHz", "MHz"),  # SI: "m" milli 1e-3, not "M" mega 1e6
+        (parse_freq_hz, "455 mhz", "MHz"),  # SI: "M" mega; Hz has a capital H (Hertz)
+        (parse_freq_hz, "455 MHZ", "MHz"),  # SI: the symbol Hz, z lower-case
+        (parse_freq_hz, "455 Mhz", "MHz"),  # SI: capital H (Hertz)
+        (parse_freq_hz, "12.5 KHz", "kHz"),  # SI: "k" kilo lower-case ("K" is the kelvin)
+        (parse_freq_hz, "12.5 khz", "kHz"),  # SI: capital H (Hertz)
+        (parse_freq_hz, "2.4 ghz", "GHz"),  # SI: "G" giga
+        (parse_freq_hz, "10 hz", "Hz"),  # SI: capital H (Hertz)
+        (parse_freq_hz, "1 thz", "THz"),  # SI: "T" tera
+        (parse_power_dbm, "-8 dbm", "dBm"),  # SI: the bel's B is capital (Bell); "m" milliwatt
+        (parse_power_dbm, "-8 DBM", "dBm"),  # SI: "d" deci and "m" milli lower-case
+        (parse_power_dbm, "-8 Dbm", "dBm"),  # SI: "d" deci lower-case
+        (parse_power_dbm, "+33 dbw", "dBW"),  # SI: W capital (Watt)
+        (parse_power_dbm, "2 mw", "mW"),  # SI: W capital (Watt)
+        (parse_power_dbm, "2 Mw", "mW"),  # SI: W capital; M would be mega
+        (parse_power_dbm, "2 w", "W"),  # SI: W capital (Watt)
+        (parse_power_dbm, "5 KW", "kW"),  # SI: "k" kilo lower-case
+        (parse_power_dbm, "100 UW", "uW"),  # SI: micro lower-case (µ, written u in ASCII)
+        (parse_gain_db, "3 db", "dB"),  # SI: the bel's B is capital (Bell)
+        (parse_gain_db, "3 DB", "dB"),  # SI: "d" deci lower-case
+        (parse_dbc, "-40 DBC", "dBc"),  # SI: "d" deci lower-case; c (carrier), trade usage
+        (parse_dbi, "2.15 DBI", "dBi"),  # SI: "d" deci lower-case; i (isotropic), trade usage
+        (parse_dbc_at, "-28 DBC @ +20 dBm", "dBc"),  # SI: "d" deci lower-case
+        (parse_dbc_at, "-28 dBc @ +20 dbm", "dBm"),  # SI: the bel's B capital
+        (parse_impedance_ohm, "1 Kohm", "kohm"),  # SI: "k" kilo lower-case
+        (parse_impedance_ohm, "50 OHM", "ohm"),  # the name "ohm" (or "Ohm"), not shouted
+        (parse_impedance_ohm, "50 \u03c9", "\u03a9"),  # SI: capital omega; lower-case is not the ohm
+        (parse_angle_rad, "90 DEG", "deg"),  # SI: "rad"; degree written "deg" here, lower-case
+        (parse_angle_rad, "1 RAD", "rad"),  # SI: the radian's symbol rad, lower-case
+    ],
+)
+def test_wrong_case_is_refused_with_did_you_mean(parse, text, meant):
+    message = _rejection(parse, text)
+    assert f"did you mean '{meant}'?" in message, SI
+    assert ": expected " in message
+
+
+def test_millihertz_message_quotes_the_value_and_offers_megahertz():
+    # SI: "m" milli 1e-3, "M" mega 1e6 (SI Brochure 9th ed., prefixes table; from memory).
+    message = _rejection(parse_freq_hz, "162.5 mHz")
+    assert message.startswith("'162.5 mHz': expected a frequency with its unit")
+    assert "millihertz" in message
+    assert message.endswith("did you mean 'MHz'?)")
+
+
+def test_megawatt_is_refused_never_read_as_milliwatt():
+    # SI: "M" mega 1e6, "m" milli 1e-3 (SI Brochure 9th ed., prefixes table; from memory).
+    # dBm = 10 log10(P / 1 mW) (definition): 2 MW = 2e9 mW is +93.0 dBm, 2 mW is +3.0 dBm.
+    message = _rejection(parse_power_dbm, "2 MW")
+    assert "megawatt" in message and "did you mean 'mW'?" in message
+    assert "+93.0 dBm" in message and "+3.0 dBm" in message
+    # 20 MW is +103.0 dBm, beyond the plausible +100 dBm (DEVELOPERS.md input ranges): the
+    # range message.
+    message = _rejection(parse_power_dbm, "20 MW")
+    assert "+100 dBm" in message and "did you mean 'mW'?" in message
+    # The notes belong to their quantity: a frequency parser does not offer mW, nor a power
+    # parser MHz.
+    assert "did you mean" not in _rejection(parse_freq_hz, "2 MW")
+    assert "did you mean" not in _rejection(parse_power_dbm, "162.5 mHz")
+
+
+def test_wrong_case_limits_and_field_strengths_are_refused():
+    # SI: "m" milli vs "M" mega, the bel's B capital, metre "m" lower-case (SI Brochure 9th
+    # ed.; from memory).  "MV/m" (megavolt per metre) must not be read as mV/m.
+    for text, meant in [
+        ("-60 DBC", "dBc"),
+        ("-36 dbm", "dBm"),
+        ("54 dbuv/m @ 3 m", "dBuV/m"),
+        ("100 UV/m @ 3 m", "uV/m"),
+        ("1 MV/m @ 3 m", "mV/m"),
+        ("54 dBuV/m @ 3 M", "m"),
+    ]:
+        assert f"did you mean '{meant}'?" in _rejection(parse_limit, text), text
+    # 20 log10(1000 uV/m) = 60 dBuV/m (definition of dBuV/m): 1 mV/m still reads.
+    assert parse_limit("1 mV/m @ 3 m") == ("field", pytest.approx(60.0, abs=1e-12), 3.0, False)
+    assert parse_limit("-60 dBc") == ("relative", -60.0, None, False)
+
+
+def test_wrong_case_in_a_mixer_spur_table_and_antenna_gain_is_a_located_error():
+    from spurplan.lineup_file import from_dict
+
+    mixer = {"kind": "mixer", "name": "mixer", "lo": {"freq": "1.6 GHz", "power": "+7 dBm"}}
+    doc = {
+        "carrier": [{"freq": "70 MHz", "power": "-10 dBm"}],
+        "stage": [
+            {**mixer, "conversion_loss": "6 dB", "spur_drive": "-10 dBm", "spurs": {"2LO-IF": "-40 DBC"}}
+        ],
+    }
+    with pytest.raises(LineupError) as info:
+        from_dict(doc, name="case-test.toml")
+    message = str(info.value)  # SI: "d" deci lower-case (SI Brochure 9th ed.; from memory)
+    assert "field 'spurs'" in message and "'-40 DBC'" in message and "did you mean 'dBc'?" in message
+
+    doc = {
+        "carrier": [{"freq": "70 MHz", "power": "-10 dBm"}],
+        "stage": [{"kind": "attenuator", "name": "pad", "loss": "3 dB"}],
+        "mask": {"use": ["us-fcc-15.209"], "antenna_gain": "2.15 DBI"},
+    }
+    with pytest.raises(LineupError) as info:
+        from_dict(doc, name="case-test.toml")
+    assert "'2.15 DBI'" in str(info.value) and "did you mean 'dBi'?" in str(info.value)
+
+
+def test_wrong_case_on_the_command_line_is_one_error_line():
+    from helpers import assert_one_error_line, run_in_process
+
+    # SI: the bel's B is capital (SI Brochure 9th ed.; from memory).
+    code, out, err, detail, _ = run_in_process(
+        ["drive", "examples/uhf_telemetry.toml", "--start", "-20 dbm", "--stop", "+10 dBm", "--step", "1 dB"]
+    )
+    assert_one_error_line(code, out, err, ("--start", "'-20 dbm'", "did you mean 'dBm'?"), detail=detail)
+
+
+def _casings(symbol: str) -> set[str]:
+    """Every upper/lower-case spelling of ``symbol`` (2**letters of them)."""
+    return {"".join(c) for c in itertools.product(*[{ch.lower(), ch.upper()} for ch in symbol])}
+
+
+# (parser, {symbol: value of "1 <symbol>"}, casings accepted besides the symbols).  Values:
+# SI prefixes (SI Brochure 9th ed., from memory); 10 log10(P / 1 mW) (definition of dBm);
+# 180 deg = pi rad (definition).
+_SYMBOLS = [
+    (parse_freq_hz, {"Hz": 1.0, "kHz": 1e3, "MHz": 1e6, "GHz": 1e9, "THz": 1e12}, {}),
+    (parse_power_dbm, {"dBm": 1.0, "dBW": 31.0, "W": 30.0, "mW": 0.0, "uW": -30.0, "kW": 60.0}, {}),
+    (parse_gain_db, {"dB": 1.0}, {}),
+    (parse_dbc, {"dBc": 1.0}, {}),
+    (parse_angle_rad, {"deg": math.pi / 180, "rad": 1.0}, {}),
+    # "ohm" is the unit's name; capitalised "Ohm" is accepted too (documented choice).
+    (parse_impedance_ohm, {"ohm": 1.0, "ohms": 1.0, "kohm": 1e3}, {"Ohm": 1.0, "Ohms": 1.0, "kOhm": 1e3}),
+]
+
+
+@pytest.mark.parametrize(("parse", "symbols", "also"), _SYMBOLS)
+def test_only_the_si_casing_of_a_unit_reads(parse, symbols, also):
+    # Of all 2**n casings of a symbol, only the SI one (and the documented extras) reads,
+    # to the SI value; every other casing is refused naming the SI symbol (SI Brochure,
+    # 9th edition 2019: symbols are case-exact; from memory).
+    for symbol, value in symbols.items():
+        for casing in _casings(symbol):
+            text = f"1 {casing}"
+            if casing == symbol or casing in also:
+                want = value if casing == symbol else also[casing]
+                assert parse(text) == pytest.approx(want, rel=1e-15, abs=1e-15), text
+            else:
+                assert "did you mean '" in _rejection(parse, text), text
+
+
+@pytest.mark.parametrize(
+    ("parse", "text", "value"),
+    [
+        # SI prefixes (SI Brochure 9th ed., from memory); 10 log10(P / 1 mW) (definition).
+        (parse_freq_hz, "162.5 MHz", 162.5e6),
+        (parse_freq_hz, "12.5 kHz", 12.5e3),
+        (parse_freq_hz, "0.5 THz", 0.5e12),
+        (parse_power_dbm, "2 mW", 10 * math.log10(2.0)),
+        (parse_power_dbm, "2 kW", 10 * math.log10(2e6)),
+        (parse_power_dbm, "2 W", 10 * math.log10(2e3)),
+        (parse_power_dbm, "1 \u03bcW", -30.0),  # Greek small mu
+        (parse_power_dbm, "1 \u00b5W", -30.0),  # micro sign
+        (parse_dbc, "-40 dBc", -40.0),
+        (parse_dbi, "2.15 dBi", 2.15),
+        (parse_impedance_ohm, "50 Ohms", 50.0),
+        (parse_impedance_ohm, "1 kOhm", 1e3),
+        (parse_impedance_ohm, "1 k\u03a9", 1e3),  # kilo, Greek capital omega
+        (parse_impedance_ohm, "1 k\u2126", 1e3),  # kilo, ohm sign
+    ],
+)
+def test_correct_spellings_read_their_si_values(parse, text, value):
+    assert parse(text) == pytest.approx(value, rel=1e-15)
 
 
 # --- conversions ----------------------------------------------------------------------------------
