@@ -14,9 +14,10 @@ import numpy as np
 
 from .errors import LineupError, UnitError
 from .fields import Fields
+from .filters import describe_parts
 from .outputs import save_figure, write_atomic
 from .provenance import provenance
-from .stages.filter import Filter, read_prototype
+from .stages.filter import Filter, assumed_notes, read_prototype
 from .tables import element_display, mhz
 from .units import parse_freq_hz, parse_impedance_ohm
 
@@ -44,9 +45,15 @@ class FilterView:
         return element_display(self.elements)
 
     def response_display(self) -> dict[str, list]:
+        """The response rows for a terminal; FLOOR marks rows where the stopband floor,
+        not the ladder, sets |S21|."""
         cols = dict(self.response)
         cols["freq_mhz"] = mhz(cols["freq_hz"])
-        cols["flags"] = ["BEYOND-DATA" if b else "" for b in cols["beyond_data"]]
+        floor = self.stage.ideal_below_floor(np.asarray(cols["freq_hz"], dtype=float))
+        cols["flags"] = [
+            " ".join(w for w, on in (("BEYOND-DATA", b), ("FLOOR", bool(fl))) if on)
+            for b, fl in zip(cols["beyond_data"], floor, strict=True)
+        ]
         return cols
 
     def summary(self) -> dict:
@@ -57,6 +64,7 @@ class FilterView:
             "prototype": None
             if proto is None
             else {k: getattr(proto, k) for k in proto.__dataclass_fields__},
+            "parts": None if proto is None else describe_parts(proto),
             "elements": self.elements,
             "notes": list(self.notes),
         }
@@ -96,7 +104,7 @@ def stage_view(lineup, name: str) -> FilterView:
     """The view of filter stage ``name`` of ``lineup`` at its input products."""
     stage = lineup.stage_of_kind(name, Filter)
     result = lineup.run()
-    what = stage.source or "synthesized ladder"
+    what = stage.source or f"synthesized ladder; {describe_parts(stage.prototype)}"
     return FilterView(
         title=f"{lineup.name}: filter '{name}' ({what}) at the products reaching it",
         stage=stage,
@@ -115,7 +123,8 @@ def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterVie
     except UnitError as exc:
         raise LineupError(str(exc), file=where) from None
     proto = read_prototype(Fields({"prototype": spec}, where, "filter"))
-    stage = Filter(name="prototype", r_ohm=r_ohm, prototype=proto)
+    notes = assumed_notes(spec)
+    stage = Filter(name="prototype", r_ohm=r_ohm, prototype=proto, notes=notes)
     response = {
         k: [] for k in ("freq_hz", "label", "order", "level_in_dbm", "s21_db", "s21_deg", "beyond_data")
     }
@@ -130,5 +139,5 @@ def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterVie
             response["s21_db"] = [float(v) for v in 20 * np.log10(np.abs(h))]
         response["s21_deg"] = [float(v) for v in np.degrees(np.angle(h))]
         response["beyond_data"] = [False] * PROTOTYPE_HARMONICS
-    title = f"{proto.family} {proto.response}, order {proto.order}, {r_ohm:g} ohm"
-    return FilterView(title=title, stage=stage, response=response, notes=())
+    title = f"{proto.family} {proto.response}, order {proto.order}, {r_ohm:g} ohm; {describe_parts(proto)}"
+    return FilterView(title=title, stage=stage, response=response, notes=notes)

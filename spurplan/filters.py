@@ -25,6 +25,37 @@ is realistic.  The ladder is built from ``skrf.media.DefinedGammaZ0`` elements (
 series impedance and its shunt form) and cascaded with ``**``, evaluated directly
 at the frequencies asked for: nothing is interpolated.
 
+Stopband floor
+--------------
+A discrete LC filter leaks around its ladder (coupling between parts and across the
+layout, parts beyond self-resonance, a shared ground return), so its rejection stops
+growing at some floor, while the ideal ladder falls without limit (-150 dB at the
+10th harmonic).  :func:`apply_floor` models the leakage as a second path of
+amplitude ``a = 10^(floor/20)`` that adds **in phase** with the ladder::
+
+    S21 = (1 - a) S21_ladder + a u,    u = S21_ladder / |S21_ladder|
+
+so ``|S21| = a + (1 - a) |S21_ladder|``, with the ladder's phase.  Why this form: the
+leakage's phase on a real board is unknown, and the in-phase sum is the least
+rejection any phase gives, the choice one can sign (as ``combine = "worst"`` is for
+products); it makes no null that a layout cannot be relied on to produce; it is
+smooth in frequency (no kink for sweeps and bisections) and keeps the ladder's phase,
+so the response stays a proper complex function.  The weight ``1 - a`` on the ladder
+keeps ``|S21| = 1`` where the ladder passes everything, so the network stays
+passive and the passband changes by ``20 log10(1 + a (1 - |S21|) / |S21|)``, under
+0.004 dB for a floor of -60 dB anywhere within 3 dB of the passband; deep in the
+stopband ``|S21| -> a``, the floor exactly, and ``|S21|`` is never below it.  In the
+full S-matrix (:func:`apply_floor_s`) S21 and S12 get the same floor, and the
+magnitudes of S11 and S22 shrink so that ``|S11|^2 + |S21|^2`` (and
+``|S22|^2 + |S12|^2``) keep the ladder's value, phases unchanged: the leaked power
+is taken from the reflected wave, the power the parts dissipate is the ladder's, a
+lossless ladder stays lossless (S unitary: for these symmetric ladders S11 and S21
+stay in quadrature) and the network stays passive.
+
+Defaults (applied where a lineup file leaves the keys out, ``stages.filter``):
+:data:`DEFAULT_Q_INDUCTOR`, :data:`DEFAULT_Q_CAPACITOR` and :data:`DEFAULT_FLOOR_DB`.
+A :class:`Prototype` built in code is what it says: ``None`` is lossless, no floor.
+
 Touchstone data
 ---------------
 ``S21`` between data points is interpolated piecewise-linearly in **dB against
@@ -53,6 +84,16 @@ MAX_FILTER_ORDER = 15
 # What a Touchstone-based response does outside its data: raise (default), hold the
 # edge value, or assume no rejection (0 dB).
 BEYOND_POLICIES: tuple[str, ...] = ("error", "hold", "no_rejection")
+# Defaults for a synthesized filter whose lineup table leaves the keys out: unloaded
+# Q of discrete UHF chip inductors and capacitors, and the level below which a discrete
+# LC filter on a board does not reject (parasitic coupling, part self-resonance, ground
+# return). Common practice for discrete LC filters, no source.
+DEFAULT_Q_INDUCTOR = 100.0
+DEFAULT_Q_CAPACITOR = 500.0
+DEFAULT_FLOOR_DB = -80.0
+# A floor within 20 dB of the passband would reshape the passband itself: not a filter.
+# Below -300 dB it is no floor (the ratio range of the lineup files).
+FLOOR_RANGE_DB = (-300.0, -20.0)
 # Frequencies below this (Hz) are evaluated here: 0 Hz would make capacitors open.
 _MIN_EVAL_HZ = 1.0
 _OPEN_CONDUCTANCE_S = 1e-15
@@ -97,6 +138,9 @@ class Prototype:
         Unloaded Q of the parts; ``None`` for lossless.
     first : {"shunt", "series"}
         Whether the ladder starts with a shunt or a series arm.
+    floor_db : float or None
+        Stopband floor (dB, negative): ``|S21|`` never falls below it (module
+        docstring); ``None`` for the ideal ladder.
     """
 
     family: Family
@@ -108,6 +152,7 @@ class Prototype:
     q_inductor: float | None = None
     q_capacitor: float | None = None
     first: Literal["shunt", "series"] = "shunt"
+    floor_db: float | None = None
 
     def g_values(self) -> np.ndarray:
         if self.family == "butterworth":
@@ -160,6 +205,81 @@ def ladder_elements(proto: Prototype, r_ohm: float) -> list[Element]:
     return out
 
 
+def parts_text(q_inductor: float | None, q_capacitor: float | None, floor_db: float | None) -> str:
+    """Unloaded Qs and stopband floor in words: "Q_L 100, Q_C 500, stopband floor -80 dB"."""
+
+    def q(value) -> str:
+        return "lossless" if value is None else f"{value:g}"
+
+    floor = "none (ideal ladder)" if floor_db is None else f"{floor_db:g} dB"
+    return f"Q_L {q(q_inductor)}, Q_C {q(q_capacitor)}, stopband floor {floor}"
+
+
+def describe_parts(proto: Prototype) -> str:
+    """:func:`parts_text` of a prototype."""
+    return parts_text(proto.q_inductor, proto.q_capacitor, proto.floor_db)
+
+
+def floor_amplitude(floor_db: float | None) -> float:
+    """Leakage amplitude ``a = 10^(floor/20)`` (0 for no floor)."""
+    return 0.0 if floor_db is None else 10.0 ** (floor_db / 20.0)
+
+
+def max_rejection_db(floor_db: float | None) -> float:
+    """The most rejection a filter with this floor gives anywhere (dB, >= 0; inf for none).
+
+    ``|S21| >= a`` under :func:`apply_floor`, so at most ``-floor_db``.
+    """
+    return math.inf if floor_db is None else -float(floor_db)
+
+
+def _floored(s: np.ndarray, a: float) -> np.ndarray:
+    mag = np.abs(s)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        unit = np.where(mag > 0, s / np.where(mag > 0, mag, 1.0), 1.0 + 0j)
+    return unit * (a + (1.0 - a) * mag)
+
+
+def apply_floor(s21: np.ndarray, floor_db: float | None) -> np.ndarray:
+    """S21 with the stopband floor: ``(1 - a) S21 + a S21/|S21|`` (module docstring).
+
+    Parameters
+    ----------
+    s21 : complex ndarray, any shape
+        The ladder's transmission.
+    floor_db : float or None
+        Floor (dB); ``None`` returns ``s21`` unchanged.
+    """
+    if floor_db is None:
+        return s21
+    return _floored(np.asarray(s21, dtype=complex), floor_amplitude(floor_db))
+
+
+def apply_floor_s(s: np.ndarray, floor_db: float | None) -> np.ndarray:
+    """Full S-matrices ``(..., 2, 2)`` with the stopband floor (module docstring).
+
+    S21 and S12 as :func:`apply_floor`; ``|S11|`` and ``|S22|`` reduced so that each
+    column's power ``|S11|^2 + |S21|^2`` (``|S12|^2 + |S22|^2``) is the ladder's,
+    phases kept, never below 0.
+    """
+    if floor_db is None:
+        return s
+    a = floor_amplitude(floor_db)
+    s = np.asarray(s, dtype=complex)
+    out = np.empty_like(s)
+    for through, refl in (((1, 0), (0, 0)), ((0, 1), (1, 1))):
+        t = s[..., through[0], through[1]]
+        r = s[..., refl[0], refl[1]]
+        t_new = _floored(t, a)
+        r_mag = np.abs(r)
+        r_new_mag = np.sqrt(np.maximum(r_mag**2 - (np.abs(t_new) ** 2 - np.abs(t) ** 2), 0.0))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            r_new = np.where(r_mag > 0, r * (r_new_mag / np.where(r_mag > 0, r_mag, 1.0)), 0j)
+        out[..., through[0], through[1]] = t_new
+        out[..., refl[0], refl[1]] = r_new
+    return out
+
+
 def _arm_impedance(el: Element, w: np.ndarray, proto: Prototype) -> np.ndarray:
     """Impedance (ohm) of one arm at angular frequencies ``w``, with finite Q."""
     z_l = z_c = None
@@ -192,7 +312,8 @@ def ladder_s21(
     and ``part_scale`` (B, N) multiplies each element's L and C.  ``freq_hz`` is
     (B, P).  ABCD of a series arm Z is [[1, Z], [0, 1]], of a shunt arm [[1, 0],
     [1/Z, 1]], and ``S21 = 2 / (A + B/R0 + C R0 + D)`` between R0 terminations (Pozar,
-    Microwave Engineering, ABCD parameters; from memory).
+    Microwave Engineering, ABCD parameters; from memory).  The prototype's stopband
+    floor is applied last (:func:`apply_floor`).
     """
     f = np.maximum(np.asarray(freq_hz, dtype=float), _MIN_EVAL_HZ)
     w = 2 * math.pi * f
@@ -223,11 +344,14 @@ def ladder_s21(
         else:
             y = 1.0 / z
             a, b, c, d = a + b * y, b, c + d * y, d
-    return 2.0 / (a + b / r_ohm + c * r_ohm + d)
+    return apply_floor(2.0 / (a + b / r_ohm + c * r_ohm + d), proto.floor_db)
 
 
 def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):
-    """The ladder as a 2-port ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz)."""
+    """The ladder as a 2-port ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz).
+
+    With the prototype's stopband floor applied to the S-matrix (:func:`apply_floor_s`).
+    """
     import skrf
     from skrf.media import DefinedGammaZ0
 
@@ -241,6 +365,8 @@ def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):
         if el.branch == "shunt":
             arm = med.shunt(arm ** med.short())
         net = arm if net is None else net**arm
+    if proto.floor_db is not None:
+        net.s = apply_floor_s(net.s, proto.floor_db)
     net.name = f"{proto.family} {proto.response} N={proto.order}"
     return net
 

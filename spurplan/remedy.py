@@ -15,6 +15,14 @@ Butterworth edge moves further out until its loss at the carriers is at most
 ``max_loss_db``.
 The filter is built from the lineup snippet that is printed, so what is checked is
 exactly what the user pastes.
+
+The proposed filter is a real one: its parts have finite unloaded Q and it has a
+stopband floor (by default those of :mod:`spurplan.filters`: Q_L 100, Q_C 500, floor
+-80 dB; common practice, no source), written into the snippet, so that the re-check
+includes the dissipation loss at the carrier and the rejection the floor caps.  A
+product that needs more rejection than the floor allows (:func:`spurplan.filters.
+max_rejection_db`) cannot be fixed by one filter: the search is not run and the
+reason says so.
 """
 
 from __future__ import annotations
@@ -26,7 +34,13 @@ from pathlib import Path
 from .check import CheckResult, check
 from .errors import LineupError
 from .fields import Fields
-from .filters import MAX_FILTER_ORDER
+from .filters import (
+    DEFAULT_FLOOR_DB,
+    DEFAULT_Q_CAPACITOR,
+    DEFAULT_Q_INDUCTOR,
+    MAX_FILTER_ORDER,
+    max_rejection_db,
+)
 from .stages import Amplifier, LoadContext
 from .stages.filter import Filter
 
@@ -60,6 +74,9 @@ class Remedy:
         Every candidate: family, order, worst margin.
     reason : str
         Why nothing was proposed, when nothing was.
+    parts : dict
+        The parts assumed for every candidate: ``q_inductor``, ``q_capacitor``
+        (``None``: lossless) and ``floor_db`` (``None``: no floor).
     """
 
     lineup: object
@@ -73,6 +90,7 @@ class Remedy:
     outcome: CheckResult | None
     tried: list
     reason: str = ""
+    parts: dict | None = None
 
     @property
     def found(self) -> bool:
@@ -88,6 +106,7 @@ class Remedy:
             "reason": self.reason,
             "insert_after": self.after,
             "snippet": self.snippet,
+            "parts": self.parts,
             "before": {"pass": self.before.passed, "worst_margin_db": self.before.worst_margin_db},
             "tried": self.tried,
         }
@@ -118,6 +137,9 @@ def remedy(
     margin_db: float = 3.0,
     edge_factor: float = EDGE_FACTOR,
     max_loss_db: float = MAX_PASSBAND_LOSS_DB,
+    q_inductor: float | None = DEFAULT_Q_INDUCTOR,
+    q_capacitor: float | None = DEFAULT_Q_CAPACITOR,
+    floor_db: float | None = DEFAULT_FLOOR_DB,
 ) -> Remedy:
     """Find the lowest-order synthesized filter that makes ``lineup`` pass with ``margin_db``.
 
@@ -132,7 +154,12 @@ def remedy(
     edge_factor : float
         Passband edge beyond the carriers (see the module docstring).
     max_loss_db : float
-        Largest loss of the ideal ladder at a carrier that the edge placement allows.
+        Largest loss of the ideal ladder at a carrier that the edge placement allows
+        (the re-check includes the real filter's dissipation loss as well).
+    q_inductor, q_capacitor : float or None
+        Unloaded Q of the proposed filter's parts (``None``: lossless).
+    floor_db : float or None
+        The proposed filter's stopband floor (dB; ``None``: the ideal ladder).
     """
     before = check(lineup)
     needed = rejection_needed(before, margin_db)
@@ -151,6 +178,7 @@ def remedy(
             filter=None,
             outcome=None,
             tried=[],
+            parts={"q_inductor": q_inductor, "q_capacitor": q_capacitor, "floor_db": floor_db},
         )
         return Remedy(**{**base, **kw})
 
@@ -163,6 +191,19 @@ def remedy(
     if len(above) + len(below) < len(needed["freq_hz"]):
         return result(reason="some failing products lie between the carriers: no filter can remove them")
     kind = "bandpass" if above and below else ("lowpass" if above else "highpass")
+    most = max_rejection_db(floor_db)
+    beyond = [i for i, r in enumerate(needed["rejection_needed_db"]) if r > most]
+    if beyond:
+        i = max(beyond, key=lambda k: needed["rejection_needed_db"][k])
+        return result(
+            reason=(
+                f"{needed['label'][i]} at {needed['freq_hz'][i] / 1e6:.6g} MHz needs "
+                f"{needed['rejection_needed_db'][i]:.1f} dB more rejection, more than one filter with a "
+                f"{floor_db:g} dB stopband floor gives ({most:.1f} dB at most): lower the product at its source, "
+                "or use more than one filter, each in its own screened section"
+            )
+        )
+    parts = _parts_keys(q_inductor, q_capacitor, floor_db)
 
     tried = []
     for order in range(1, MAX_FILTER_ORDER + 1):
@@ -174,7 +215,7 @@ def remedy(
             rip = f', ripple = "{ripple}"' if ripple else ""
             snippet = (
                 f'[[stage]]\nkind = "filter"\nname = "{STAGE_NAME}"\n'
-                f'prototype = {{ family = "{family}", {shape}, order = {order}{rip} }}\n'
+                f'prototype = {{ family = "{family}", {shape}, order = {order}{rip}, {parts} }}\n'
             )
             flt = _filter_from_snippet(snippet, lineup)
             fixed = replace(lineup, stages=(*lineup.stages[:position], flt, *lineup.stages[position:]))
@@ -220,6 +261,16 @@ def _shape(
     span = max(hi / f0 - f0 / hi, f0 / lo - lo / f0)
     frac = max((f2 - f1) / f0, span / w_max)
     return f'response = "bandpass", center = "{_mhz(f0)}", bandwidth = "{_mhz(frac * f0)}"'
+
+
+def _parts_keys(q_inductor: float | None, q_capacitor: float | None, floor_db: float | None) -> str:
+    """The prototype keys for the parts' Q and the floor, as the snippet writes them."""
+
+    def q(value) -> str:
+        return '"lossless"' if value is None else f"{value:.12g}"
+
+    floor = '"none"' if floor_db is None else f'"{floor_db:.12g} dB"'
+    return f"q_inductor = {q(q_inductor)}, q_capacitor = {q(q_capacitor)}, floor = {floor}"
 
 
 def _mhz(hz: float) -> str:

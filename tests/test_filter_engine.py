@@ -74,7 +74,9 @@ def _lineup_file(tmp_path):
         '[[carrier]]\nfreq = "455 MHz"\npower = "0 dBm"\n'
         '[[stage]]\nkind = "amplifier"\nname = "pa"\ngain = "20 dB"\noip3 = "+40 dBm"\noip2 = "+50 dBm"\n'
         '[[stage]]\nkind = "filter"\nname = "lpf"\n'
-        'prototype = { family = "butterworth", order = 5, cutoff = "600 MHz" }\n',
+        # The ideal ladder, stated: the closed forms below are for lossless parts.
+        'prototype = { family = "butterworth", order = 5, cutoff = "600 MHz", q_inductor = "lossless", '
+        'q_capacitor = "lossless", floor = "none" }\n',
         encoding="utf-8",
     )
     return path

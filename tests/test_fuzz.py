@@ -278,7 +278,8 @@ def prototype(draw) -> str:
         items["ripple"] = draw(quantity(["0.1 dB", "0.5 dB", "1 dB"], ["0 dB", "4 dB", "0.1"], "ripple"))
     extra = {
         "q_inductor": number([120, 60, 30.5], ["0", "-1", '"120"', "inf"], ["1e-300", "1e300", "5e-324"]),
-        "q_capacitor": number([600, 400], ["0", "nan"], ["1e-300", "1e300"]),
+        "q_capacitor": number([600, 400, '"lossless"'], ["0", "nan", '"lossy"'], ["1e-300", "1e300"]),
+        "floor": quantity(["-80 dB", "-60 dB", "none"], ["-10 dB", "80 dB", "-80", "off"], "gain"),
         "first": choice(["shunt", "series"], ["parallel"]),
         "ripple": quantity(["0.1 dB"], ["0.1"]),
         "cutoff": quantity(["300 MHz"], ["300"]),

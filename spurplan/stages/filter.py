@@ -10,27 +10,40 @@ Keys::
                   order = 7, cutoff = "520 MHz"          # low/high-pass
                   # center = "450 MHz", bandwidth = "40 MHz"  for band-pass
                   ripple = "0.1 dB",                      # Chebyshev
-                  q_inductor = 80, q_capacitor = 400,      # optional unloaded Q
+                  q_inductor = 80, q_capacitor = 400,      # unloaded Q, or "lossless"
+                  floor = "-80 dB",                        # stopband floor, or "none"
                   first = "shunt" | "series" }             # ladder orientation
+
+Left out, ``q_inductor``, ``q_capacitor`` and ``floor`` take the defaults of
+:mod:`spurplan.filters` (Q_L 100, Q_C 500, floor -80 dB: discrete UHF parts, common
+practice, no source), and the stage's notes say which were assumed.  ``"lossless"``
+and ``"none"`` ask for the ideal ladder explicitly.
 """
 
 from __future__ import annotations
 
 import math
 import warnings
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from ..errors import UnitError
 from ..fields import Fields, existing_file
 from ..filters import (
+    DEFAULT_FLOOR_DB,
+    DEFAULT_Q_CAPACITOR,
+    DEFAULT_Q_INDUCTOR,
     FAMILIES,
+    FLOOR_RANGE_DB,
     MAX_FILTER_ORDER,
     RESPONSES,
     Prototype,
     SParameterTable,
+    floor_amplitude,
     ladder_elements,
     ladder_network,
+    ladder_s21,
 )
 from ..units import parse_freq_hz, parse_gain_db
 from .base import LoadContext
@@ -106,18 +119,45 @@ class Filter:
         )
 
     def elements(self) -> dict[str, list]:
-        """Element values of a synthesized ladder as columns (empty for Touchstone)."""
-        cols = {"position": [], "branch": [], "part": [], "g": [], "l_h": [], "c_f": []}
+        """Element values of a synthesized ladder as columns (empty for Touchstone).
+
+        ``q_l`` and ``q_c`` are the unloaded Q of the arm's inductor and capacitor (a
+        number, ``"lossless"``, or ``None`` where the arm has no such part).
+        """
+        keys = ("position", "branch", "part", "g", "l_h", "c_f", "q_l", "q_c")
+        cols = {k: [] for k in keys}
         if self.prototype is None:
             return cols
-        for el in ladder_elements(self.prototype, self.r_ohm):
+        p = self.prototype
+
+        def q(value, present):
+            if not present:
+                return None
+            return "lossless" if value is None else value
+
+        for el in ladder_elements(p, self.r_ohm):
             cols["position"].append(el.position)
             cols["branch"].append(el.branch)
             cols["part"].append(el.part)
             cols["g"].append(el.g)
             cols["l_h"].append(el.l_h)
             cols["c_f"].append(el.c_f)
+            cols["q_l"].append(q(p.q_inductor, el.l_h is not None))
+            cols["q_c"].append(q(p.q_capacitor, el.c_f is not None))
         return cols
+
+    def ideal_below_floor(self, freq_hz: np.ndarray) -> np.ndarray:
+        """True where the ladder alone rejects more than the floor (the floor sets |S21|).
+
+        All False for a Touchstone filter or a prototype without a floor.
+        """
+        f = np.asarray(freq_hz, dtype=float)
+        p = self.prototype
+        if p is None or p.floor_db is None:
+            return np.zeros(f.shape, dtype=bool)
+        # ladder_s21 broadcasts over a batch axis; a plain array keeps its own shape.
+        ideal = np.reshape(ladder_s21(replace(p, floor_db=None), f, self.r_ohm), f.shape)
+        return np.abs(ideal) < floor_amplitude(p.floor_db)
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Filter:
@@ -128,7 +168,13 @@ class Filter:
         if has_proto:
             fields.raw("touchstone")
             fields.raw("input_port")
-            return cls(name=name, r_ohm=context.r_ohm, prototype=read_prototype(fields))
+            proto = read_prototype(fields)
+            return cls(
+                name=name,
+                r_ohm=context.r_ohm,
+                prototype=proto,
+                notes=assumed_notes(fields.raw("prototype")),
+            )
         fields.raw("prototype")
         table, s_table, notes = read_touchstone(fields, context)
         return cls(
@@ -180,8 +226,9 @@ def read_prototype(fields: Fields) -> Prototype:
             "cutoff" if response != "bandpass" else "center",
             f"expected an edge and bandwidth of at least {MIN_EDGE_HZ:g} Hz",
         )
-    q_l = _q(sub, "q_inductor")
-    q_c = _q(sub, "q_capacitor")
+    q_l = _optional(sub, "q_inductor", parse_q, DEFAULT_Q_INDUCTOR)
+    q_c = _optional(sub, "q_capacitor", parse_q, DEFAULT_Q_CAPACITOR)
+    floor = _optional(sub, "floor", parse_floor_db, DEFAULT_FLOOR_DB)
     first = sub.text("first", default="shunt", choices=("shunt", "series"))
     sub.finish()
     return Prototype(
@@ -194,12 +241,24 @@ def read_prototype(fields: Fields) -> Prototype:
         q_inductor=q_l,
         q_capacitor=q_c,
         first=first,
+        floor_db=floor,
     )
 
 
-def _q(sub: Fields, key: str) -> float | None:
-    value = sub.raw(key)
-    if value is None:
+# Words that ask for the ideal: a lossless part, no stopband floor.
+LOSSLESS = "lossless"
+NO_FLOOR = "none"
+
+
+def parse_q(value: object) -> float | None:
+    """An unloaded Q: a number within :data:`Q_RANGE`, or "lossless" (``None``).
+
+    Raises
+    ------
+    ValueError
+        With the message to show after the field name.
+    """
+    if value == LOSSLESS:
         return None
     lo, hi = Q_RANGE
     if (
@@ -207,8 +266,58 @@ def _q(sub: Fields, key: str) -> float | None:
         or not isinstance(value, (int, float))
         or not (math.isfinite(value) and lo <= value <= hi)
     ):
-        raise sub.error(key, f"{value!r}: expected an unloaded Q, a number from {lo:g} to {hi:g}")
+        raise ValueError(
+            f'{value!r}: expected an unloaded Q, a number from {lo:g} to {hi:g}, or "{LOSSLESS}"'
+        )
     return float(value)
+
+
+def parse_floor_db(value: object) -> float | None:
+    """A stopband floor: a level in dB within :data:`~spurplan.filters.FLOOR_RANGE_DB`, or "none".
+
+    Raises
+    ------
+    ValueError
+        With the message to show after the field name.
+    """
+    if value == NO_FLOOR:
+        return None
+    lo, hi = FLOOR_RANGE_DB
+    expected = f'{value!r}: expected a stopband floor from {lo:g} dB to {hi:g} dB (such as "-80 dB"), or "{NO_FLOOR}"'
+    try:
+        floor = parse_gain_db(value)
+    except UnitError:
+        raise ValueError(expected) from None
+    if not lo <= floor <= hi:
+        raise ValueError(expected)
+    return floor
+
+
+def _optional(sub: Fields, key: str, parse, default: float) -> float | None:
+    """``parse(value)`` of ``key``, ``default`` when it is absent, a located error otherwise."""
+    if not sub.has(key):
+        sub.raw(key)
+        return default
+    try:
+        return parse(sub.raw(key))
+    except ValueError as exc:
+        raise sub.error(key, str(exc)) from None
+
+
+def assumed_notes(spec: object) -> tuple[str, ...]:
+    """A note naming the defaults a prototype table relied on (none when it states all)."""
+    if not isinstance(spec, dict):
+        return ()
+    assumed = []
+    if "q_inductor" not in spec:
+        assumed.append(f"Q_L {DEFAULT_Q_INDUCTOR:g}")
+    if "q_capacitor" not in spec:
+        assumed.append(f"Q_C {DEFAULT_Q_CAPACITOR:g}")
+    if "floor" not in spec:
+        assumed.append(f"stopband floor {DEFAULT_FLOOR_DB:g} dB")
+    if not assumed:
+        return ()
+    return (f"assumed {', '.join(assumed)} (defaults for discrete LC parts: common practice, no source)",)
 
 
 def read_touchstone(fields: Fields, context: LoadContext):
