@@ -77,6 +77,38 @@ def test_uniform_spread_and_corners():
     assert res.yield_fraction == 0.0
 
 
+def test_conversion_gain_spread_of_a_compressed_mixer_gives_the_normal_cdf():
+    # A mixer driven at its P1dB with its spur table measured there: 2LO-IF is
+    # -40 dBc of the wanted output, which is 1 dB compressed (definition of P1dB), so
+    # it sits at +1 - 6 - 1 - 40 = -46 dBm (arithmetic). A conversion-gain spread
+    # N(0, 1 dB) moves every product with it; against a -45 dBm limit the yield is
+    # Phi((-45 - -46) / 1) = 0.8413 (normal CDF). The image is 60 dB down and passes.
+    doc = {
+        "carrier": [{"freq": "70 MHz", "power": "+1 dBm"}],
+        "stage": [
+            {
+                "kind": "mixer",
+                "name": "mixer",
+                "lo": {"freq": "1.6 GHz", "power": "+7 dBm"},
+                "conversion_loss": "6 dB",
+                "image_rejection": "60 dB",
+                "p1db": "+1 dBm",
+                "spur_drive": "+1 dBm",
+                "spurs": {"2LO-IF": "-40 dBc"},
+                "tolerance": {"conversion_gain": "1 dB"},
+            }
+        ],
+        "mask": {"rule": [{"start": "9 kHz", "stop": "10 GHz", "limit": "-45 dBm", "name": "flat"}]},
+        "analysis": {"max_order": 3},
+    }
+    lineup = from_dict(doc, name="yield-mixer.toml")
+    res = run_yield(lineup, 20_000, seed=4)
+    lo, hi = res.interval
+    assert lo <= _phi(1.0) <= hi
+    assert hi - lo < 0.02
+    assert res.causes[0]["label"] == "2LO-IF"
+
+
 def test_wilson_interval_matches_published_example():
     # Wilson score interval, 95 %: 81 successes of 263 gives 0.2553 to 0.3662 (worked
     # example in Newcombe, Statistics in Medicine 17 (1998) 857, method 3; from memory).

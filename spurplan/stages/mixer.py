@@ -1,27 +1,80 @@
-"""Mixer stage: upconversion with its m x n spurs, LO leakage and image.
+"""Mixer stage: upconversion with its m x n spurs, LO and IF leakage, image and IF compression.
 
 Keys::
 
     kind = "mixer"
     lo = { freq = "1.6 GHz", power = "+7 dBm" }
-    conversion_gain = "-6.5 dB"        # or conversion_loss = "6.5 dB"
+    conversion_gain = "-6.5 dB"        # or conversion_loss = "6.5 dB" (small-signal)
     sideband = "upper" | "lower"       # wanted product: LO + IF or LO - IF
     lo_isolation = "35 dB"             # LO-to-RF: LO leakage = LO power - isolation
+    if_isolation = "40 dB"             # IF-to-RF: IF leakage = IF power - isolation
     image_rejection = "0 dB"           # other 1x1 sideband below the wanted (0: double-sideband)
+    p1db = "+1 dBm"                    # input-referred (IF port) 1 dB compression; or
+    iip3 = "+10 dBm"                   # input-referred (IF port) two-tone IP3
     spur_drive = "-10 dBm"             # IF drive at which the spur table holds
     spurs = { "2LO-IF" = "-40 dBc", "LO+2IF" = "-55 dBc", "2LO" = "-25 dBc", "2IF" = "-50 dBc" }
 
 Model.  The LO is one more base tone of the engine.  With ``z`` the analytic IF
 signal at the mixer input (each product at its positive frequency; for one IF tone
-``z = A exp(j theta_IF)``) and ``A_ref`` the peak voltage of ``spur_drive``, the output
-is ``Re sum c_mn exp(j m theta_LO) z^n`` (and ``conj(z)^|n|`` for ``m LO - |n| IF``).
+``z = A exp(j theta_IF)``) and ``w = z g(|z|)`` that signal after the IF port's
+compression (``w = z`` without ``p1db`` / ``iip3``), the output is
+``Re sum c_mn exp(j m theta_LO) w^n`` (and ``conj(w)^|n|`` for ``m LO - |n| IF``).
 For one IF tone each term is exactly one product, at ``|m f_LO + n f_IF|``, with the
-level ``L_mn`` of the table at the stated drive (``c_mn = A_w 10^(L_mn/20) / A_ref^|n|``,
-``A_w`` the wanted output there) and a level that moves by ``|n|`` dB per dB of IF
-drive: ``|n| - 1`` dB in dBc (the usual rule; common practice, no source).  LO
-harmonics (``n = 0``) do not move with IF drive.  For several IF tones ``z^n`` makes
-their sum products (``LO + IF1 + IF2`` ...); difference products among the IF tones
-are not modelled here (put an amplifier before the mixer for IF intermodulation).
+level ``L_mn`` of the table at the stated drive and a level that moves by ``|n|`` dB
+per dB of IF drive below compression: ``|n| - 1`` dB in dBc (the usual rule; common
+practice, no source).  LO harmonics (``n = 0``) do not move with IF drive.  The table
+is a measurement at ``spur_drive``, so it holds there exactly, compression included:
+with ``A_ref`` the peak voltage of ``spur_drive``, ``g_ref = g(A_ref)`` and ``A_w`` the
+small-signal wanted output there, ``c_mn = A_w g_ref 10^(L_mn/20) / (A_ref g_ref)^|n|``
+(dBc are relative to the wanted output as compressed at ``spur_drive``).  The entry
+"IF" (``m = 0, n = 1``) is the IF feedthrough; ``if_isolation`` sets it to
+``-isolation - conversion gain`` dBc, i.e. IF leakage = IF power - isolation below
+compression.  ``lo_isolation`` sets "LO" to ``LO power - isolation`` dBm absolute.
+
+Compression (IF port).  ``g`` is a smooth limiter of Rapp form on the envelope
+(Rapp 1991; from memory)::
+
+    g(r) = 1 / (1 + (r / r_c)^(2 s))^(1 / (2 s)),   s = 1
+
+applied before the conversion terms, so the wanted product, the image, the IF
+feedthrough and every m x n spur see the compressed envelope (spurs flatten in
+compression too) and several IF carriers intermodulate (``|w|^2 w`` terms: ``LO + 2 IF1 -
+IF2`` ...).  ``s = 1`` because it is the only integer smoothness whose leading
+envelope term is cubic, so IM3 rises 3 dB per dB at low drive; a sharper knee
+(``s >= 2``) would start at fifth order and show no low-drive IM3.
+
+* ``p1db``: for one IF tone ``|z| = A`` is constant, so the wanted output is
+  compressed by exactly ``g(A)``; 1 dB at ``A_1`` means ``(A_1 / r_c)^(2 s) =
+  10^(s / 10) - 1``, solved for ``r_c`` in closed form (no fit needed; a drive sweep
+  in the tests checks it).
+* ``iip3``: with ``s = 1``, ``g(r) = 1 - r^2 / (2 r_c^2) + O(r^4)``.  Two tones
+  ``z = A (e1 + e2)`` (``ek = exp(j theta_k)``) give ``|z|^2 z = A^3 (3 e1 + 3 e2 +
+  e1^2 conj(e2) + e2^2 conj(e1))``, so ``w`` holds ``-A^3 / (2 r_c^2)`` at ``2 IF1 - IF2``
+  against ``A`` at each tone; the wanted term carries both by the same ``c``.  The
+  extrapolated lines meet where ``A = A^3 / (2 r_c^2)``: ``A_IIP3^2 = 2 r_c^2``, i.e.
+  ``r_c = A_IIP3 / sqrt(2)`` (the knee power is IIP3 - 3.01 dB).  Then ``IM3 = 3 Pin -
+  2 IIP3`` (input-referred; Razavi, RF Microelectronics 2e, ch. 2; from memory).
+* Both: this model ties them, ``IIP3 - P1dB = 3.01 - 10 log10(10^0.1 - 1) = 8.88 dB``.
+  If the two figures agree with that within 0.5 dB, ``p1db`` sets the knee; otherwise
+  the stage is refused with a message asking for one of them (``p1db`` where the IF is
+  driven near compression, ``iip3`` where IF intermodulation at low drive sets the
+  margin).  Fitting both would need a second shape parameter that keeps the cubic term.
+
+Several IF tones make an envelope that is no longer constant, so ``w`` has products of
+every order; :meth:`MixerModel.convert` then doubles its torus grid until the kept
+products agree between grids (the engine's ``CONVERGENCE_RTOL`` and floor).  With one
+tone the compressed term is an exact polynomial and the first grid is exact.
+
+Unstated figures (:meth:`Mixer.missing_figures` lists them; the stage is incomplete):
+
+* no ``lo_isolation`` (nor "LO" in ``spurs``): no LO leakage at the output;
+* no spur table (no ``spurs`` entry beyond the wanted, image, LO and IF): only the
+  wanted product, the image and the stated leakages are made;
+* no ``p1db`` / ``iip3``: linear in IF drive (no compression, no IF intermodulation);
+* no ``if_isolation`` (nor "IF" in ``spurs``): no IF feedthrough at the output.
+
+No ``image_rejection`` means a double-sideband mixer (the image at the wanted level),
+which is the conservative reading and not flagged.
 
 The mixer has no linear passage: its whole output counts as its own contribution,
 so products converted from earlier stages are attributed to the mixer.
@@ -31,14 +84,14 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from ..engine import alias_free_grid, torus_analytic, torus_coefficients
 from ..fields import Fields
 from ..nonlinear import per_sample
-from ..units import dbm_to_vpeak, parse_freq_hz, parse_gain_db, parse_power_dbm
+from ..units import dbm_to_vpeak, parse_dbc, parse_freq_hz, parse_gain_db, parse_power_dbm
 from .base import LoadContext
 
 _SPUR = re.compile(r"^\s*(?:(\d*)\s*LO)?\s*(?:([+-]?)\s*(\d*)\s*IF)?\s*$", re.IGNORECASE)
@@ -63,35 +116,142 @@ def parse_spur_label(text: str) -> tuple[int, int]:
     return m_lo, n_if
 
 
+# The IF envelope limiter's smoothness: 1 keeps a cubic leading term (module docstring).
+SMOOTHNESS = 1
+# IIP3 - P1dB of the limiter with s = 1: 10 log10(2) - 10 log10(10^0.1 - 1) dB (derived
+# in the module docstring).
+IIP3_OVER_P1DB_DB = 10 * math.log10(2.0) - 10 * math.log10(10**0.1 - 1.0)
+# Relative spread of |z|^2 over the grid below which the envelope counts as constant
+# (one IF tone): the compressed term is then an exact polynomial in z.
+_CONSTANT_ENVELOPE = 1e-12
+
+
+def knee_from_p1db_v(p1db_dbm: float, r_ohm: float, smoothness: int = SMOOTHNESS) -> float:
+    """Envelope knee ``r_c`` (peak V) whose one-tone compression is 1 dB at ``p1db_dbm``.
+
+    One tone has a constant envelope ``A``, so the wanted output is compressed by
+    ``g(A)`` exactly: ``(A / r_c)^(2 s) = 10^(s / 10) - 1`` (from the Rapp form).
+    """
+    a_1db = float(dbm_to_vpeak(p1db_dbm, r_ohm))
+    return a_1db / (10 ** (smoothness / 10) - 1.0) ** (1.0 / (2 * smoothness))
+
+
+def knee_from_iip3_v(iip3_dbm: float, r_ohm: float) -> float:
+    """Envelope knee ``r_c`` (peak V) for an input-referred IIP3: ``r_c = A_IIP3 / sqrt(2)``
+    (``s = 1``; derivation in the module docstring)."""
+    return float(dbm_to_vpeak(iip3_dbm, r_ohm)) / math.sqrt(2.0)
+
+
+def envelope_gain(r2, knee_v: float, smoothness: int = SMOOTHNESS):
+    """Rapp-form envelope gain ``g = (1 + (r / r_c)^(2 s))^(-1 / (2 s))`` from ``r2 = r^2`` (V^2)."""
+    u = np.asarray(r2) / knee_v**2
+    return (1.0 + u**smoothness) ** (-1.0 / (2 * smoothness))
+
+
+def _rows(value, rows):
+    """A per-sample parameter cut to the batch elements ``rows`` (scalars pass through)."""
+    return value if np.ndim(value) == 0 else np.asarray(value)[rows]
+
+
 @dataclass(frozen=True)
 class MixerModel:
-    """The conversion terms of a mixer (see the module docstring).
+    """The conversion terms of a mixer and its IF compression (see the module docstring).
 
     Attributes
     ----------
     terms : tuple of (m, n, c)
-        ``m`` LO order, ``n`` signed IF order, ``c`` coefficient in V^(1-|n|).
+        ``m`` LO order, ``n`` signed IF order, ``c`` coefficient in V^(1-|n|) (scalar,
+        or one per batch element for Monte Carlo samples).
     lo_index : int
         Which base tone is this mixer's LO.
+    knee_v : float or None
+        Envelope knee ``r_c`` of the IF-port limiter (peak V); ``None``: no compression.
+    smoothness : int
+        Rapp smoothness ``s`` of the limiter.
+    name : str
+        The stage's name, for errors.
     """
 
     terms: tuple[tuple[int, int, float], ...]
     lo_index: int
+    knee_v: float | None = None
+    smoothness: int = SMOOTHNESS
+    name: str = ""
 
     gain = 0.0
     degree = None
     valid_peak_v = (-math.inf, math.inf)
 
     def convert(self, x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
-        """Output phasors (B, P) for input phasors (B, P): exact (polynomial in z, conj z, LO)."""
+        """Output phasors (B, P) for input phasors (B, P).
+
+        Without compression, and with compression of a constant envelope (one IF tone),
+        the output is a polynomial in ``z``, ``conj z`` and the LO, computed exactly on an
+        alias-free grid.  Otherwise the grid doubles, for the batch elements that have not
+        settled, until successive grids agree as in :func:`spurplan.engine.apply_memoryless`.
+        """
+        from ..engine import CONVERGENCE_FLOOR, CONVERGENCE_RTOL, MAX_GRID_POINTS
+
         active = np.any(x_phasors != 0, axis=0)
         m_in = int(np.abs(mix[active]).max()) if active.any() else 1
         m_keep = int(np.abs(mix).max())
         n_max = max(abs(n) for _, n, _ in self.terms)
         m_max = max(m for m, _, _ in self.terms)
-        size = max(alias_free_grid(max(n_max, 1), m_in, m_keep), m_in + m_max + m_keep + 1)
+        # With compression, room for one cubic envelope term more; either way the grid
+        # exceeds 2 m_in, so |z|^2 (indices up to 2 m_in) is sampled without aliases and a
+        # constant envelope on the grid is constant everywhere.
+        degree = max(n_max, 1) + (2 if self.knee_v is not None else 0)
+        size = max(alias_free_grid(degree, m_in, m_keep), m_in + m_max + m_keep + 1)
         size = alias_free_grid(1, size, 0)
+        rows = np.arange(x_phasors.shape[0])
+        y, exact = self._evaluate(x_phasors, mix, freqs_hz, size, rows)
+        if self.knee_v is None:
+            return y
+        k = mix.shape[1]
+        grid_limit = round(MAX_GRID_POINTS ** (1.0 / k))
+        todo = rows[~exact]
+        while todo.size and size * 2 <= grid_limit:
+            size *= 2
+            y2, _ = self._evaluate(x_phasors[todo], mix, freqs_hz[todo], size, todo)
+            scale = np.abs(y2).max(axis=1, keepdims=True)
+            ok = np.all(
+                np.abs(y2 - y[todo]) <= CONVERGENCE_RTOL * np.abs(y2) + CONVERGENCE_FLOOR * scale, axis=1
+            )
+            y[todo] = y2
+            todo = todo[~ok]
+        if todo.size:
+            from ..errors import LineupError
+
+            raise LineupError(
+                f"the IF compression model did not settle on {size} grid points per tone: "
+                "expected fewer IF carriers or a lower max_order",
+                stage=f"stage {self.name!r}",
+            )
+        return y
+
+    def _evaluate(self, x_phasors, mix, freqs_hz, size: int, rows: np.ndarray):
+        """Output phasors on a ``size``-point grid per axis, in batch chunks, and whether
+        each element's envelope is constant (so that this grid is exact)."""
+        from ..engine import MAX_GRID_POINTS
+
+        chunk = max(1, MAX_GRID_POINTS // size ** mix.shape[1])
+        parts = [
+            self._evaluate_chunk(
+                x_phasors[s : s + chunk], mix, freqs_hz[s : s + chunk], size, rows[s : s + chunk]
+            )
+            for s in range(0, len(x_phasors), chunk)
+        ]
+        return tuple(np.concatenate(arrays) for arrays in zip(*parts, strict=True))
+
+    def _evaluate_chunk(self, x_phasors, mix, freqs_hz, size: int, rows: np.ndarray):
         z = torus_analytic(x_phasors, mix, freqs_hz, size)
+        batch = z.shape[0]
+        exact = np.ones(batch, dtype=bool)
+        if self.knee_v is not None:
+            r2 = (z.real**2 + z.imag**2).reshape(batch, -1)
+            top = r2.max(axis=1)
+            exact = top - r2.min(axis=1) <= _CONSTANT_ENVELOPE * top
+            z = z * envelope_gain(r2, self.knee_v, self.smoothness).reshape(z.shape)
         k = mix.shape[1]
         shape = [1] * (k + 1)
         shape[1 + self.lo_index] = size
@@ -99,13 +259,16 @@ class MixerModel:
         y = np.zeros(z.shape)
         for m, n, c in self.terms:
             base = np.ones_like(z) if n == 0 else (z ** abs(n) if n > 0 else np.conj(z) ** abs(n))
-            y += np.real(per_sample(c, z) * lo**m * base)
-        return torus_coefficients(y, mix)
+            y += np.real(per_sample(_rows(c, rows), z) * lo**m * base)
+        return torus_coefficients(y, mix), exact
 
     def scaled(self, gain_delta_db: np.ndarray) -> MixerModel:
-        """Every term moved by a per-sample conversion-gain shift (dB, (B,))."""
+        """Every term moved by a per-sample conversion-gain shift (dB, (B,)).
+
+        The compression stays where it is: it belongs to the IF port, before conversion.
+        """
         k = 10 ** (np.asarray(gain_delta_db) / 20)
-        return MixerModel(tuple((m, n, c * k) for m, n, c in self.terms), self.lo_index)
+        return replace(self, terms=tuple((m, n, c * k) for m, n, c in self.terms))
 
 
 @dataclass(frozen=True)
@@ -115,13 +278,22 @@ class Mixer:
     Attributes
     ----------
     lo_freq_hz, lo_power_dbm : float
+        LO frequency (Hz) and drive (dBm).
     conversion_gain_db : float
+        Small-signal conversion gain (dB).
     sideband : {"upper", "lower"}
     table : dict of (m, n) -> dBc
-        Levels relative to the wanted output at ``spur_drive_dbm``, including the
-        image and LO leakage as derived from the figures.
+        Levels relative to the wanted output at ``spur_drive_dbm`` (as compressed
+        there), including the image and the LO and IF leakage as derived from the figures.
     spur_drive_dbm : float
+        IF drive of the table (dBm).
     transfer : MixerModel
+    lo_isolation_db, if_isolation_db : float or None
+        LO-to-RF and IF-to-RF isolation (dB) as given.
+    p1db_dbm, iip3_dbm : float or None
+        Input-referred (IF port) P1dB and IIP3 (dBm) as given.
+    tabulated : frozenset of (m, n)
+        The products the ``spurs`` table itself names.
     """
 
     name: str
@@ -133,8 +305,30 @@ class Mixer:
     spur_drive_dbm: float
     transfer: MixerModel
     notes: tuple[str, ...] = ()
+    lo_isolation_db: float | None = None
+    if_isolation_db: float | None = None
+    p1db_dbm: float | None = None
+    iip3_dbm: float | None = None
+    tabulated: frozenset = frozenset()
 
     data_range_hz = None
+
+    def missing_figures(self) -> tuple[str, ...]:
+        """The figure classes this mixer's file does not state (what is then assumed is in
+        the module docstring: no LO leakage, no m x n spurs, linear in IF drive, no IF
+        feedthrough)."""
+        image = (1, -self.wanted[1])
+        own = {self.wanted, image, (1, 0), (0, 1)}
+        missing = []
+        if self.lo_isolation_db is None and (1, 0) not in self.tabulated:
+            missing.append("LO isolation (lo_isolation)")
+        if not self.tabulated - own:
+            missing.append("spur table (spurs with spur_drive)")
+        if self.p1db_dbm is None and self.iip3_dbm is None:
+            missing.append("compression (p1db or iip3)")
+        if self.if_isolation_db is None and (0, 1) not in self.tabulated:
+            missing.append("IF feedthrough (if_isolation or spurs 'IF')")
+        return tuple(missing)
 
     @property
     def gain_db(self) -> float:
@@ -189,7 +383,13 @@ class Mixer:
         gain = gain if gain is not None else -loss
         sideband = fields.text("sideband", default="upper", choices=("upper", "lower"))
         isolation = fields.quantity("lo_isolation", parse_gain_db)
+        if_isolation = fields.quantity("if_isolation", parse_gain_db)
+        if if_isolation is not None and if_isolation < 0:
+            raise fields.error(
+                "if_isolation", f"{fields.raw('if_isolation')!r}: expected an isolation >= 0 dB"
+            )
         image_rej = fields.quantity("image_rejection", parse_gain_db)
+        p1db, iip3, knee = _compression(fields, context.r_ohm)
         drive = fields.quantity("spur_drive", parse_power_dbm)
         raw = fields.raw("spurs", {})
         if not isinstance(raw, dict):
@@ -200,6 +400,7 @@ class Mixer:
             )
         drive = -10.0 if drive is None else drive
         table = _spur_table(fields, raw)
+        tabulated = frozenset(table)
         wanted = (1, 1) if sideband == "upper" else (1, -1)
         image = (1, -wanted[1])
         if wanted in table and abs(table[wanted]) > 1e-9:
@@ -214,7 +415,11 @@ class Mixer:
                 )
             table[image] = -image_rej
         table.setdefault(image, 0.0)
-        wanted_dbm = drive + gain
+        a_ref = float(dbm_to_vpeak(drive, context.r_ohm))
+        # The table is measured at spur_drive: dBc relative to the wanted output as
+        # compressed there, by g_ref (1 without compression).
+        g_ref = 1.0 if knee is None else float(envelope_gain(a_ref**2, knee))
+        wanted_dbm = drive + gain + 20 * math.log10(g_ref)
         if isolation is not None:
             leak_dbc = lo_power - isolation - wanted_dbm
             if (1, 0) in table and abs(table[(1, 0)] - leak_dbc) > 0.5:
@@ -222,10 +427,21 @@ class Mixer:
                     "lo_isolation", f"{isolation:g} dB disagrees with spurs LO {table[(1, 0)]:g} dBc"
                 )
             table[(1, 0)] = leak_dbc
-        a_w = float(dbm_to_vpeak(wanted_dbm, context.r_ohm))
-        a_ref = float(dbm_to_vpeak(drive, context.r_ohm))
+        if if_isolation is not None:
+            # IF out - wanted = (P_IF - isolation) - (P_IF + gain), both through the same
+            # compressed envelope: independent of the drive.
+            feed_dbc = -if_isolation - gain
+            if (0, 1) in table and abs(table[(0, 1)] - feed_dbc) > 0.5:
+                raise fields.error(
+                    "if_isolation",
+                    f"{if_isolation:g} dB disagrees with spurs IF {table[(0, 1)]:g} dBc "
+                    f"(expected about {feed_dbc:g} dBc with conversion gain {gain:g} dB)",
+                )
+            table[(0, 1)] = feed_dbc
+        a_w = float(dbm_to_vpeak(drive + gain, context.r_ohm)) * g_ref
+        a_env = a_ref * g_ref
         terms = tuple(
-            (m, n, a_w * 10 ** (dbc / 20) / a_ref ** abs(n)) for (m, n), dbc in sorted(table.items())
+            (m, n, a_w * 10 ** (dbc / 20) / a_env ** abs(n)) for (m, n), dbc in sorted(table.items())
         )
         return cls(
             name=name,
@@ -235,8 +451,32 @@ class Mixer:
             sideband=sideband,
             table=table,
             spur_drive_dbm=drive,
-            transfer=MixerModel(terms=terms, lo_index=0),
+            transfer=MixerModel(terms=terms, lo_index=0, knee_v=knee, name=name),
+            lo_isolation_db=isolation,
+            if_isolation_db=if_isolation,
+            p1db_dbm=p1db,
+            iip3_dbm=iip3,
+            tabulated=tabulated,
         )
+
+
+def _compression(fields: Fields, r_ohm: float) -> tuple[float | None, float | None, float | None]:
+    """``p1db``, ``iip3`` (dBm, as given) and the envelope knee (peak V, or None)."""
+    p1db = fields.quantity("p1db", parse_power_dbm)
+    iip3 = fields.quantity("iip3", parse_power_dbm)
+    if p1db is not None and iip3 is not None and abs(iip3 - (p1db + IIP3_OVER_P1DB_DB)) > 0.5:
+        raise fields.error(
+            "iip3",
+            f"{fields.raw('iip3')!r} with p1db {fields.raw('p1db')!r}: the IF compression model ties "
+            f"IIP3 = P1dB + {IIP3_OVER_P1DB_DB:.2f} dB ({p1db + IIP3_OVER_P1DB_DB:+.2f} dBm here); "
+            "expected only one of them: p1db where the IF is driven near compression, iip3 where "
+            "IF intermodulation at low drive sets the margin",
+        )
+    if p1db is not None:
+        return p1db, iip3, knee_from_p1db_v(p1db, r_ohm)
+    if iip3 is not None:
+        return p1db, iip3, knee_from_iip3_v(iip3, r_ohm)
+    return None, None, None
 
 
 def spur_label(m: int, n: int) -> str:
@@ -263,12 +503,10 @@ def _spur_table(fields: Fields, raw: dict) -> dict:
             ) from None
         if m + abs(n) > MAX_SPUR_ORDER:
             raise fields.error("spurs", f"{key!r}: expected an order m + |n| up to {MAX_SPUR_ORDER}")
-        if not isinstance(value, str) or not value.strip().lower().endswith("dbc"):
-            raise fields.error("spurs", f"{key} = {value!r}: expected a level in dBc, e.g. '-40 dBc'")
         try:
-            table[(m, n)] = parse_gain_db(value.strip()[:-3] + "dB")
-        except UnitError:
+            table[(m, n)] = parse_dbc(value)
+        except UnitError as exc:
             raise fields.error(
-                "spurs", f"{key} = {value!r}: expected a level in dBc, e.g. '-40 dBc'"
+                "spurs", f"{key} = {value!r}: expected a level in dBc, e.g. '-40 dBc'{exc.hint}"
             ) from None
     return table
