@@ -15,9 +15,8 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
 from .stages.amplifier import Amplifier, output_p1db_dbm
+from .stages.amplifier_fit import model_psat_dbm
 from .units import ratio_db, vpeak_to_dbm
 
 BUDGET_COLUMNS = [
@@ -32,8 +31,10 @@ BUDGET_COLUMNS = [
     "cascade_iip3_dbm",
     "cascade_oip3_dbm",
     "p1db_dbm",
-    "p1db_from",
+    "p1db_stated_dbm",
     "headroom_db",
+    "psat_dbm",
+    "figures",
 ]
 
 
@@ -67,15 +68,16 @@ def cascade_iip3_dbm(gains_db, oip3_dbm) -> list[float]:
 def budget_rows(result, batch: int = 0) -> dict[str, list]:
     """The cascade budget of a run, as a dict of columns.
 
-    The carrier is the strongest carrier at the lineup input; levels are as
+    The carrier is the reference carrier (the strongest at the lineup input, ties to the
+    higher frequency: :func:`spurplan.lineup.reference_carrier_index`); levels are as
     modelled (compression included); gains are small-signal at the carrier
     frequency (for a filter, its |S21| there).
     """
     lineup = result.lineup
     stages = lineup.stages
-    strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
+    reference = lineup.reference_carrier_index
     # The carrier's product index at each node (a mixer moves it to the wanted product).
-    col = [result.carrier_columns(i)[strongest] for i in range(len(stages) + 1)]
+    col = [result.carrier_columns(i)[reference] for i in range(len(stages) + 1)]
     # Small-signal gain at the carrier: the figure for amplifiers and mixers (conversion
     # gain), |S21| for filters.
     gains = [
@@ -94,7 +96,7 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         p_in = float(vpeak_to_dbm(node_in[col[i]], lineup.r_ohm))
         p_out = float(vpeak_to_dbm(node_out[col[i + 1]], lineup.r_ohm))
         cum += gains[i]
-        p1db, source = _p1db(stage, lineup.r_ohm)
+        p1db = _model_p1db(stage, lineup.r_ohm)
         cols["stage"].append(stage.name)
         cols["kind"].append(type(stage).__name__.lower())
         cols["gain_db"].append(gains[i])
@@ -106,16 +108,29 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         cols["cascade_iip3_dbm"].append(iip3[i])
         cols["cascade_oip3_dbm"].append(iip3[i] + cum)
         cols["p1db_dbm"].append(p1db)
-        cols["p1db_from"].append(source)
+        cols["p1db_stated_dbm"].append(stage.figures.p1db_dbm if isinstance(stage, Amplifier) else None)
         cols["headroom_db"].append(None if p1db is None else p1db - p_out)
+        cols["psat_dbm"].append(
+            model_psat_dbm(stage.transfer, lineup.r_ohm) if isinstance(stage, Amplifier) else None
+        )
+        cols["figures"].append(_figures_state(stage))
     return cols
 
 
-def _p1db(stage, r_ohm: float) -> tuple[float | None, str]:
-    """Output P1dB (dBm) of a stage: the datasheet figure, else the model's."""
+def _model_p1db(stage, r_ohm: float) -> float | None:
+    """The model's own output P1dB (dBm) of an amplifier: what headroom is measured from,
+    whatever the datasheet says (a miss is in the ``figures`` column)."""
     if not isinstance(stage, Amplifier):
-        return None, ""
-    if stage.figures.p1db_dbm is not None:
-        return stage.figures.p1db_dbm, "datasheet"
-    value = output_p1db_dbm(stage.transfer, r_ohm)
-    return value, "model" if value is not None else ""
+        return None
+    return output_p1db_dbm(stage.transfer, r_ohm)
+
+
+def _figures_state(stage) -> str:
+    """Stated figures the model misses, and missing figure classes, in a few words."""
+    parts = [
+        f"{c.figure} misses by {c.miss_db:+.2f} dB" if c.model is not None else f"{c.figure} not reached"
+        for c in getattr(stage, "checks", ())
+        if not c.met
+    ]
+    parts += [f"no {what.split(' (')[0]}" for what in getattr(stage, "missing_figures", lambda: ())()]
+    return "; ".join(parts) if parts else ("all met" if getattr(stage, "checks", ()) else "")

@@ -75,17 +75,65 @@ class CheckResult:
         return None if self.worst is None else self.rows["margin_db"][self.worst]
 
     @property
+    def missing_figures(self) -> tuple[tuple[str, str], ...]:
+        """``(stage, figure)`` the model lacks (:meth:`Lineup.missing_figures`)."""
+        return self.result.lineup.missing_figures()
+
+    @property
+    def figures_missed(self) -> tuple:
+        """``(stage, FigureCheck)`` of stated figures the model does not meet."""
+        return self.result.lineup.figures_missed()
+
+    @property
+    def complete(self) -> bool:
+        return not self.missing_figures
+
+    @property
+    def status(self) -> str:
+        """``PASS``, ``FAIL``, ``INCOMPLETE`` (the computed products pass, but figures
+        are missing) or ``UNCERTAIN`` (they pass, but the model misses a stated figure).
+
+        Only a complete model that meets every stated figure can PASS: a missing or
+        doubtful number never turns into one.
+        """
+        if not self.passed:
+            return "FAIL"
+        if self.missing_figures:
+            return "INCOMPLETE"
+        if self.figures_missed:
+            return "UNCERTAIN"
+        return "PASS"
+
+    @property
     def verdict(self) -> str:
-        """One line: PASS/FAIL, the worst margin, which product, rule, band and stage."""
+        """One line: the status, the worst margin, which product, rule, band and stage,
+        and what the model does not know."""
         if self.worst is None:
-            return "NO RULE APPLIES: no product falls under the mask"
-        w = {c: self.rows[c][self.worst] for c in ("margin_db", "label", "freq_hz", "rule", "band", "stage")}
-        return (
-            f"{'PASS' if self.passed else 'FAIL'}, worst margin {w['margin_db']:+.2f} dB: {w['label']} at "
-            f"{w['freq_hz'] / 1e6:.6f} MHz under {w['rule']}"
-            + (f" (in {w['band']})" if w["band"] else "")
-            + f", largest from {w['stage']}"
-        )
+            core = "no product falls under the mask"
+        else:
+            w = {
+                c: self.rows[c][self.worst]
+                for c in ("margin_db", "label", "freq_hz", "rule", "band", "stage")
+            }
+            core = (
+                f"worst margin {w['margin_db']:+.2f} dB: {w['label']} at {w['freq_hz'] / 1e6:.6f} MHz "
+                f"under {w['rule']}"
+                + (f" (in {w['band']})" if w["band"] else "")
+                + f", largest from {w['stage']}"
+            )
+        status = self.status
+        if status == "PASS" and self.worst is None:
+            return f"NO RULE APPLIES: {core}"
+        gaps = model_gaps(self.missing_figures, self.figures_missed)
+        if status == "INCOMPLETE":
+            core += " (products that are modelled)"
+        return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
+
+    def strict_failure(self, strict: bool | None = None) -> bool:
+        """Whether the check fails under strict mode (``--strict`` or ``[analysis] strict``):
+        a violated mask, an incomplete model, or a stated figure the model misses."""
+        strict = self.result.lineup.analysis.strict if strict is None else strict
+        return not self.passed or (strict and self.status != "PASS")
 
     def summary(self) -> dict:
         from .provenance import provenance
@@ -95,7 +143,12 @@ class CheckResult:
         failing = sum(1 for p in self.rows["pass"] if p is False)
         return {
             "lineup": lineup.name,
+            "status": self.status,
             "pass": self.passed,
+            "complete": self.complete,
+            "missing_figures": [{"stage": st, "figure": what} for st, what in self.missing_figures],
+            "figures_met": not self.figures_missed,
+            "figure_checks": figure_check_rows(lineup),
             "worst_margin_db": self.worst_margin_db,
             "worst": worst,
             "failing": failing,
@@ -133,6 +186,42 @@ class CheckResult:
         import pandas as pd
 
         return pd.DataFrame(self.rows, columns=CHECK_COLUMNS)
+
+
+def model_gaps(missing, missed) -> str:
+    """What the model does not know, in words: missing figures by stage, then misses.
+
+    ``missing`` is ``(stage, figure)`` pairs, ``missed`` ``(stage, FigureCheck)`` pairs.
+    """
+    parts = []
+    by_stage: dict[str, list[str]] = {}
+    for stage, what in missing:
+        by_stage.setdefault(stage, []).append(what)
+    if by_stage:
+        parts.append(
+            "not modelled: "
+            + "; ".join(f"stage '{st}' has no {', no '.join(whats)}" for st, whats in by_stage.items())
+        )
+    if missed:
+        parts.append("model misses: " + "; ".join(f"stage '{st}' {c.describe()}" for st, c in missed))
+    return "; ".join(parts)
+
+
+def figure_check_rows(lineup) -> list[dict]:
+    """Every stated large-signal figure beside the model's value, as plain rows."""
+    return [
+        {
+            "stage": stage,
+            "figure": c.figure,
+            "stated": c.stated,
+            "at_dbm": c.at_dbm,
+            "model": c.model,
+            "unit": c.unit,
+            "miss_db": c.miss_db,
+            "met": c.met,
+        }
+        for stage, c in lineup.figure_checks()
+    ]
 
 
 DOMAINS = ("spurious", "out-of-band", "no rule")
@@ -205,8 +294,11 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     product = levels.valid & ~levels.is_carrier
     p_dbm = levels.carrier_total_dbm
     carriers_hz = result.carrier_freqs_hz()
-    strongest = int(np.argmax([c.power_dbm for c in lineup.carriers]))
-    f_carrier = carriers_hz[:, strongest]
+    # Rule conditions (when_carrier) test the reference carrier; the examined range
+    # follows the highest carrier at the output, per batch element (47 CFR 2.1057(a)(1):
+    # up to the 10th harmonic of the highest fundamental frequency; from memory).
+    f_carrier = carriers_hz[:, lineup.reference_carrier_index]
+    f_highest = carriers_hz.max(axis=1)
     # Occupied bandwidth per base tone: the carriers' own, none for an LO.
     n_lo = len(lineup.mixers)
     bw_k = np.array([0.0] * n_lo + [c.bandwidth_hz or 0.0 for c in lineup.carriers])
@@ -227,7 +319,7 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     best_level = np.full(freq.shape, np.nan)
     for j, (rule, ex) in enumerate(rules):
         holds = np.asarray(rule.holds_for(f_carrier, p_dbm))[:, None]
-        covers = holds & spurious & _covers(rule, ex, freq, f_carrier[:, None])
+        covers = holds & spurious & _covers(rule, ex, freq, f_highest[:, None])
         if not covers.any():
             continue
         in_rbw = level
@@ -312,14 +404,14 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
             out[key].append(rows[key][i])
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
-    f_carrier = output_carrier_hz(result, batch)
+    f_highest = highest_output_carrier_hz(result, batch)
     return CheckResult(
         result=result,
         rows=out,
         passed=all(m >= 0 for m in margins),
         worst=worst,
         carrier_dbm=float(ev.carrier_dbm[0]),
-        notes=tuple(_coverage_notes(lineup, mask, f_carrier)),
+        notes=tuple(_coverage_notes(lineup, mask, f_highest)),
     )
 
 
@@ -339,9 +431,15 @@ class _Rows:
 
 
 def output_carrier_hz(result, batch: int = 0) -> float:
-    """Frequency of the strongest carrier at the lineup output (after mixers, the wanted product)."""
-    strongest = int(np.argmax([c.power_dbm for c in result.lineup.carriers]))
-    return float(result.carrier_freqs_hz()[batch, strongest])
+    """Frequency (Hz) of the reference carrier at the lineup output (after mixers, its wanted
+    product); see :func:`spurplan.lineup.reference_carrier_index`.  What rule conditions test."""
+    return float(result.carrier_freqs_hz()[batch, result.lineup.reference_carrier_index])
+
+
+def highest_output_carrier_hz(result, batch: int = 0) -> float:
+    """Highest carrier frequency (Hz) at the lineup output: what examined ranges follow
+    (47 CFR 2.1057(a)(1), the 10th harmonic of the highest fundamental; from memory)."""
+    return float(result.carrier_freqs_hz()[batch].max())
 
 
 def bands_at(mask, freq_hz: float) -> str | None:
@@ -350,10 +448,12 @@ def bands_at(mask, freq_hz: float) -> str | None:
     return ", ".join(names) or None
 
 
-def _covers(rule, examined, freq: np.ndarray, f_carrier) -> np.ndarray:
+def _covers(rule, examined, freq: np.ndarray, f_highest) -> np.ndarray:
+    """Where ``rule`` covers ``freq``: its own range, cut to the examined range of its set
+    for the highest output carrier ``f_highest`` (Hz)."""
     lo, hi = rule.start_hz, rule.stop_hz
     if examined is not None:
-        lo, hi = max(lo, examined.start_hz), np.minimum(hi, examined.upper_hz(f_carrier))
+        lo, hi = max(lo, examined.start_hz), np.minimum(hi, examined.upper_hz(f_highest))
     return (freq >= lo) & (freq <= hi)
 
 
@@ -361,6 +461,7 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none."""
     lineup = outcome.result.lineup
     f_carrier = output_carrier_hz(outcome.result)
+    f_highest = highest_output_carrier_hz(outcome.result)
     freq_hz = np.asarray(freq_hz, dtype=float)
     gain = lineup.mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
@@ -368,17 +469,18 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     for rule, ex in pairs:
         if not rule.holds_for(f_carrier, outcome.carrier_dbm):
             continue
-        covers = _covers(rule, ex, freq_hz, f_carrier)
+        covers = _covers(rule, ex, freq_hz, f_highest)
         line = np.where(covers, np.minimum(line, rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)), line)
     return np.where(np.isinf(line), np.nan, line)
 
 
-def _coverage_notes(lineup, mask, f_carrier: float) -> list[str]:
-    """Warn where the analysis order does not reach a rule set's examined range."""
+def _coverage_notes(lineup, mask, f_highest: float) -> list[str]:
+    """Warn where the analysis order does not reach a rule set's examined range (which
+    follows the highest output carrier, ``f_highest`` in Hz)."""
     notes = []
     reach = lineup.analysis.max_order * float(np.max(lineup.tone_freqs_hz))
     for s in mask.sets:
-        top = s.examined.upper_hz(f_carrier)
+        top = s.examined.upper_hz(f_highest)
         if s.rules and math.isfinite(top) and top > reach * (1 + 1e-9):
             notes.append(
                 f"{s.name} examines up to {top / 1e6:.6g} MHz but products are computed only to order "

@@ -118,8 +118,18 @@ def _load(path):
 
 
 def _warn(result) -> None:
+    from .check import model_gaps
+
     for note in result.lineup.notes:
         click.echo(f"spurplan: note: {note}", err=True)
+    missing = result.lineup.missing_figures()
+    if missing:
+        click.echo(
+            f"spurplan: warning: model incomplete, {model_gaps(missing, ())}: the products those figures "
+            "describe are left out (compression: the stage stays linear). Give the figures, or run "
+            "check with --strict to treat this as a failure.",
+            err=True,
+        )
     problems = (
         (
             result.extrapolated_stages,
@@ -289,10 +299,19 @@ def _size(text: str) -> tuple[int, int]:
 @_combine_option
 @_plot_option("Draw the spectrum against the mask (PNG/SVG/PDF).")
 @_plot_size_option
-def check(lineup, fmt, combine, plot_file, plot_size):
+@click.option(
+    "--strict",
+    is_flag=True,
+    help="Exit 1 also when the model is incomplete (a stage lacks a figure) or misses a stated figure.",
+)
+def check(lineup, fmt, combine, plot_file, plot_size, strict):
     """Check every product at the output of LINEUP against its [mask].
 
-    Exit status: 0 the mask is met, 1 it is violated, 2 bad input.
+    The verdict is PASS, FAIL, INCOMPLETE (the modelled products pass but a stage
+    lacks a figure, so some products are not modelled) or UNCERTAIN (they pass but
+    the model misses a stated figure).  Exit status: 0 the mask is met, 1 it is
+    violated (with --strict or [analysis] strict = true: also INCOMPLETE and
+    UNCERTAIN), 2 bad input.
     """
     from .check import check as run_check
     from .formatting import text_table
@@ -318,7 +337,7 @@ def check(lineup, fmt, combine, plot_file, plot_size):
         )
         click.echo(f"VERDICT: {outcome.verdict}{tail}")
         click.echo(PLANNING_NOTICE)
-    sys.exit(0 if outcome.passed else 1)
+    sys.exit(1 if outcome.strict_failure(True if strict else None) else 0)
 
 
 @main.command(epilog=EPILOG)
@@ -500,26 +519,70 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
     type=click.Path(dir_okay=False),
     help="Write the lineup with the filter inserted to this file.",
 )
+@click.option(
+    "--q-inductor",
+    "q_inductor",
+    help='Unloaded Q of the proposed filter\'s inductors, or "lossless"  [default: 100, common practice, no source]',
+)
+@click.option(
+    "--q-capacitor",
+    "q_capacitor",
+    help='Unloaded Q of its capacitors, or "lossless"  [default: 500, the same]',
+)
+@click.option(
+    "--floor",
+    "floor",
+    help='Its stopband floor (leakage past the ladder), or "none" for the ideal ladder  [default: -80 dB, the same]',
+)
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
-def remedy(lineup, at_stage, margin, write_file, fmt):
+def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor, fmt):
     """Find the lowest-order synthesized filter that makes LINEUP pass, and re-check with it.
+
+    The filter has parts of finite Q and a stopband floor (--q-inductor,
+    --q-capacitor, --floor), written into the snippet it prints.
 
     Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
     filter up to the highest order is enough, 2 bad input.
     """
+    from .filters import parts_text
     from .formatting import text_table, to_json
     from .remedy import remedy as find_remedy
     from .remedy import write_fixed
+    from .stages.filter import parse_floor_db, parse_q
 
     target = _parse("db", margin, "--margin")
+    parts = {}
+    for key, text, option in (
+        ("q_inductor", q_inductor, "--q-inductor"),
+        ("q_capacitor", q_capacitor, "--q-capacitor"),
+    ):
+        if text is None:
+            continue  # the library's default
+        try:
+            value = float(text)
+        except ValueError:
+            value = text.strip()  # "lossless", or a word parse_q names in its message
+        try:
+            parts[key] = parse_q(value)
+        except ValueError as exc:
+            expected = str(exc).split(": ", 1)[-1]  # name the value as typed, not as read
+            raise click.BadParameter(f"{text!r}: {expected}", param_hint=option) from None
+    try:
+        if floor is not None:
+            parts["floor_db"] = parse_floor_db(floor.strip())
+    except ValueError as exc:
+        raise click.BadParameter(str(exc), param_hint="--floor") from None
     lu = _load(lineup)
-    found = find_remedy(lu, at=at_stage, margin_db=target)
+    found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
     if write_file and found.found:
         write_fixed(lu, found, write_file)
     if fmt == "json":
         click.echo(to_json(found.summary(), "needed", found.needed), nl=False)
         sys.exit(0 if found.found or not found.needed["freq_hz"] else 1)
     click.echo(f"{lu.name}: remedy for a {target:g} dB margin")
+    click.echo(
+        f"Filter parts assumed: {parts_text(**found.parts)} (set with --q-inductor, --q-capacitor, --floor)"
+    )
     if not found.needed["freq_hz"]:
         click.echo(f"Nothing to do: {found.reason}.")
         click.echo(PLANNING_NOTICE)

@@ -266,24 +266,35 @@ def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
     return np.abs(freqs_hz) <= 1e-12 * terms
 
 
-def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -> Propagation:
+def propagate(
+    stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, ref_hz: np.ndarray | None = None
+) -> Propagation:
     """Run a spectrum through a chain of stages.
+
+    A memoryless stage's output is ``y = H(f) x + W(f) (T(x) - a1 x)``: what passes
+    through sees the small-signal response ``H``, what the stage generates (its
+    output beyond the linear passage ``a1 x``) sees ``W``, the stage's
+    ``generated_weight`` (harmonic-zone weights and pass band), or ``H / a1`` for a
+    stage without one, which is ``H(f) T(x) / a1``.
 
     Parameters
     ----------
     stages : sequence of Stage
         Each with ``response(freq_hz) -> complex`` and ``transfer`` (a model or
-        ``None`` for a linear stage).
+        ``None`` for a linear stage); optionally ``generated_weight(freq_hz, ref_hz)``.
     x_in : ndarray, complex, (B, P)
         Input phasors (V).
     mix : ndarray of int, (P, K)
     freqs_hz : ndarray, (B, P)
         Signed product frequencies (Hz).
+    ref_hz : ndarray (S, B), optional
+        The reference carrier's frequency at each stage's input (Hz), where harmonic
+        zones are centred; default each stage's own.
     """
     dc = at_zero_hz(mix, freqs_hz)
     x = np.where(dc, 0.0, x_in)
     nodes, added, resp, extrap, conv, beyond = [x], [], [], [], [], []
-    for stage in stages:
+    for i, stage in enumerate(stages):
         h = response_at(stage.response, freqs_hz)
         if not np.all(np.isfinite(h)):
             b, p = np.argwhere(~np.isfinite(h))[0]
@@ -306,7 +317,14 @@ def propagate(stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray) -
             conv.append(np.ones(len(x), dtype=bool))
         else:
             res = apply_memoryless(x, mix, transfer)
-            y = res.spectrum * (h / np.reshape(transfer.gain, (-1, 1)))
+            a1 = np.reshape(transfer.gain, (-1, 1))
+            weight_of = getattr(stage, "generated_weight", None)
+            if weight_of is None:
+                y = res.spectrum * (h / a1)
+            else:
+                ref = None if ref_hz is None else ref_hz[i]
+                w = response_at(lambda f, weight_of=weight_of, ref=ref: weight_of(f, ref), freqs_hz)
+                y = h * x + w * (res.spectrum - a1 * x)
             lo, hi = transfer.valid_peak_v
             extrap.append((res.peak_neg_v < lo) | (res.peak_pos_v > hi))
             conv.append(res.converged)

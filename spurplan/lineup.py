@@ -44,6 +44,31 @@ class Carrier:
     phase_rad: float = 0.0
 
 
+def reference_carrier_index(carriers) -> int:
+    """Position of the reference carrier among ``carriers``: the strongest, whatever the order.
+
+    The reference carrier is the one drive sweeps move, amplifier figures are referred
+    to, cascade budgets follow and rule conditions (``when_carrier``) test.  It is the
+    carrier of highest input power; equal powers go to the higher frequency, so that the
+    answer does not depend on the order in which the carriers are listed.  Only carriers
+    equal in both are told apart by position, and being identical they give the same
+    frequency and power whichever is taken.  (``numpy.argmax`` alone would take the first
+    listed of equal powers.)
+
+    Parameters
+    ----------
+    carriers : sequence of Carrier
+        Non-empty.
+
+    Returns
+    -------
+    int
+        Index into ``carriers``.
+    """
+    # max() keeps the first of equal keys, the stated last resort.
+    return max(range(len(carriers)), key=lambda k: (carriers[k].power_dbm, carriers[k].freq_hz))
+
+
 LINEAR_SECTIONS: tuple[str, ...] = ("matched", "cascade")
 
 
@@ -62,12 +87,16 @@ class Analysis:
     linear_sections : {"matched", "cascade"}
         ``matched`` multiplies each stage's S21 (stages assumed matched);
         ``cascade`` joins consecutive linear stages with their full S-parameters.
+    strict : bool
+        An incomplete model (missing figures) or a stated figure the model misses
+        fails the check (exit status 1) instead of qualifying its verdict.
     """
 
     max_order: int = DEFAULT_MAX_ORDER
     combine: Combine = "worst"
     beyond_data: str = "error"
     linear_sections: str = "matched"
+    strict: bool = False
 
 
 @dataclass(frozen=True)
@@ -77,9 +106,9 @@ class ReportSpec:
     Attributes
     ----------
     drive : (start_dbm, stop_dbm, step_db) or None
-        A drive sweep of the strongest carrier's input power.
+        A drive sweep of the reference (strongest) carrier's input power.
     tune : (start_hz, stop_hz, step_hz) or None
-        A tuning sweep of the strongest carrier's frequency.
+        A tuning sweep of the reference (strongest) carrier's frequency.
     """
 
     drive: tuple[float, float, float] | None = None
@@ -124,6 +153,11 @@ class Lineup:
         return [s for s in self.stages if getattr(s, "lo_freq_hz", None) is not None]
 
     @property
+    def reference_carrier_index(self) -> int:
+        """Position of the reference carrier in :attr:`carriers` (:func:`reference_carrier_index`)."""
+        return reference_carrier_index(self.carriers)
+
+    @property
     def n_tones(self) -> int:
         """Base tones of the engine: every mixer's LO, then the carriers."""
         return len(self.mixers) + len(self.carriers)
@@ -160,6 +194,33 @@ class Lineup:
             vecs = lo + vecs if stage.sideband == "upper" else lo - vecs
             lo_i += 1
         return vecs
+
+    def missing_figures(self) -> tuple[tuple[str, str], ...]:
+        """``(stage name, figure)`` for every figure class a stage will produce but no
+        figure states: the model leaves those products out (or, for compression, runs
+        linear), so results that rely on them are incomplete."""
+        return tuple(
+            (s.name, what) for s in self.stages for what in getattr(s, "missing_figures", lambda: ())()
+        )
+
+    def figure_checks(self) -> tuple[tuple[str, object], ...]:
+        """``(stage name, FigureCheck)`` for every stated large-signal figure: the datasheet
+        value beside what the fitted model gives at the same point."""
+        return tuple((s.name, c) for s in self.stages for c in getattr(s, "checks", ()))
+
+    def figures_missed(self) -> tuple[tuple[str, object], ...]:
+        """The :meth:`figure_checks` whose figure the model does not meet."""
+        return tuple((name, c) for name, c in self.figure_checks() if not c.met)
+
+    def stage_reference_hz(self, tones: np.ndarray) -> np.ndarray:
+        """Frequency (Hz) of the reference carrier at each stage's input, (S, B).
+
+        ``tones`` are base-tone frequencies (B, K); mixers move the carrier to their
+        wanted product.
+        """
+        k = self.reference_carrier_index
+        vecs = [self.carrier_vectors(i)[k].astype(float) for i in range(len(self.stages))]
+        return np.stack([np.abs(tones @ v) for v in vecs]) if vecs else np.zeros((0, len(tones)))
 
     def stage_index(self, name: str, option: str = "--stage") -> int:
         """1-based position of the stage called ``name`` (node number); ``option`` names
@@ -228,7 +289,7 @@ class Lineup:
         stages = self.stages
         if self.analysis.linear_sections == "cascade":
             stages = with_sections(stages, self.r_ohm)
-        prop = engine.propagate(stages, x_in, mix, freqs)
+        prop = engine.propagate(stages, x_in, mix, freqs, self.stage_reference_hz(tones))
         if self.analysis.beyond_data == "error":
             self._raise_beyond_data(prop, mix, freqs)
         return Result(lineup=self, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)

@@ -10,7 +10,7 @@ File layout (key names are the interface: extend, don't rename)::
     [lineup]      name, impedance
     [[carrier]]   freq, power, bandwidth, phase
     [[stage]]     kind, name, and the keys of that kind (see spurplan.stages)
-    [analysis]    max_order, combine, beyond_data, linear_sections
+    [analysis]    max_order, combine, beyond_data, linear_sections, strict
     [mask]        use, files, antenna_gain, spurious_boundary, [[mask.rule]], [[mask.band]]
                   (see spurplan.mask_files)
     [report]      drive = {start, stop, step}, tune = {start, stop, step}
@@ -19,13 +19,23 @@ File layout (key names are the interface: extend, don't rename)::
 
 from __future__ import annotations
 
+from dataclasses import replace
 from pathlib import Path
 
 from . import engine
 from .errors import LineupError
 from .fields import Fields, read_toml
 from .filters import BEYOND_POLICIES
-from .lineup import COMBINE_MODES, LINEAR_SECTIONS, MAX_ORDER_LIMIT, Analysis, Carrier, Lineup, ReportSpec
+from .lineup import (
+    COMBINE_MODES,
+    LINEAR_SECTIONS,
+    MAX_ORDER_LIMIT,
+    Analysis,
+    Carrier,
+    Lineup,
+    ReportSpec,
+    reference_carrier_index,
+)
 from .mask_files import read_mask
 from .montecarlo import Tolerances, read_corners, read_tolerance
 from .stages import KINDS, LoadContext
@@ -80,15 +90,22 @@ def from_dict(
         raise LineupError(f"{len(carriers)} carriers: expected at most {MAX_CARRIERS}", file=name)
 
     analysis = _analysis(_table(doc, "analysis", name), name)
-    strongest = max(carriers, key=lambda c: c.power_dbm)
+    reference = carriers[reference_carrier_index(carriers)]
     context = LoadContext(
-        r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=strongest.freq_hz
+        r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=reference.freq_hz
     )
     stages = []
     spreads = []
     seen_names: set[str] = set()
     for i, table in enumerate(_array(doc, "stage", name), start=1):
         stage = _stage(table, name, i, context)
+        lo_hz = getattr(stage, "lo_freq_hz", None)
+        if lo_hz is not None:
+            # Past a mixer the carrier is its wanted product: later stages' figures are
+            # referred there.
+            ref = context.ref_freq_hz
+            moved = lo_hz + ref if stage.sideband == "upper" else abs(lo_hz - ref)
+            context = replace(context, ref_freq_hz=moved)
         if isinstance(table, dict) and "tolerance" in table:
             where = f"stage {i} {stage.name!r}"
             if not isinstance(table["tolerance"], dict):
@@ -164,8 +181,13 @@ def _analysis(table, file: str) -> Analysis:
     combine = f.text("combine", default="worst", choices=COMBINE_MODES)
     beyond = f.text("beyond_data", default="error", choices=BEYOND_POLICIES)
     sections = f.text("linear_sections", default="matched", choices=LINEAR_SECTIONS)
+    strict = f.raw("strict", False)
+    if not isinstance(strict, bool):
+        raise f.error("strict", f"{strict!r}: expected true or false")
     f.finish()
-    return Analysis(max_order=max_order, combine=combine, beyond_data=beyond, linear_sections=sections)
+    return Analysis(
+        max_order=max_order, combine=combine, beyond_data=beyond, linear_sections=sections, strict=strict
+    )
 
 
 def _report(table, file: str) -> ReportSpec:

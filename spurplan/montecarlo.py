@@ -43,7 +43,7 @@ from .filters import ladder_s21
 from .result import Result
 from .spectrum import mixing_vectors, product_freqs_hz
 from .stages import Amplifier, Attenuator, Filter, Mixer
-from .stages.amplifier import sampled_transfer
+from .stages.amplifier import sampled_model
 from .units import parse_gain_db
 
 DB_FIGURES = {
@@ -214,17 +214,28 @@ class _Sampled:
         return self.response_fn(freq_hz)
 
 
+@dataclass(frozen=True)
+class _SampledAmplifier(_Sampled):
+    """An amplifier with per-sample model and harmonic-zone weights."""
+
+    amplifier: object = None
+    weights_db: dict = None
+
+    def generated_weight(self, freq_hz, ref_hz=None):
+        return self.amplifier.generated_weight(freq_hz, ref_hz, self.weights_db)
+
+
 def _sampled(stage, d: dict, n: int, r_ohm: float):
     if not d:
         return stage
     if isinstance(stage, Amplifier):
-        transfer = sampled_transfer(stage, d, r_ohm)
+        transfer, weights = sampled_model(stage, d, r_ohm)
         gain = 10 ** (d.get("gain", 0.0) / 20)
 
         def amp_response(f):
             return stage.response(f) * np.reshape(gain, (-1, 1))
 
-        return _Sampled(stage.name, transfer, amp_response, stage.data_range_hz)
+        return _SampledAmplifier(stage.name, transfer, amp_response, stage.data_range_hz, stage, weights)
     if isinstance(stage, Attenuator):
         k = 10 ** (-d["loss"] / 20)
         return _Sampled(stage.name, None, lambda f: stage.response(f) * np.reshape(k, (-1, 1)))
@@ -268,7 +279,8 @@ def evaluate_batch(
         for t in tones:
             x_in = lineup.input_phasors(mix, np.zeros(n))
             freqs = product_freqs_hz(mix, np.broadcast_to(t, (n, len(t))))
-            prop = propagate(stages, x_in, mix, freqs)
+            tone_b = np.broadcast_to(t, (n, len(t)))
+            prop = propagate(stages, x_in, mix, freqs, lineup.stage_reference_hz(tone_b))
             result = Result(
                 lineup=lineup,
                 mix=mix,
@@ -310,8 +322,7 @@ def _channel_tones(lineup, channels_hz) -> np.ndarray:
     if lineup.mixers:
         shift, ref = np.eye(len(base))[0], base[0]
     else:
-        k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
-        shift, ref = np.ones(len(base)), base[len(lineup.mixers) + k]
+        shift, ref = np.ones(len(base)), base[len(lineup.mixers) + lineup.reference_carrier_index]
     return base[None, :] + (np.asarray(channels_hz, dtype=float)[:, None] - ref) * shift[None, :]
 
 

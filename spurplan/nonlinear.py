@@ -17,14 +17,10 @@ Models
 Polynomial
     ``y = a1 x + a2 x^2 + ... + aD x^D`` (design notes section 4; Razavi, RF
     Microelectronics 2e, ch. 2).
-SoftLimitedPolynomial
-    The polynomial fed through a smooth input limiter that stops at the polynomial's
-    turning points or at the input that reaches the saturated output rail.  The
-    limiter is ``c(x) = x / (1 + (x / x_c)^(2s))^(1/(2s))`` (the Rapp form, used
-    here on instantaneous voltage), whose expansion ``x - x^(2s+1) / (2s x_c^(2s))``
-    leaves every coefficient up to degree ``2s`` of ``p(c(x))`` equal to the
-    polynomial's: the datasheet intercepts hold at small signal, while ``p(c(x))``
-    is monotone and bounded.
+Saturating
+    The datasheet's small-signal terms in a monotone, bounded inner function, behind
+    a smooth output rail with its own knee: gain and intercepts hold at small
+    signal, Psat and P1dB are two separate parameters.
 Clipper
     A hard limiter ``clip(g x, v_lo, v_hi)``; with ``v_lo = 0`` and ``v_hi = inf``
     it is a half-wave rectifier.
@@ -138,56 +134,148 @@ class Polynomial:
 
 
 @dataclass(frozen=True)
-class SoftLimitedPolynomial:
-    """Polynomial behind a smooth input limiter: saturates, keeps small-signal terms.
+class Saturating:
+    """A saturating amplifier model whose small-signal terms are the datasheet's.
+
+    ``y = R(u(x)) + e(x)`` in volts, with
+
+    * the odd inner function ``u(x) = a1 x (1 + gamma x^2 / (2q))^(-q) + a3_exp x^3``:
+      its Taylor series begins ``a1 x + a3 x^3``, so gain and IP3 hold at small signal
+      (``gamma = -2 a3 / a1`` for a compressive cubic, 0 otherwise; ``a3_exp`` is the
+      cubic when it is expansive).  Unlike the bare polynomial it never turns over: it
+      is monotone for ``0 < q <= 1/2`` (``q = 1/2`` saturates at ``a1 / sqrt(gamma)``,
+      a smaller ``q`` compresses later and grows without bound, so that the rail alone
+      saturates it);
+    * the output rail ``R(v) = v / (1 + |v / V_r|^(2s))^(1/(2s))`` (the Rapp form,
+      Rapp 1991, used here on instantaneous voltage; from memory), whose expansion
+      ``v - |v|^(2s+1) / (2s V_r^(2s))`` leaves every term below degree ``2s + 1``
+      alone.  ``V_r`` sets the saturated power and ``s`` the sharpness of the knee,
+      so Psat and P1dB are two separate parameters;
+    * the even part ``e(x) = sum_n a_n x^n / (1 + gamma_even x^2)^((n - p_n)/2)`` with
+      ``p_2 = 1`` and ``p_n = n - 1`` above: ``a_n x^n`` at small signal (IP2 holds),
+      growing like ``|x|^p_n`` under hard drive.  It sits after the rail, which would
+      otherwise clip the asymmetry away and null the even harmonics near saturation;
+      and its asymptote is chosen so that the sign of each even harmonic never
+      changes with drive (the Fourier coefficients of ``|cos|^p`` at ``n`` have the sign
+      of ``1 / Gamma(p/2 - n/2 + 1)``; Gradshteyn and Ryzhik 3.631, from memory): even
+      harmonics rise monotonically, then keep rising slowly in saturation (the
+      conservative side).
+
+    Hard drive turns ``u`` into a two-level wave at ``u(+inf)`` and ``u(-inf)``, so the
+    saturated fundamental is ``(2/pi) (R(u(+inf)) - R(u(-inf)))`` (Fourier series of
+    a square wave; standard tables) and the odd harmonics tend to ``1/n`` of it.
 
     Parameters
     ----------
-    poly : Polynomial
-        Small-signal model; its coefficients up to degree ``2 * smoothness`` are kept
-        exactly in the expansion of the composite.
-    clip_neg_v, clip_pos_v : float
-        Input limiting levels (V): ``clip_neg_v < 0 < clip_pos_v``.
-    smoothness : int
-        ``s`` in the limiter ``x / (1 + (x/x_c)^(2s))^(1/(2s))``; larger is a harder
-        knee.
+    a1 : float or ndarray (B,)
+        Small-signal voltage gain.
+    gamma : float or ndarray (B,)
+        Inner saturation (1/V^2); 0 for none.
+    a3_exp : float or ndarray (B,)
+        Expansive cubic coefficient (V^-2), 0 when compressive.
+    even : tuple of (int, float or ndarray)
+        Even orders ``n`` and their small-signal coefficients ``a_n`` (V^(1-n)).
+    gamma_even : float or ndarray (B,)
+        Saturation of the even terms (1/V^2).
+    rail_v : float or ndarray (B,)
+        ``V_r`` (V, peak); ``inf`` for no rail.
+    smoothness : float
+        ``s`` (> 1 keeps the cubic term exact).
+    inner_exponent : float
+        ``q`` in (0, 1/2].
     """
 
-    poly: Polynomial
-    clip_neg_v: float
-    clip_pos_v: float
-    smoothness: int
+    a1: object
+    gamma: object = 0.0
+    a3_exp: object = 0.0
+    even: tuple = ()
+    gamma_even: object = 0.0
+    rail_v: object = math.inf
+    smoothness: float = 2.0
+    inner_exponent: float = 0.5
 
     degree = None
 
     @property
     def gain(self):
-        return self.poly.gain
+        return self.a1
 
     @property
     def batched(self) -> bool:
-        return self.poly.batched or bool(np.ndim(self.clip_neg_v) or np.ndim(self.clip_pos_v))
+        values = [self.a1, self.gamma, self.a3_exp, self.gamma_even, self.rail_v] + [a for _, a in self.even]
+        return any(np.ndim(v) for v in values)
 
-    def take(self, rows) -> SoftLimitedPolynomial:
+    def take(self, rows) -> Saturating:
+        """The model of the batch elements ``rows`` (itself when not batched)."""
         if not self.batched:
             return self
-        return SoftLimitedPolynomial(
-            self.poly.take(rows), _take(self.clip_neg_v, rows), _take(self.clip_pos_v, rows), self.smoothness
+        return Saturating(
+            a1=_take(self.a1, rows),
+            gamma=_take(self.gamma, rows),
+            a3_exp=_take(self.a3_exp, rows),
+            even=tuple((n, _take(a, rows)) for n, a in self.even),
+            gamma_even=_take(self.gamma_even, rows),
+            rail_v=_take(self.rail_v, rows),
+            smoothness=self.smoothness,
+            inner_exponent=self.inner_exponent,
         )
 
     @property
     def valid_peak_v(self) -> tuple[float, float]:
         return -math.inf, math.inf
 
-    def limit_input(self, x):
-        """The smooth input limiter ``c(x)``, applied with each side's own level."""
+    def inner(self, x):
+        """``u(x)`` (V): the odd small-signal terms, made monotone."""
         x = np.asarray(x, dtype=float)
-        xc = np.where(x >= 0.0, per_sample(self.clip_pos_v, x), -per_sample(self.clip_neg_v, x))
-        two_s = 2 * self.smoothness
-        return x / (1.0 + (x / xc) ** two_s) ** (1.0 / two_s)
+        x2 = x * x
+        q = self.inner_exponent
+        g = per_sample(self.gamma, x) * x2
+        if q == 0.5:
+            u = per_sample(self.a1, x) * x / np.sqrt(1.0 + g)
+        else:
+            u = per_sample(self.a1, x) * x * np.exp(-q * np.log1p(g / (2.0 * q)))
+        if np.any(np.asarray(self.a3_exp) != 0):
+            u = u + per_sample(self.a3_exp, x) * x2 * x
+        return u
+
+    def even_part(self, x):
+        """``e(x)`` (V): the even small-signal terms with a sign-keeping asymptote."""
+        x = np.asarray(x, dtype=float)
+        x2 = x * x
+        out = np.zeros_like(x)
+        if not self.even:
+            return out
+        log_denom = np.log1p(per_sample(self.gamma_even, x) * x2)
+        for n, a in self.even:
+            p = 1 if n == 2 else n - 1
+            out = out + per_sample(a, x) * x2 ** (n // 2) * np.exp(-0.5 * (n - p) * log_denom)
+        return out
+
+    def rail(self, v):
+        """``R(v)`` (V): the output rail."""
+        if np.all(np.isinf(np.asarray(self.rail_v))):
+            return v
+        ratio = np.abs(v) / per_sample(self.rail_v, v)
+        two_s = 2.0 * self.smoothness
+        # exp/log instead of a float power of a signed array (numpy's fast path);
+        # logaddexp(0, t) = log(1 + e^t) without overflow, and ratio = 0 gives exactly v.
+        with np.errstate(divide="ignore"):
+            return v * np.exp(-np.logaddexp(0.0, two_s * np.log(ratio)) / two_s)
+
+    def saturated_levels_v(self) -> tuple[float, float]:
+        """``(R(u(-inf)), R(u(+inf)))`` (V): the two levels of the odd part under hard
+        drive (the even part adds no fundamental)."""
+        a1 = np.asarray(self.a1, dtype=float)
+        gamma = np.asarray(self.gamma, dtype=float)
+        with np.errstate(divide="ignore"):
+            odd = np.where(gamma > 0, a1 / np.sqrt(np.where(gamma > 0, gamma, 1.0)), np.inf)
+        odd = np.where((np.asarray(self.a3_exp) != 0) | (self.inner_exponent < 0.5), np.inf, odd)
+        rail = np.asarray(self.rail_v, dtype=float)
+        hi = np.where(np.isinf(odd), rail, self.rail(np.where(np.isinf(odd), 0.0, odd)))
+        return -hi, hi
 
     def __call__(self, x):
-        return self.poly(self.limit_input(x))
+        return self.rail(self.inner(x)) + self.even_part(x)
 
 
 @dataclass(frozen=True)

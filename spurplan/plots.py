@@ -57,7 +57,12 @@ def filter_response(stage, marks: dict[str, list], *, points: int = 2000, size_i
     if rng is not None:
         ax.set_title(f"{stage.name}: |S21| (data {lo / scale:.4g} to {hi / scale:.4g} {unit})")
     else:
-        ax.set_title(f"{stage.name}: |S21| (synthesized ladder)")
+        from .filters import describe_parts
+
+        proto = stage.prototype
+        ax.set_title(f"{stage.name}: |S21| (synthesized ladder; {describe_parts(proto)})", fontsize=9)
+        if proto.floor_db is not None:
+            ax.axhline(proto.floor_db, color="grey", ls="--", lw=0.8, label="stopband floor")
     ax.set_xlabel(f"frequency ({unit})")
     ax.set_ylabel("|S21| (dB)")
     finite = db[np.isfinite(db)]
@@ -299,8 +304,7 @@ def spur_figure(chart, lo_span_hz, size_px=(1200, 700), dpi: int = 100, points: 
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     mixer = chart.mixer
     lo = np.linspace(lo_span_hz[0], lo_span_hz[1], points)
-    k = int(np.argmax([c.power_dbm for c in chart.lineup.carriers]))
-    if_hz = chart.lineup.carriers[k].freq_hz
+    if_hz = chart.lineup.carriers[chart.lineup.reference_carrier_index].freq_hz
     rows = chart.rows
     sx, ux = _freq_axis(lo)
     shown = [

@@ -22,7 +22,8 @@ from datetime import UTC, datetime
 from pathlib import Path
 
 from .budget import budget_rows
-from .check import check
+from .check import check, figure_check_rows
+from .filters import describe_parts
 from .notices import PLANNING_NOTICE, POWER_NOTICE
 from .outputs import write_atomic
 from .provenance import provenance
@@ -57,6 +58,18 @@ RANGE_TABLE = [
     ("rule", "rule", None),
     ("band", "protected band", None),
     ("worst_margin_db", "worst margin (dB)", ".2f"),
+]
+FIGURE_CHECK_TABLE = [
+    ("stage", "stage", None),
+    ("figure", "figure", None),
+    ("stated_text", "stated", None),
+    ("model_text", "model", None),
+    ("miss_db", "miss (dB)", ".2f"),
+    ("met_text", "met", None),
+]
+MISSING_TABLE = [
+    ("stage", "stage", None),
+    ("figure", "figure not given", None),
 ]
 RULESET_TABLE = [
     ("name", "rule set", None),
@@ -232,8 +245,16 @@ def _figures_text(stage) -> str:
         parts += [f"OIP3 {f.oip3_dbm:+g} dBm"] if f.oip3_dbm is not None else []
         parts += [f"OIP2 {f.oip2_dbm:+g} dBm"] if f.oip2_dbm is not None else []
         parts += [f"OHIP{n} {v:+.2f} dBm" for n, v in sorted(f.ohip_dbm.items())]
+        parts += [f"H{n} {dbc:+g} dBc @ {at:+g} dBm" for n, (dbc, at) in sorted(f.harmonics.items())]
         parts += [f"P1dB {f.p1db_dbm:+g} dBm"] if f.p1db_dbm is not None else []
         parts += [f"Psat {f.psat_dbm:+g} dBm"] if f.psat_dbm is not None else []
+        if stage.band is not None:
+            b = stage.band
+            edges = [
+                f"{b.low_hz / 1e6:g} MHz" if b.low_hz else "DC",
+                f"{b.high_hz / 1e6:g} MHz" if b.high_hz else "-",
+            ]
+            parts.append(f"pass band {edges[0]} to {edges[1]} (order {b.order})")
         return ", ".join(parts)
     if isinstance(stage, Attenuator):
         return f"loss {stage.loss_db:g} dB"
@@ -252,7 +273,7 @@ def _figures_text(stage) -> str:
                 else f"cutoff {p.edge_hz / 1e6:g} MHz"
             )
             rip = f", ripple {p.ripple_db:g} dB" if p.ripple_db else ""
-            return f"{p.family} {p.response}, order {p.order}, {edge}{rip}"
+            return f"{p.family} {p.response}, order {p.order}, {edge}{rip}; {describe_parts(p)}"
         return f"Touchstone {stage.source}"
     return ""
 
@@ -315,6 +336,10 @@ def _tune_section(lineup, tune, tune_figure) -> Section:
     return sec
 
 
+def _figure_value(value: float, unit: str, at_dbm: float | None) -> str:
+    return f"{value:+.2f} {unit}" + (f" @ {at_dbm:+.2f} dBm" if at_dbm is not None else "")
+
+
 def _assumptions_section(lineup) -> Section:
     a = lineup.analysis
     sec = Section("Assumptions behind the numbers")
@@ -328,9 +353,17 @@ def _assumptions_section(lineup) -> Section:
             "power": "(powers add: uncorrelated phases).",
             "phase": "(as modelled, phase-true: the interconnect phases of the model are taken as real).",
         }[a.combine],
-        "Amplifier figures become a polynomial in peak volts (OHIPn = Pout + |dBc|/(n-1); IIP3 from "
-        "A^2 = (4/3)|a1/a3|); with psat or p1db the polynomial sits behind a smooth limiter that keeps the "
-        "small-signal figures. A polynomial-only stage driven past a 1 dB gain deviation is flagged.",
+        "Amplifier figures set a memoryless model in peak volts whose small-signal terms are the "
+        "datasheet's (IIP3 from A^2 = (4/3)|a1/a3|, IIP2 from A = |a1/a2|); with psat or p1db it "
+        "saturates through an output rail whose level and knee are fitted so that both figures hold. "
+        "Each harmonic zone carries a weight on what the stage generates there, fitted so that every "
+        "stated hN holds at its output power; zones without a figure follow the memoryless relations "
+        "(HIP3 = IP3 + 4.77 dB, HIP2 = IP2 + 6.02 dB). A polynomial-only stage driven past a 1 dB gain "
+        "deviation is flagged.",
+        "A figure that a stage does not state is not invented: the products it describes are left out "
+        "(no 2nd-order figure: no even-order products from that stage; no compression figure: the stage "
+        "stays linear; a mixer without LO isolation: no LO leakage). Such a lineup is INCOMPLETE, never "
+        "PASS.",
         f"Linear stages: '{a.linear_sections}' ("
         + (
             "each stage matched, S21 multiplied"
@@ -349,6 +382,25 @@ def _assumptions_section(lineup) -> Section:
         )
     sec.parts.extend(("text", t) for t in texts)
     sec.parts.extend(("text", f"Model note: {n}") for n in lineup.notes)
+    missing = lineup.missing_figures()
+    if missing:
+        sec.parts.append(("text", "Figures not given, so the products they describe are not modelled:"))
+        sec.parts.append(
+            _table({"stage": [m[0] for m in missing], "figure": [m[1] for m in missing]}, MISSING_TABLE)
+        )
+    rows = figure_check_rows(lineup)
+    if rows:
+        sec.parts.append(
+            ("text", "Stated large-signal figures beside what the fitted model gives at the same point:")
+        )
+        shown = {c: [r[c] for r in rows] for c in ("stage", "figure", "miss_db")}
+        shown["stated_text"] = [_figure_value(r["stated"], r["unit"], r["at_dbm"]) for r in rows]
+        shown["model_text"] = [
+            "not reached" if r["model"] is None else _figure_value(r["model"], r["unit"], r["at_dbm"])
+            for r in rows
+        ]
+        shown["met_text"] = ["yes" if r["met"] else "NO" for r in rows]
+        sec.parts.append(_table(shown, FIGURE_CHECK_TABLE))
     if lineup.mask is not None:
         sets = lineup.mask.sets
         cols = {
@@ -414,6 +466,7 @@ thead th { background: #eee; }
 tr.fail td { background: #fde2e2; font-weight: bold; }
 p.verdict { font-size: 1.15em; font-weight: bold; padding: 0.5em; border: 2px solid #333; }
 p.verdict.fail { border-color: #b00; } p.verdict.pass { border-color: #070; }
+p.verdict.incomplete, p.verdict.uncertain { border-color: #b60; }
 p.caution { border-left: 4px solid #c60; padding-left: 0.6em; }
 p.made { color: #555; font-size: 0.85em; }
 table.prov th { background: #f4f4f4; width: 14em; }

@@ -50,10 +50,10 @@ class SpurChart:
 
 
 def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
-    """Build the chart of mixer ``stage`` (the strongest carrier is the IF)."""
+    """Build the chart of mixer ``stage`` (the reference carrier, the strongest, is the IF)."""
     index = lineup.stage_index(stage)
     mixer = lineup.stage_of_kind(stage, Mixer)
-    k = int(np.argmax([c.power_dbm for c in lineup.carriers]))
+    k = lineup.reference_carrier_index
     if_hz = lineup.carriers[k].freq_hz
     result = lineup.run()
     node = result.propagation.nodes[index, 0]

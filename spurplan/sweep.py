@@ -83,10 +83,6 @@ def read_channels(path) -> np.ndarray:
     return np.array(out)
 
 
-def _strongest(lineup) -> int:
-    return int(np.argmax([c.power_dbm for c in lineup.carriers]))
-
-
 def _batched(run, points: np.ndarray, progress):
     """Evaluate ``run(points[chunk])`` chunk by chunk; concatenate the arrays it returns."""
     parts = []
@@ -101,7 +97,7 @@ def _drive_eval(lineup, offsets_db: np.ndarray, combine):
     result = lineup.run(drive_offset_db=offsets_db)
     levels = result.levels(None, combine)
     ev = evaluate(lineup, result, levels)
-    k = _strongest(lineup)
+    k = lineup.reference_carrier_index
     out = result.carrier_levels_dbm_batch()[:, k]
     return result, levels, ev, out
 
@@ -211,7 +207,7 @@ def drive_sweep(
         output power: the inputs are then found by inverting the modelled transfer.
     """
     require_mask(lineup)
-    k = _strongest(lineup)
+    k = lineup.reference_carrier_index
     nominal = lineup.carriers[k].power_dbm
     points = sweep_points(start_dbm, stop_dbm, step_db, "drive", "dBm", "dB")
     offsets = points - nominal
@@ -301,7 +297,7 @@ def _bisect(good, lo: float, hi: float, tol: float) -> float:
 
 def _inputs_for_outputs(lineup, targets_dbm: np.ndarray, combine) -> np.ndarray:
     """Input offsets (dB) that give each target output power; NaN where unreachable."""
-    k = _strongest(lineup)
+    k = lineup.reference_carrier_index
     nominal = lineup.carriers[k].power_dbm
     del nominal
     grid = np.arange(-60.0, 40.0, 0.02)  # input offsets around the nominal drive (dB)
@@ -394,7 +390,7 @@ def tune_sweep(
         ref = base[0]
     else:
         shift = np.ones(len(base))
-        ref = base[len(lineup.mixers) + _strongest(lineup)]
+        ref = base[len(lineup.mixers) + lineup.reference_carrier_index]
     if np.any(carrier_hz[:, None] + (base - ref)[None, :] * shift <= 0):
         raise SweepError("a channel puts a tone at or below 0 Hz: expected positive frequencies")
 

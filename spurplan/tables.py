@@ -29,9 +29,11 @@ BUDGET_TABLE = [
     ("oip3_dbm", "OIP3 (dBm)", ".2f"),
     ("cascade_iip3_dbm", "casc IIP3 (dBm)", ".2f"),
     ("cascade_oip3_dbm", "casc OIP3 (dBm)", ".2f"),
-    ("p1db_dbm", "P1dB (dBm)", ".2f"),
-    ("p1db_from", "P1dB from", None),
+    ("p1db_dbm", "model P1dB (dBm)", ".2f"),
+    ("p1db_stated_dbm", "stated P1dB (dBm)", ".2f"),
     ("headroom_db", "headroom (dB)", ".2f"),
+    ("psat_dbm", "model Psat (dBm)", ".2f"),
+    ("figures", "figures", None),
 ]
 
 ELEMENT_TABLE = [
@@ -41,6 +43,8 @@ ELEMENT_TABLE = [
     ("g", "g", ".4f"),
     ("l_nh", "L (nH)", ".4g"),
     ("c_pf", "C (pF)", ".4g"),
+    ("q_l", "Q_L", ".4g"),
+    ("q_c", "Q_C", ".4g"),
 ]
 
 RESPONSE_TABLE = [

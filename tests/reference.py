@@ -141,15 +141,52 @@ class Linear:
 
 @dataclass(frozen=True)
 class Mixing:
-    """A frequency converter: ``y = Re sum c exp(j m w_LO t) z^n`` on the record.
+    """A frequency converter: ``y = Re sum c exp(j m w_LO t) w^n`` on the record.
 
     ``z`` is the analytic signal of the input (positive-frequency bins doubled, the
-    negative ones removed: exact on a periodic record); ``conj(z)^|n|`` for n < 0.
+    negative ones removed: exact on a periodic record); ``conj(w)^|n|`` for n < 0.
     ``terms`` are ``(m, n, c)``; the LO sits on bin ``lo_bin`` with phase 0.
+
+    ``w = z`` without ``knee_v``; with it, every sample of ``z`` is scaled by the
+    Rapp-form envelope limiter ``(1 + (|z| / knee_v)^(2 s))^(-1 / (2 s))`` (Rapp 1991;
+    from memory), ``s = smoothness``.  The limited envelope has products of every
+    order: the record must be long enough for the compared bins to stop changing.
     """
 
     terms: tuple
     lo_bin: int
+    knee_v: float | None = None
+    smoothness: int = 1
+
+
+@dataclass(frozen=True)
+class Generating:
+    """A nonlinear stage whose generated part is weighted by frequency, bin by bin.
+
+    ``Y(f) = H(f) X(f) + W(f) (T[x](f) - a1 X(f))``: what passes through sees ``H``
+    (default the flat ``a1``), what the stage generates (its output beyond the linear
+    passage) sees ``W``.  Exact on a periodic record when ``T(x)`` has no component
+    above Nyquist.
+    """
+
+    transfer: Callable[[np.ndarray], np.ndarray]
+    gain_v: float
+    weight: Callable[[np.ndarray], np.ndarray]
+    h: Callable[[np.ndarray], np.ndarray] | None = None
+
+
+def zone_weight(weights_db: dict, ref_hz: float) -> Callable[[np.ndarray], np.ndarray]:
+    """``W(f)``: ``weights_db[n]`` dB at ``n ref_hz``, 0 dB at every other multiple of
+    ``ref_hz`` (and at 0 Hz), linear in dB against frequency between them, 0 dB above
+    the highest multiple that carries a weight."""
+    top = max(weights_db, default=1) + 1
+    knots_hz = ref_hz * np.arange(top + 1)
+    knots_db = np.array([weights_db.get(n, 0.0) for n in range(top + 1)], dtype=float)
+
+    def weight(f_hz: np.ndarray) -> np.ndarray:
+        return 10.0 ** (np.interp(f_hz, knots_hz, knots_db, right=0.0) / 20.0)
+
+    return weight
 
 
 def _analytic(x: np.ndarray) -> np.ndarray:
@@ -167,12 +204,22 @@ def _apply(stage, x: np.ndarray, df_hz: float) -> np.ndarray:
     if isinstance(stage, Mixing):
         n = len(x)
         z = _analytic(x)
+        if stage.knee_v is not None:
+            s2 = 2 * stage.smoothness
+            z = z / (1.0 + (np.abs(z) / stage.knee_v) ** s2) ** (1.0 / s2)
         lo = np.exp(2j * np.pi * ((stage.lo_bin * np.arange(n, dtype=np.int64)) % n) / n)
         y = np.zeros(n)
         for m, k, c in stage.terms:
             base = np.ones(n) if k == 0 else (z**k if k > 0 else np.conj(z) ** (-k))
             y += np.real(c * lo**m * base)
         return y
+    if isinstance(stage, Generating):
+        spec_x = np.fft.rfft(x)
+        spec_t = np.fft.rfft(np.asarray(stage.transfer(x), dtype=float))
+        f = np.arange(len(spec_x)) * df_hz
+        h = stage.gain_v if stage.h is None else stage.h(f)
+        y = h * spec_x + stage.weight(f) * (spec_t - stage.gain_v * spec_x)
+        return np.fft.irfft(y, n=len(x))
     if isinstance(stage, Linear):
         spec = np.fft.rfft(x)
         f = np.arange(len(spec)) * df_hz

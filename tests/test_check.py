@@ -114,9 +114,9 @@ def test_97_307_limit_follows_carrier_power():
 
 
 def test_worked_lineup_third_harmonic_in_protected_band_fails_second_passes():
-    # Hand calculation. Carrier 470 MHz at 0 dBm into a 20 dB amplifier with datasheet
-    # harmonics h2 = -50 dBc @ +30 dBm and h3 = -40 dBc @ +30 dBm. OHIPn = Pout +
-    # |dBc|/(n-1) (common practice): OHIP2 = +80 dBm, OHIP3 = +50 dBm. In peak volts
+    # Hand calculation. Carrier 470 MHz at 0 dBm into a 20 dB amplifier with small-signal
+    # harmonic intercepts OHIP2 = +80 dBm, OHIP3 = +50 dBm (a datasheet's h2 = -50 dBc and
+    # h3 = -40 dBc @ +30 dBm read with OHIPn = Pout + |dBc|/(n-1), common practice). In peak volts
     # (Razavi 2e ch. 2, from memory): a_n = 2^(n-1) a1 / A_IHIPn^(n-1), A = sqrt(2 R P),
     # H2 = a2 A^2 / 2, H3 = a3 A^3 / 4, fundamental a1 A + (3/4) a3 A^3 (a3 < 0).
     r = 50.0
@@ -132,7 +132,7 @@ def test_worked_lineup_third_harmonic_in_protected_band_fails_second_passes():
     # 3f1 = 1410 MHz sits in 1400-1427 MHz (RR 5.340), held here to -50 dBm/1 MHz:
     # margin -10 dB, fails (arithmetic on 3 x 470 MHz).
     mask = {"use": ["itu-sm329-cat-a", {"name": "itu-rr-5.340", "limit": "-50 dBm", "rbw": "1 MHz"}]}
-    stages = [amp(gain="20 dB", h2="-50 dBc @ +30 dBm", h3="-40 dBc @ +30 dBm")]
+    stages = [amp(gain="20 dB", ohip2="+80 dBm", ohip3="+50 dBm")]
     outcome = check(_lineup(stages, [{"freq": "470 MHz", "power": "0 dBm"}], mask))
     h2, h3 = _row(outcome, "2f1"), _row(outcome, "3f1")
     assert h2["level_dbm"] == pytest.approx(h2_dbm, abs=0.01)

@@ -262,13 +262,17 @@ def test_budget_cascaded_iip3_matches_cascade_formula(pad, stages, tmp_path):
 def test_budget_of_a_linear_amplifier_is_clean(tmp_path):
     # An amplifier given only a gain is linear: it never compresses by 1 dB, so it has no
     # P1dB (None, as output_p1db_dbm documents for a linear model), and the carrier
-    # leaves at -8 + 16 = +8 dBm (arithmetic).  Nothing but the table on the terminal.
+    # leaves at -8 + 16 = +8 dBm (arithmetic).  The only other output is the warning that
+    # the model is incomplete: no 2nd- or 3rd-order figure and no compression figure.
     text = '[[carrier]]\nfreq = "455 MHz"\npower = "-8 dBm"\n'
     text += '[[stage]]\nkind = "amplifier"\nname = "linear"\ngain = "16 dB"\n'
     path = write(tmp_path, "linear.toml", text)
     proc = run_cli(["budget", str(path), "--format", "json"], cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr
-    assert proc.stderr == ""
+    (warning,) = proc.stderr.splitlines()
+    assert warning.startswith("spurplan: warning: model incomplete")
+    for missing in ("2nd-order figure", "3rd-order figure", "compression"):
+        assert missing in warning
     (row,) = as_json(proc.stdout)["stages"]
     assert row["carrier_out_dbm"] == pytest.approx(8.0, abs=1e-9)
     assert row["p1db_dbm"] is None

@@ -53,6 +53,23 @@ name = "pa"
 
 PA = PA_HEAD + 'gain = "16 dB"\n'
 
+# Stage 1: a synthesized low-pass whose prototype table each case completes (``%s``).
+LPF = """
+[[stage]]
+kind = "filter"
+name = "lpf"
+prototype = { family = "butterworth", order = 5, cutoff = "600 MHz"%s }
+"""
+
+# Stage 1: a mixer whose keys each case completes.
+MIXER = """
+[[stage]]
+kind = "mixer"
+name = "mixer"
+lo = { freq = "1.6 GHz", power = "+7 dBm" }
+conversion_loss = "6 dB"
+"""
+
 
 @dataclass(frozen=True)
 class Case:
@@ -283,14 +300,6 @@ CASES = [
         ("stage 2 'pa'", "field 'iip3'", "'+20 dBm'", "+18.00 dBm"),
     ),
     Case(
-        # h3 = -50 dBc @ +20 dBm gives OHIP3 = 20 + 50/2 = 45 dBm; oip3 +34 dBm gives
-        # OHIP3 = 34 + 10 log10(3) = 38.77 dBm (HD3 is 1/3 of IM3 for a cubic, Razavi,
-        # RF Microelectronics, ch. 2, from memory).
-        "h3-disagrees-with-oip3",
-        CARRIER + PAD + PA + 'oip3 = "+34 dBm"\nh3 = "-50 dBc @ +20 dBm"\n',
-        ("stage 2 'pa'", "field 'h3'", "'-50 dBc @ +20 dBm'", "4.77", "+38.77"),
-    ),
-    Case(
         "h2-positive-dbc",
         CARRIER + PAD + PA + 'h2 = "+28 dBc @ +20 dBm"\n',
         ("stage 2 'pa'", "field 'h2'", "'+28 dBc @ +20 dBm'", "dBc"),
@@ -304,6 +313,42 @@ CASES = [
         "p1db-above-psat",
         CARRIER + PAD + PA + 'p1db = "+30 dBm"\npsat = "+28 dBm"\n',
         ("stage 2 'pa'", "field 'p1db'", "'+30 dBm'", "psat"),
+    ),
+    # --- mixer figures: compression, IF feedthrough ---
+    Case(
+        "mixer-p1db-no-unit",
+        CARRIER + MIXER + 'p1db = "+1"\n',
+        ("stage 1 'mixer'", "field 'p1db'", "'+1'", "dBm"),
+    ),
+    Case(
+        "mixer-iip3-in-db",
+        CARRIER + MIXER + 'iip3 = "+10 dB"\n',
+        ("stage 1 'mixer'", "field 'iip3'", "'+10 dB'", "dBm"),
+    ),
+    Case(
+        # The envelope limiter with s = 1 ties IIP3 - P1dB = 10 log10(2) - 10 log10(10^0.1 - 1)
+        # = 8.88 dB (arithmetic on the Rapp form, spurplan/stages/mixer.py), so p1db +1 dBm
+        # means +9.88 dBm, not +15.
+        "mixer-iip3-disagrees-with-p1db",
+        CARRIER + MIXER + 'p1db = "+1 dBm"\niip3 = "+15 dBm"\n',
+        ("stage 1 'mixer'", "field 'iip3'", "'+15 dBm'", "'+1 dBm'", "8.88", "+9.88 dBm", "only one"),
+        proc=True,
+    ),
+    Case(
+        "mixer-if-isolation-no-unit",
+        CARRIER + MIXER + 'if_isolation = "40"\n',
+        ("stage 1 'mixer'", "field 'if_isolation'", "'40'", "dB"),
+    ),
+    Case(
+        "mixer-if-isolation-negative",
+        CARRIER + MIXER + 'if_isolation = "-40 dB"\n',
+        ("stage 1 'mixer'", "field 'if_isolation'", "'-40 dB'", ">= 0 dB"),
+    ),
+    Case(
+        # IF - wanted = (P - 40 dB) - (P - 6 dB) = -34 dBc (arithmetic), not -20.
+        "mixer-if-isolation-disagrees-with-spurs",
+        CARRIER + MIXER + 'if_isolation = "40 dB"\nspur_drive = "-10 dBm"\nspurs = { "IF" = "-20 dBc" }\n',
+        ("stage 1 'mixer'", "field 'if_isolation'", "40 dB", "-20 dBc", "-34 dBc"),
     ),
     # --- [analysis] ---
     Case("max-order-0", CARRIER + "[analysis]\nmax_order = 0\n", ("[analysis]", "field 'max_order'", "0")),
@@ -331,6 +376,48 @@ CASES = [
         "combine-max",
         CARRIER + '[analysis]\ncombine = "max"\n',
         ("[analysis]", "field 'combine'", "'max'", "worst"),
+    ),
+    # --- synthesized filters: unloaded Q and stopband floor ---
+    Case(
+        "filter-floor-positive",
+        CARRIER + LPF % ', floor = "+80 dB"',
+        ("stage 1 'lpf' prototype", "field 'floor'", "'+80 dB'", "-300 dB to -20 dB", "none"),
+        proc=True,
+    ),
+    Case(
+        "filter-floor-too-high",
+        CARRIER + LPF % ', floor = "-10 dB"',
+        ("stage 1 'lpf' prototype", "field 'floor'", "'-10 dB'", "-300 dB to -20 dB"),
+    ),
+    Case(
+        "filter-floor-bare-number",
+        CARRIER + LPF % ", floor = -80",
+        ("stage 1 'lpf' prototype", "field 'floor'", "-80", "dB"),
+    ),
+    Case(
+        "filter-floor-in-dbm",
+        CARRIER + LPF % ', floor = "-80 dBm"',
+        ("stage 1 'lpf' prototype", "field 'floor'", "'-80 dBm'", "dB"),
+    ),
+    Case(
+        "filter-floor-word",
+        CARRIER + LPF % ', floor = "off"',
+        ("stage 1 'lpf' prototype", "field 'floor'", "'off'", "none"),
+    ),
+    Case(
+        "filter-q-inductor-word",
+        CARRIER + LPF % ', q_inductor = "lossy"',
+        ("stage 1 'lpf' prototype", "field 'q_inductor'", "'lossy'", "lossless"),
+    ),
+    Case(
+        "filter-q-capacitor-zero",
+        CARRIER + LPF % ", q_capacitor = 0",
+        ("stage 1 'lpf' prototype", "field 'q_capacitor'", "0", "0.5 to 1e+12"),
+    ),
+    Case(
+        "filter-q-inductor-string-number",
+        CARRIER + LPF % ', q_inductor = "100"',
+        ("stage 1 'lpf' prototype", "field 'q_inductor'", "'100'", "a number"),
     ),
     # --- the file itself ---
     Case("not-valid-toml", CARRIER + "gain = = 3\n", ("TOML", "line"), proc=True),
@@ -449,8 +536,20 @@ NEAR_MISSES = [
         "".join(f'[[carrier]]\nfreq = "{f} MHz"\npower = "-20 dBm"\n' for f in (455, 456, 458)),
     ),
     ("combine-power", CARRIER + PA + '[analysis]\ncombine = "power"\n'),
+    # A mixer with every figure; +9.88 dBm is p1db + 8.88 dB (see the case above).
+    (
+        "mixer-complete",
+        CARRIER
+        + MIXER
+        + 'lo_isolation = "35 dB"\nif_isolation = "40 dB"\np1db = "+1 dBm"\niip3 = "+9.88 dBm"\n'
+        + 'spur_drive = "-10 dBm"\nspurs = { "2LO-IF" = "-40 dBc", "IF" = "-34 dBc" }\n',
+    ),
     # A 0 dB pad is a through connection: accepted (the loader documents loss >= 0).
     ("loss-zero", CARRIER + '[[stage]]\nkind = "attenuator"\nname = "pad"\nloss = "0 dB"\n'),
+    # The ideal ladder asked for by name, and the floor's range ends (FLOOR_RANGE_DB).
+    ("filter-ideal", CARRIER + LPF % ', q_inductor = "lossless", q_capacitor = "lossless", floor = "none"'),
+    ("filter-floor-minus-20", CARRIER + LPF % ', floor = "-20 dB", q_inductor = 0.5'),
+    ("filter-floor-minus-300", CARRIER + LPF % ', floor = "-300 dB", q_capacitor = 1e12'),
 ]
 
 

@@ -1,24 +1,32 @@
-"""Amplifier stage: datasheet figures -> memoryless transfer model.
+"""Amplifier stage: datasheet figures -> a model that honours each of them.
 
-Polynomial ``y = a1 x + a2 x^2 + ...`` in peak volts across the system impedance R
-(design notes section 4; Razavi, RF Microelectronics 2e, ch. 2, from memory):
+Small-signal terms (Razavi, RF Microelectronics 2e, ch. 2, from memory), in peak
+volts across the system impedance R:
 
 * ``a1 = 10^(G/20)``;
 * two-tone IP3: ``A_IIP3^2 = (4/3) |a1/a3|``; IP2: ``A_IIP2 = |a1/a2|``;
 * harmonic intercept of order n (input amplitude): ``A^(n-1) = 2^(n-1) |a1/a_n|``,
-  output-referred ``OHIPn = IHIPn + G``;
-* datasheet "Hn = X dBc @ Pout" gives ``OHIPn = Pout + |X|/(n-1)``.
+  output-referred ``OHIPn = IHIPn + G``; the small-signal reading of a datasheet
+  "Hn = X dBc @ Pout" is ``OHIPn = Pout + |X|/(n-1)``.
 
-Signs: odd coefficients are negative (compressive) unless ``cubic = "expansive"``,
-even coefficients positive; worst-case combining does not depend on them.
+The coefficient of order n comes from the two-tone figure when there is one, else
+from the harmonic figure (the memoryless relations HIP3 = IP3 + 4.77 dB and HIP2 =
+IP2 + 6.02 dB then tie them).  Odd coefficients are negative (compressive) unless
+``cubic = "expansive"``; even ones positive.
 
-With ``psat`` (or ``p1db``) the polynomial sits behind a smooth input limiter
-(:class:`~spurplan.nonlinear.SoftLimitedPolynomial`) whose expansion keeps every
-figure above: ``psat`` is the fundamental output power under hard drive, reached by
-rails at ``+/- (pi/4) sqrt(2 R Psat)`` (the fundamental of a square wave of
-amplitude V is ``4V/pi``; Fourier series, standard tables); ``p1db`` alone sets the
-rails so that the model compresses 1 dB at that output power.  Where the
-polynomial's own turning point comes first, it sets the rail, and a note says so.
+The model (:mod:`spurplan.stages.amplifier_fit` fits it):
+
+* with ``p1db`` or ``psat``, a :class:`~spurplan.nonlinear.Saturating` transfer whose
+  rail and knee honour both figures; without, the bare polynomial (flagged where it
+  is driven past where it holds);
+* a weight per harmonic zone on what the stage generates there, fitted so that
+  every ``hN`` (or ``ohipN``) holds at its stated point: the output network of a
+  tuned amplifier sets its harmonics independently of its in-band intermodulation;
+* an optional pass band (``band``) that shapes what passes through the stage and
+  what it generates outside its zones with stated figures (difference products near
+  DC, harmonics without a figure);
+* an optional Touchstone gain shape, applied to what passes through the stage only:
+  the datasheet figures are measured at the output connector.
 """
 
 from __future__ import annotations
@@ -28,18 +36,22 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..engine import apply_memoryless
 from ..fields import Fields
 from ..filters import SParameterTable
-from ..nonlinear import Polynomial, SoftLimitedPolynomial
-from ..spectrum import mixing_vectors
-from ..units import dbm_to_vpeak, parse_dbc_at, parse_gain_db, parse_power_dbm, vpeak_to_dbm
+from ..nonlinear import Polynomial, Saturating
+from ..units import dbm_to_vpeak, parse_dbc_at, parse_freq_hz, parse_gain_db, parse_power_dbm, vpeak_to_dbm
+from . import amplifier_fit
+from .amplifier_fit import FigureCheck
 from .base import LoadContext, flat_response
 
 MAX_HARMONIC = 9
-# Two figures for the same coefficient may differ this much (datasheet rounding).
+# Two forms of one figure (ohipN and hN, oip3 and iip3) may differ this much
+# (datasheet rounding).
 CONSISTENCY_DB = 0.5
-_HIP_OFFSET_DB = {3: 10 * math.log10(3.0), 2: 20 * math.log10(2.0)}  # HIP - IP (dB)
+MAX_BAND_ORDER = 8
+# Knots of the zone weights run to this zone; beyond, what the stage generates keeps
+# the memoryless level (0 dB), shaped by the pass band.
+_WEIGHT_ZONES = MAX_HARMONIC + 1
 
 
 @dataclass(frozen=True)
@@ -51,7 +63,9 @@ class AmplifierFigures:
     gain_db : float
     oip3_dbm, oip2_dbm : float or None
     ohip_dbm : dict of int -> float
-        Output harmonic intercepts by order (2 .. 9).
+        Small-signal output harmonic intercepts given as ``ohipN`` (2 .. 9).
+    harmonics : dict of int -> (level_dbc, at_output_dbm)
+        Harmonic levels given as ``hN = "X dBc @ P"``: a point to honour.
     p1db_dbm, psat_dbm : float or None
         Output 1 dB compression point and saturated output power.
     expansive : bool
@@ -62,6 +76,7 @@ class AmplifierFigures:
     oip3_dbm: float | None = None
     oip2_dbm: float | None = None
     ohip_dbm: dict[int, float] = field(default_factory=dict)
+    harmonics: dict[int, tuple[float, float]] = field(default_factory=dict)
     p1db_dbm: float | None = None
     psat_dbm: float | None = None
     expansive: bool = False
@@ -69,6 +84,17 @@ class AmplifierFigures:
     @property
     def iip3_dbm(self) -> float | None:
         return None if self.oip3_dbm is None else self.oip3_dbm - self.gain_db
+
+    def small_signal_ohip_dbm(self) -> dict[int, float]:
+        """OHIPn (dBm) by order: ``ohipN``, else the small-signal reading of ``hN``."""
+        out = {n: at + abs(dbc) / (n - 1) for n, (dbc, at) in self.harmonics.items()}
+        out.update(self.ohip_dbm)
+        return out
+
+    def states_order(self, n: int) -> bool:
+        """Whether any figure gives the order-n behaviour."""
+        ip = {2: self.oip2_dbm, 3: self.oip3_dbm}.get(n)
+        return ip is not None or n in self.ohip_dbm or n in self.harmonics
 
 
 def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
@@ -80,12 +106,12 @@ def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
     a1 = 10.0 ** (np.asarray(fig.gain_db, dtype=float) / 20.0)
     coeffs = {1: a1}
     odd_sign = 1.0 if fig.expansive else -1.0
-    for n, ohip in fig.ohip_dbm.items():
+    for n, ohip in fig.small_signal_ohip_dbm().items():
         a_ihip = dbm_to_vpeak(ohip - fig.gain_db, r_ohm)
         sign = odd_sign if n % 2 else 1.0
         coeffs[n] = sign * 2.0 ** (n - 1) * a1 / a_ihip ** (n - 1)
-    # Two-tone intercepts take precedence over harmonic ones (the loader has
-    # checked that they agree).
+    # Two-tone intercepts set the coefficient; a harmonic figure of the same order is
+    # then honoured by its zone weight.
     if fig.oip2_dbm is not None:
         coeffs[2] = a1 / dbm_to_vpeak(fig.oip2_dbm - fig.gain_db, r_ohm)
     if fig.oip3_dbm is not None:
@@ -95,239 +121,179 @@ def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
     return Polynomial(tuple(coeffs.get(n, 0.0) for n in range(1, degree + 1)))
 
 
-def _solve_increasing(func, target: float, lo: float, hi: float) -> float:
-    """x in [lo, hi] with func(x) = target for an increasing func (bisection)."""
-    for _ in range(200):
-        mid = 0.5 * (lo + hi)
-        if func(mid) < target:
-            lo = mid
-        else:
-            hi = mid
-        if hi - lo <= 1e-13 * max(abs(hi), 1e-30):
-            break
-    return 0.5 * (lo + hi)
+def saturating_base(poly: Polynomial, fig: AmplifierFigures, r_ohm: float) -> Saturating:
+    """The :class:`~spurplan.nonlinear.Saturating` inner function for ``poly``'s terms.
+
+    Its gain, second- and third-order terms (and even terms above) are the
+    polynomial's; rail and knee are left to :func:`amplifier_fit.fit_compression`.
+    Odd terms above the cubic are not carried: their harmonics are set by the zone
+    weights, their in-band products by the saturation.
+    """
+    c = [np.asarray(a, dtype=float) for a in poly.coeffs] + [np.zeros(())] * 3
+    a1, a3 = c[0], c[2]
+    gamma = np.where(a3 < 0, -2.0 * a3 / a1, 0.0)
+    a3_exp = np.where(a3 > 0, a3, 0.0)
+    even = tuple((n, c[n - 1]) for n in range(2, len(poly.coeffs) + 1, 2) if np.any(c[n - 1] != 0))
+    v_ref = (
+        (math.pi / 4.0) * dbm_to_vpeak(fig.psat_dbm, r_ohm)
+        if fig.psat_dbm is not None
+        else dbm_to_vpeak(fig.p1db_dbm, r_ohm)
+    )
+    gamma_even = np.where(gamma > 0, gamma, (a1 / v_ref) ** 2)
+    return Saturating(
+        a1=_scalar(a1),
+        gamma=_scalar(gamma),
+        a3_exp=_scalar(a3_exp),
+        even=tuple((n, _scalar(a)) for n, a in even),
+        gamma_even=_scalar(gamma_even),
+    )
 
 
-def _clip_levels(poly: Polynomial, rail_v: float) -> tuple[float, float, list[str]]:
-    """Input levels at which each side of ``poly`` reaches +/- ``rail_v`` (V)."""
-    turn_neg, turn_pos = poly.turning_points()
-    notes = []
-    levels = []
-    for side, turn in ((1.0, turn_pos), (-1.0, -turn_neg)):
-
-        def out(x, side=side):
-            return side * float(poly(side * x))
-
-        if math.isfinite(turn) and out(turn) <= rail_v:
-            levels.append(turn)
-            notes.append(
-                f"on the {'positive' if side > 0 else 'negative'} swing the intercept "
-                f"polynomial turns over at {out(turn):.3g} V peak output, below the "
-                f"{rail_v:.3g} V rail that the saturation figure asks for; the model "
-                "saturates there"
-            )
-            continue
-        hi = turn if math.isfinite(turn) else rail_v / abs(poly.gain)
-        while not math.isfinite(turn) and out(hi) < rail_v:
-            hi *= 2.0
-        levels.append(_solve_increasing(out, rail_v, 0.0, hi))
-    return -levels[1], levels[0], notes
+def _scalar(value):
+    return float(value) if np.ndim(value) == 0 else np.asarray(value)
 
 
-def _smoothness(poly: Polynomial) -> int:
-    """Limiter smoothness s: the composite keeps coefficients up to degree 2s."""
-    return max(2, math.ceil(poly.degree / 2))
+@dataclass(frozen=True)
+class AmplifierModel:
+    """What :func:`build_model` fitted.
+
+    Attributes
+    ----------
+    transfer : Polynomial or Saturating
+    zone_weights_db : dict of int -> float
+        Added (dB) to what the stage generates in harmonic zone n.
+    checks : tuple of FigureCheck
+        Every large-signal figure beside what the model gives at its point.
+    """
+
+    transfer: object
+    zone_weights_db: dict[int, float]
+    checks: tuple[FigureCheck, ...]
+
+    @property
+    def notes(self) -> tuple[str, ...]:
+        return tuple(c.describe() for c in self.checks if not c.met)
+
+
+def build_model(fig: AmplifierFigures, r_ohm: float) -> AmplifierModel:
+    """Fit the whole model to every figure (module docstring)."""
+    poly = polynomial_from_figures(fig, r_ohm)
+    checks: list[FigureCheck] = []
+    transfer = poly
+    if fig.psat_dbm is not None or fig.p1db_dbm is not None:
+        base = saturating_base(poly, fig, r_ohm)
+        has_cubic = fig.states_order(3)
+        fitted = amplifier_fit.fit_compression(
+            base, fig.p1db_dbm, fig.psat_dbm, has_cubic, r_ohm, oip3_dbm=fig.oip3_dbm
+        )
+        transfer = fitted.transfer
+        checks.extend(fitted.checks)
+        if fig.oip3_dbm is not None:
+            checks.append(amplifier_fit.oip3_check(transfer, fig.oip3_dbm, r_ohm))
+    weights, harmonic_checks = amplifier_fit.fit_zone_weights(
+        transfer, _harmonic_points(fig, transfer, r_ohm), r_ohm
+    )
+    # ohipN figures are read at small signal, where the weight meets them exactly.
+    checks.extend(c for c in harmonic_checks if int(c.figure[1:]) in fig.harmonics)
+    return AmplifierModel(transfer=transfer, zone_weights_db=weights, checks=tuple(checks))
+
+
+def _harmonic_points(fig: AmplifierFigures, transfer, r_ohm: float) -> dict[int, tuple[float, float]]:
+    """The point each harmonic figure must pass through: (dBc, output dBm).
+
+    ``hN`` is its own point; ``ohipN`` (without ``hN``) is read at small signal,
+    :data:`amplifier_fit.SMALL_SIGNAL_BACKOFF_DB` below the knee, where the
+    harmonic is ``(n - 1) (P - OHIPn)`` dBc (module docstring).
+    """
+    points = dict(fig.harmonics)
+    # An ohipN that sets its own coefficient is met exactly at small signal without a
+    # weight: every order of a polynomial, orders 2 and 3 of the saturating model
+    # (module docstring), unless a two-tone figure set that coefficient.
+    own = set(range(2, MAX_HARMONIC + 1)) if isinstance(transfer, Polynomial) else {2, 3}
+    own -= {n for n, ip in ((2, fig.oip2_dbm), (3, fig.oip3_dbm)) if ip is not None}
+    weighted = set(fig.ohip_dbm) - set(points) - own
+    if weighted:
+        knee = float(amplifier_fit.knee_scale_v(transfer))
+        out_dbm = float(vpeak_to_dbm(abs(float(transfer.gain)) * knee, r_ohm))
+        at = out_dbm - amplifier_fit.SMALL_SIGNAL_BACKOFF_DB
+        for n in weighted:
+            points[n] = ((n - 1) * (at - fig.ohip_dbm[n]), at)
+    return points
 
 
 def output_p1db_dbm(transfer, r_ohm: float) -> float | None:
-    """Output 1 dB compression point (dBm) of a model, from a single-tone sweep.
-
-    Returns ``None`` when the model does not compress by 1 dB (linear or
-    expansive).
-    """
-    if transfer.degree == 1:
-        return None
-    mix = mixing_vectors(1, 3)
-    scale = _model_scale_v(transfer)
-    amps = np.geomspace(scale * 1e-3, scale * 30.0, 600)
-    x = np.zeros((amps.size, len(mix)), dtype=complex)
-    x[:, 0] = amps
-    y1 = np.abs(apply_memoryless(x, mix, transfer).spectrum[:, 0])
-    gain_db = 20.0 * np.log10(y1 / (abs(transfer.gain) * amps))
-    below = np.nonzero(gain_db <= -1.0)[0]
-    if below.size == 0 or below[0] == 0:
-        return None
-    i = below[0]
-    frac = (-1.0 - gain_db[i - 1]) / (gain_db[i] - gain_db[i - 1])
-    out_db = vpeak_to_dbm(y1[[i - 1, i]], r_ohm)
-    return float(out_db[0] + frac * (out_db[1] - out_db[0]))
+    """Output 1 dB compression point (dBm) of a model (``None`` if it never compresses 1 dB)."""
+    return amplifier_fit.model_p1db_dbm(transfer, r_ohm)
 
 
-def _model_scale_v(transfer) -> float:
-    """A voltage near where the model's nonlinearity becomes strong (V, input)."""
-    if isinstance(transfer, SoftLimitedPolynomial):
-        return min(transfer.clip_pos_v, -transfer.clip_neg_v)
-    turn_neg, turn_pos = transfer.turning_points()
-    finite = [abs(t) for t in (turn_neg, turn_pos) if math.isfinite(t)]
-    return min(finite) if finite else transfer._scale_v()
+@dataclass(frozen=True)
+class PassBand:
+    """An amplifier's small-signal pass band: Butterworth roll-offs below and above.
 
+    ``H(f) = H_hp(f) H_lp(f)`` with the analog Butterworth responses of ``order``
+    (poles ``exp(j pi (2k + N - 1) / (2N))``, k = 1..N; high-pass by ``s -> 1/s``;
+    any filter-design text, e.g. Pozar, Microwave Engineering, from memory): -3.01 dB
+    at each corner whatever the order, and ``20 N`` dB per decade beyond.
 
-def build_transfer(fig: AmplifierFigures, r_ohm: float) -> tuple[object, list[str]]:
-    """The memoryless model for ``fig`` and notes about how it was chosen."""
-    poly = polynomial_from_figures(fig, r_ohm)
-    if fig.psat_dbm is None and fig.p1db_dbm is None:
-        return poly, []
-    s = _smoothness(poly)
-    if fig.psat_dbm is not None:
-        rail = (math.pi / 4.0) * float(dbm_to_vpeak(fig.psat_dbm, r_ohm))
-        neg, pos, notes = _clip_levels(poly, rail)
-        return SoftLimitedPolynomial(poly, neg, pos, s), notes
-
-    target = fig.p1db_dbm
-
-    def model(rail_v):
-        neg, pos, _ = _clip_levels(poly, rail_v)
-        return SoftLimitedPolynomial(poly, neg, pos, s)
-
-    # The model's P1dB rises with the rail; bracket it, then bisect in log(rail).
-    rail_hi = float(dbm_to_vpeak(target, r_ohm)) * 100.0
-    best = output_p1db_dbm(model(rail_hi), r_ohm)
-    if best is None or best < target:
-        note = (
-            f"p1db {target:+.1f} dBm is above what the other figures allow "
-            f"({best:+.1f} dBm): the model compresses earlier"
-            if best is not None
-            else f"p1db {target:+.1f} dBm could not be fitted"
-        )
-        return model(rail_hi), [note]
-    lo, hi = math.log(rail_hi) - 12.0, math.log(rail_hi)
-    for _ in range(40):
-        mid = 0.5 * (lo + hi)
-        p1 = output_p1db_dbm(model(math.exp(mid)), r_ohm)
-        if p1 is None or p1 > target:
-            hi = mid
-        else:
-            lo = mid
-        if hi - lo < 1e-4:
-            break
-    return model(math.exp(0.5 * (lo + hi))), []
-
-
-def sampled_transfer(amp: Amplifier, deltas: dict, r_ohm: float):
-    """The amplifier's model with its figures moved per Monte Carlo sample.
-
-    Parameters
+    Attributes
     ----------
-    deltas : dict of str -> ndarray (B,)
-        Shifts in dB of ``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db`` and ``ohip2``
-        .. ``ohip9`` (output-referred intercepts, dBm).
-
-    With ``psat`` the clip levels follow each sample's rail exactly.  With only
-    ``p1db`` the nominal fit's input clip levels move by the sample's P1dB shift less
-    its gain shift (an approximation: refitting every sample would be slow).
+    low_hz, high_hz : float or None
+        Corners (Hz); ``None`` for no roll-off on that side.
+    order : int
     """
-    from dataclasses import replace as _replace
 
-    fig = amp.figures
-    batch = len(next(iter(deltas.values())))
-    zero = np.zeros(batch)
+    low_hz: float | None
+    high_hz: float | None
+    order: int = 1
 
-    def moved(value, key):
-        return None if value is None else value + deltas.get(key, zero)
-
-    sample = _replace(
-        fig,
-        gain_db=fig.gain_db + deltas.get("gain", zero),
-        oip3_dbm=moved(fig.oip3_dbm, "oip3"),
-        oip2_dbm=moved(fig.oip2_dbm, "oip2"),
-        ohip_dbm={n: v + deltas.get(f"ohip{n}", zero) for n, v in fig.ohip_dbm.items()},
-    )
-    poly = polynomial_from_figures(sample, r_ohm)
-    nominal = amp.transfer
-    if not isinstance(nominal, SoftLimitedPolynomial):
-        return poly
-    if fig.psat_dbm is not None:
-        rail = (math.pi / 4.0) * dbm_to_vpeak(fig.psat_dbm + deltas.get("psat", zero), r_ohm)
-        neg, pos = _clip_levels_batched(poly, rail)
-        return SoftLimitedPolynomial(poly, neg, pos, nominal.smoothness)
-    shift = 10 ** ((deltas.get("p1db", zero) - deltas.get("gain", zero)) / 20)
-    return SoftLimitedPolynomial(
-        poly, nominal.clip_neg_v * shift, nominal.clip_pos_v * shift, nominal.smoothness
-    )
-
-
-def _turning_points_batched(coeffs: list, degree: int) -> tuple[np.ndarray, np.ndarray]:
-    """Nearest roots of dy/dx on each side of 0, per sample: closed form up to a cubic."""
-    batch = len(coeffs[0])
-    neg, pos = np.full(batch, -np.inf), np.full(batch, np.inf)
-    if degree == 1:
-        return neg, pos
-    a1, a2 = coeffs[0], coeffs[1]
-    a3 = coeffs[2] if degree >= 3 else np.zeros(batch)
-    if degree <= 3:
-        # dy/dx = a1 + 2 a2 x + 3 a3 x^2 = 0 (quadratic formula; linear where a3 = 0).
-        with np.errstate(divide="ignore", invalid="ignore"):
-            disc = 4 * a2**2 - 12 * a3 * a1
-            sq = np.sqrt(np.where(disc >= 0, disc, np.nan))
-            quad = np.stack([(-2 * a2 + sq) / (6 * a3), (-2 * a2 - sq) / (6 * a3)])
-            lin = np.broadcast_to(-a1 / (2 * a2), (2, batch))
-            roots = np.where(a3 != 0, quad, np.where(np.arange(2)[:, None] == 0, lin, np.nan))
-        pos = np.where(roots > 0, roots, np.inf).min(axis=0)
-        neg = np.where(roots < 0, roots, -np.inf).max(axis=0)
-        return neg, pos
-    for b in range(batch):
-        neg[b], pos[b] = Polynomial(tuple(float(c[b]) for c in coeffs)).turning_points()
-    return neg, pos
-
-
-def _clip_levels_batched(poly: Polynomial, rail_v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Per-sample :func:`_clip_levels`: input levels where each side reaches +/- ``rail_v``."""
-    batch = len(rail_v)
-    coeffs = [np.broadcast_to(np.asarray(a, dtype=float), (batch,)) for a in poly.coeffs]
-    turn_neg, turn_pos = _turning_points_batched(coeffs, poly.degree)
-    levels = []
-    for side, turn in ((1.0, turn_pos), (-1.0, -turn_neg)):
-
-        def out(x, side=side):
-            y = np.zeros_like(x)
-            for c in reversed(coeffs):
-                y = (y + c) * (side * x)
-            return side * y
-
-        capped = np.isfinite(turn) & (out(np.where(np.isfinite(turn), turn, 0.0)) <= rail_v)
-        hi = np.where(np.isfinite(turn), turn, rail_v / np.abs(coeffs[0]))
-        for _ in range(60):  # grow the bracket where the polynomial has no turning point
-            short = ~np.isfinite(turn) & (out(hi) < rail_v)
-            if not short.any():
-                break
-            hi = np.where(short, 2 * hi, hi)
-        lo = np.zeros(batch)
-        for _ in range(100):
-            mid = 0.5 * (lo + hi)
-            below = out(mid) < rail_v
-            lo, hi = np.where(below, mid, lo), np.where(below, hi, mid)
-        levels.append(np.where(capped, turn, 0.5 * (lo + hi)))
-    return -levels[1], levels[0]
+    def response(self, freq_hz) -> np.ndarray:
+        """Complex response at ``freq_hz`` (>= 0)."""
+        f = np.asarray(freq_hz, dtype=float)
+        k = np.arange(1, self.order + 1)
+        poles = np.exp(1j * np.pi * (2 * k + self.order - 1) / (2 * self.order))
+        h = np.ones(f.shape, dtype=complex)
+        if self.high_hz is not None:
+            s = 1j * f / self.high_hz
+            h = h / np.prod(s[..., None] - poles, axis=-1) * np.prod(-poles).real
+        if self.low_hz is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                s = np.where(f > 0, self.low_hz / (1j * np.where(f > 0, f, 1.0)), np.inf)
+                hp = np.prod(-poles).real / np.prod(s[..., None] - poles, axis=-1)
+            h = h * np.where(f > 0, hp, 0.0)
+        return h
 
 
 @dataclass(frozen=True)
 class Amplifier:
-    """An amplifier stage: flat gain and a memoryless nonlinearity.
+    """An amplifier stage: gain, a memoryless nonlinearity and harmonic-zone weights.
 
     Attributes
     ----------
     name : str
     figures : AmplifierFigures
-    transfer : Polynomial or SoftLimitedPolynomial
+    transfer : Polynomial or Saturating
+    zone_weights_db : dict of int -> float
+        Weight (dB) on what the stage generates in harmonic zone n (fitted; a zone
+        without an entry keeps 0 dB).
+    checks : tuple of FigureCheck
+        Stated large-signal figures beside the model's own values.
     notes : tuple of str
-        How the model was fitted, for the terminal and reports.
+        Figures the model misses, and how it was built, for the terminal and reports.
+    shape : SParameterTable or None
+        Touchstone gain shape, for what passes through the stage.
+    band : PassBand or None
+    ref_freq_hz : float
+        Carrier frequency at the stage input where the figures hold (Hz).
     """
 
     name: str
     figures: AmplifierFigures
     transfer: object
+    zone_weights_db: dict = field(default_factory=dict)
+    checks: tuple[FigureCheck, ...] = ()
     notes: tuple[str, ...] = ()
     shape: SParameterTable | None = None
+    band: PassBand | None = None
     ref_freq_hz: float = 0.0
 
     @property
@@ -338,23 +304,98 @@ class Amplifier:
     def data_range_hz(self) -> tuple[float, float] | None:
         return None if self.shape is None else self.shape.data_range_hz
 
+    def _band_ratio(self, freq_hz) -> np.ndarray:
+        if self.band is None:
+            return np.ones(np.shape(freq_hz), dtype=complex)
+        return self.band.response(freq_hz) / self.band.response(np.array(self.ref_freq_hz))
+
     def response(self, freq_hz: np.ndarray) -> np.ndarray:
-        """Small-signal gain: the ``gain`` figure, shaped by S21(f) / S21(f_ref) when a
-        Touchstone file is given (the figures hold at ``f_ref``, the strongest carrier)."""
-        flat = flat_response(self.figures.gain_db)(freq_hz)
+        """Small-signal gain for what passes through: the ``gain`` figure at the carrier,
+        shaped by the pass band and by S21(f) / S21(f_ref) of a Touchstone file."""
+        h = flat_response(self.figures.gain_db)(freq_hz) * self._band_ratio(freq_hz)
         if self.shape is None:
-            return flat
-        return flat * self.shape(freq_hz) / self.shape(np.array(self.ref_freq_hz))
+            return h
+        return h * self.shape(freq_hz) / self.shape(np.array(self.ref_freq_hz))
+
+    def generated_weight(self, freq_hz: np.ndarray, ref_hz=None, weights_db=None) -> np.ndarray:
+        """Weight on what the stage generates at ``freq_hz`` (>= 0), shape of ``freq_hz``.
+
+        In harmonic zone n (around ``n f_ref``) a fitted weight holds exactly at
+        ``n f_ref``; between zone centres it is interpolated linearly in dB against
+        frequency (a smooth output network), and zones without a fitted weight keep
+        the pass band's shape alone.  The Touchstone shape is not applied: the stage's
+        figures are measured at its output connector.
+
+        Parameters
+        ----------
+        freq_hz : ndarray (B, P)
+        ref_hz : ndarray (B,) or None
+            Carrier at the stage input per batch element (default ``ref_freq_hz``).
+        weights_db : dict of int -> float or ndarray (B,), optional
+            Per-sample weights (Monte Carlo); default the fitted ones.
+        """
+        weights_db = self.zone_weights_db if weights_db is None else weights_db
+        band = self._band_ratio(freq_hz)
+        if not weights_db:
+            return band
+        f = np.asarray(freq_hz, dtype=float)
+        f2 = np.atleast_2d(f)
+        rows = f2.shape[0]
+        ref = np.full(rows, self.ref_freq_hz) if ref_hz is None else np.asarray(ref_hz, dtype=float)
+        ref = np.broadcast_to(ref, (rows,))[:, None]
+        # Knots at n f_ref, n = 0 .. _WEIGHT_ZONES, (B, K): the fitted weight over the
+        # band's own value there, so that band x correction is the fitted weight.
+        knot_f = ref * np.arange(_WEIGHT_ZONES + 1)
+        band_knots_db = 20.0 * np.log10(np.maximum(np.abs(self._band_ratio(knot_f)), 1e-300))
+        corr = np.zeros(knot_f.shape)
+        for n, w in weights_db.items():
+            corr[:, n] = np.broadcast_to(np.asarray(w, dtype=float), (rows,)) - band_knots_db[:, n]
+        t = np.clip(f2 / ref, 0.0, float(_WEIGHT_ZONES))
+        i = np.minimum(np.floor(t).astype(int), _WEIGHT_ZONES - 1)
+        lo = np.take_along_axis(corr, i, axis=1)
+        hi = np.take_along_axis(corr, i + 1, axis=1)
+        corr_db = (lo + (t - i) * (hi - lo)).reshape(f.shape)
+        return band * 10.0 ** (corr_db / 20.0)
+
+    def missing_figures(self) -> tuple[str, ...]:
+        """Figure classes that this amplifier will produce but that no figure states."""
+        fig = self.figures
+        out = []
+        if not fig.states_order(2):
+            out.append("2nd-order figure (oip2, iip2, h2 or ohip2)")
+        if not fig.states_order(3):
+            out.append("3rd-order figure (oip3, iip3, h3 or ohip3)")
+        if fig.p1db_dbm is None and fig.psat_dbm is None:
+            out.append("compression (p1db or psat)")
+        return tuple(out)
 
     @classmethod
-    def from_figures(cls, name: str, figures: AmplifierFigures, r_ohm: float = 50.0) -> Amplifier:
-        """Build the model from figures already checked for consistency."""
-        transfer, notes = build_transfer(figures, r_ohm)
-        return cls(name=name, figures=figures, transfer=transfer, notes=tuple(notes))
+    def from_figures(
+        cls,
+        name: str,
+        figures: AmplifierFigures,
+        r_ohm: float = 50.0,
+        band: PassBand | None = None,
+        ref_freq_hz: float = 0.0,
+    ) -> Amplifier:
+        """Build and fit the model from figures already checked at the boundary."""
+        model = build_model(figures, r_ohm)
+        return cls(
+            name=name,
+            figures=figures,
+            transfer=model.transfer,
+            zone_weights_db=model.zone_weights_db,
+            checks=model.checks,
+            notes=model.notes,
+            band=band,
+            ref_freq_hz=ref_freq_hz,
+        )
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Amplifier:
-        amp = cls.from_figures(fields.raw("name"), read_figures(fields), context.r_ohm)
+        figures = read_figures(fields)
+        band = read_band(fields, context)
+        amp = cls.from_figures(fields.raw("name"), figures, context.r_ohm, band, context.ref_freq_hz)
         fields.raw("input_port")
         fields.raw("touchstone")
         if not fields.has("touchstone"):
@@ -369,7 +410,65 @@ class Amplifier:
                 f"{fields.raw('touchstone')!r} covers {lo:.6g} to {hi:.6g} Hz: expected it to include "
                 f"the carrier at {context.ref_freq_hz:.6g} Hz, where the figures are referred",
             )
-        return replace(amp, shape=table, ref_freq_hz=context.ref_freq_hz, notes=amp.notes + tuple(notes))
+        return replace(amp, shape=table, notes=amp.notes + tuple(notes))
+
+
+def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[object, dict]:
+    """The amplifier's model with its figures moved per Monte Carlo sample.
+
+    Parameters
+    ----------
+    deltas : dict of str -> ndarray (B,)
+        Shifts in dB of ``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db`` and ``ohip2``
+        .. ``ohip9`` (output-referred intercepts, dBm).
+
+    Returns
+    -------
+    transfer, zone_weights_db
+        The per-sample model, and the per-sample zone weights (dB, arrays (B,)).
+
+    The small-signal coefficients follow each sample's figures exactly.  The rail,
+    knee and zone weights are not refitted per sample (that would be slow): the rail
+    moves by the sample's Psat shift (or P1dB shift without Psat), an inner saturation
+    fitted to P1dB moves with it, and a harmonic zone whose level no coefficient
+    carries moves by ``-(n - 1)`` times its OHIPn shift (the slope of an n-th
+    harmonic in dBc against its intercept at fixed output power).
+    """
+    fig = amp.figures
+    batch = len(next(iter(deltas.values())))
+    zero = np.zeros(batch)
+
+    def moved(value, key):
+        return None if value is None else value + deltas.get(key, zero)
+
+    sample = replace(
+        fig,
+        gain_db=fig.gain_db + deltas.get("gain", zero),
+        oip3_dbm=moved(fig.oip3_dbm, "oip3"),
+        oip2_dbm=moved(fig.oip2_dbm, "oip2"),
+        ohip_dbm={n: v + deltas.get(f"ohip{n}", zero) for n, v in fig.ohip_dbm.items()},
+        harmonics={
+            n: (dbc - (n - 1) * deltas.get(f"ohip{n}", zero), at) for n, (dbc, at) in fig.harmonics.items()
+        },
+    )
+    poly = polynomial_from_figures(sample, r_ohm)
+    nominal = amp.transfer
+    carried = set(range(2, len(poly.coeffs) + 1))
+    if isinstance(nominal, Saturating):
+        base = saturating_base(poly, sample, r_ohm)
+        carried = {2, 3} | {n for n, _ in base.even}
+        shift_db = deltas.get("psat", zero) if fig.psat_dbm is not None else deltas.get("p1db", zero)
+        scale = 10.0 ** (shift_db / 20.0)
+        gamma = base.gamma if fig.states_order(3) else nominal.gamma / scale**2
+        transfer = replace(base, gamma=gamma, rail_v=nominal.rail_v * scale, smoothness=nominal.smoothness)
+    else:
+        transfer = poly
+    weights = {}
+    for n, w in amp.zone_weights_db.items():
+        own = (n == 2 and fig.oip2_dbm is not None) or (n == 3 and fig.oip3_dbm is not None)
+        level_moves = n not in carried or own
+        weights[n] = w - (n - 1) * deltas.get(f"ohip{n}", zero) if level_moves else w + zero
+    return transfer, weights
 
 
 def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | None:
@@ -388,35 +487,34 @@ def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | 
 
 
 def read_figures(fields: Fields) -> AmplifierFigures:
-    """Parse and cross-check the amplifier keys of one ``[[stage]]`` table."""
+    """Parse and cross-check the amplifier keys of one ``[[stage]]`` table.
+
+    ``hN`` and ``oipN`` of the same order are independent facts (the output network
+    sets the harmonics, the in-band terminations the intermodulation) and are both
+    honoured; ``hN`` and ``ohipN`` are two forms of one figure and must agree.
+    """
     gain = fields.quantity("gain", parse_gain_db, required=True)
     oip3 = _pair(fields, "oip3", "iip3", gain)
     oip2 = _pair(fields, "oip2", "iip2", gain)
     ohip: dict[int, float] = {}
+    harmonics: dict[int, tuple[float, float]] = {}
     for n in range(2, MAX_HARMONIC + 1):
         from_ohip = fields.quantity(f"ohip{n}", parse_power_dbm)
-        from_h = fields.quantity(f"h{n}", parse_dbc_at)
-        if from_h is not None:
-            dbc, at_dbm = from_h
-            from_h = at_dbm + abs(dbc) / (n - 1)
-        if from_ohip is not None and from_h is not None and abs(from_ohip - from_h) > CONSISTENCY_DB:
-            raise fields.error(
-                f"h{n}",
-                f"{fields.raw(f'h{n}')!r} implies OHIP{n} {from_h:+.2f} dBm but ohip{n} is "
-                f"{fields.raw(f'ohip{n}')!r}: expected figures that agree within {CONSISTENCY_DB} dB",
-            )
-        value = from_ohip if from_ohip is not None else from_h
-        if value is not None:
-            ohip[n] = value
-    for n, ip in ((3, oip3), (2, oip2)):
-        if ip is not None and n in ohip and abs(ohip[n] - (ip + _HIP_OFFSET_DB[n])) > CONSISTENCY_DB:
-            key = f"h{n}" if fields.has(f"h{n}") else f"ohip{n}"
-            raise fields.error(
-                key,
-                f"{fields.raw(key)!r} implies OHIP{n} {ohip[n]:+.2f} dBm, but oip{n} {ip:+.2f} dBm "
-                f"implies OHIP{n} = OIP{n} + {_HIP_OFFSET_DB[n]:.2f} dB = "
-                f"{ip + _HIP_OFFSET_DB[n]:+.2f} dBm: expected figures that agree",
-            )
+        point = fields.quantity(f"h{n}", parse_dbc_at)
+        if from_ohip is not None and point is not None:
+            dbc, at_dbm = point
+            implied = at_dbm + abs(dbc) / (n - 1)
+            if abs(from_ohip - implied) > CONSISTENCY_DB:
+                raise fields.error(
+                    f"h{n}",
+                    f"{fields.raw(f'h{n}')!r} implies OHIP{n} {implied:+.2f} dBm but ohip{n} is "
+                    f"{fields.raw(f'ohip{n}')!r}: expected one of them, or figures that agree within "
+                    f"{CONSISTENCY_DB} dB",
+                )
+        if point is not None:
+            harmonics[n] = point
+        elif from_ohip is not None:
+            ohip[n] = from_ohip
     p1db = fields.quantity("p1db", parse_power_dbm)
     psat = fields.quantity("psat", parse_power_dbm)
     if p1db is not None and psat is not None and p1db > psat:
@@ -427,7 +525,36 @@ def read_figures(fields: Fields) -> AmplifierFigures:
         oip3_dbm=oip3,
         oip2_dbm=oip2,
         ohip_dbm=ohip,
+        harmonics=harmonics,
         p1db_dbm=p1db,
         psat_dbm=psat,
         expansive=cubic == "expansive",
     )
+
+
+def read_band(fields: Fields, context: LoadContext) -> PassBand | None:
+    """``band = { low = "...", high = "...", order = 1 }``: an optional pass band."""
+    raw = fields.raw("band")
+    if raw is None:
+        return None
+    if not isinstance(raw, dict):
+        raise fields.error("band", f"{raw!r}: expected a table {{ low = '400 MHz', high = '500 MHz' }}")
+    sub = Fields(raw, fields.file, f"{fields.where} band")
+    low = sub.quantity("low", parse_freq_hz)
+    high = sub.quantity("high", parse_freq_hz)
+    order = sub.integer("order", default=1, low=1, high=MAX_BAND_ORDER)
+    sub.finish()
+    if low is None and high is None:
+        raise fields.error("band", "expected 'low', 'high' or both")
+    if (low is not None and low <= 0) or (high is not None and high <= 0):
+        raise fields.error("band", "expected corners above 0 Hz")
+    if low is not None and high is not None and not low < high:
+        raise fields.error(
+            "band", f"low {sub.raw('low')!r} and high {sub.raw('high')!r}: expected low < high"
+        )
+    ref = context.ref_freq_hz
+    if ref and not ((low or 0.0) <= ref <= (high or math.inf)):
+        raise fields.error(
+            "band", f"expected a band that contains the carrier at {ref:.6g} Hz, where the figures hold"
+        )
+    return PassBand(low_hz=low, high_hz=high, order=order)

@@ -23,7 +23,9 @@ class LoadContext:
         What data-based responses do outside their frequency range
         (:data:`spurplan.filters.BEYOND_POLICIES`).
     ref_freq_hz : float
-        Frequency of the strongest carrier: where amplifier figures are referred.
+        Frequency of the reference carrier (the strongest; of equal powers the higher
+        frequency, :func:`spurplan.lineup.reference_carrier_index`): where amplifier
+        figures are referred.
     """
 
     r_ohm: float
