@@ -34,7 +34,7 @@ import scipy.fft as sfft
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/: the reference
 
-from reference import Tone, exact_length, simulate
+from reference import Generating, Tone, exact_length, simulate, zone_weight
 
 from spurplan.lineup_file import from_dict
 from spurplan.spectrum import mixing_vectors
@@ -101,8 +101,20 @@ def engine_once(lineup) -> tuple[float, dict]:
 
 def reference_inputs(lineup):
     tones = [Tone(c.freq_hz, c.power_dbm, c.phase_rad) for c in lineup.carriers]
-    # The reference runs each stage's memoryless model (or its flat gain in dB).
-    stages = [s.transfer if s.transfer is not None else -s.loss_db for s in lineup.stages]
+    # The reference runs each stage's memoryless model (or its flat gain in dB), with an
+    # amplifier's harmonic-zone weights on what it generates (tests/reference.py Generating),
+    # zones centred on the strongest carrier (ties to the higher frequency).
+    ref_hz = max(lineup.carriers, key=lambda c: (c.power_dbm, c.freq_hz)).freq_hz
+    stages = []
+    for s in lineup.stages:
+        if s.transfer is None:
+            stages.append(-s.loss_db)
+        elif getattr(s, "zone_weights_db", None):
+            stages.append(
+                Generating(s.transfer, 10 ** (s.gain_db / 20), zone_weight(s.zone_weights_db, ref_hz))
+            )
+        else:
+            stages.append(s.transfer)
     return tones, stages
 
 
