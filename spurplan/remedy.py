@@ -23,17 +23,20 @@ includes the dissipation loss at the carrier and the rejection the floor caps.  
 product that needs more rejection than the floor allows (:func:`spurplan.filters.
 max_rejection_db`) cannot be fixed by one filter: the search is not run and the
 reason says so.
+
+``--write`` (:func:`write_fixed`) edits the user's file as a TOML document
+(:mod:`spurplan.lineup_edit`), re-reads the result with the project's loader and
+writes it only when it is the lineup that was re-checked, numbers included.
 """
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 from .check import CheckResult, check
 from .errors import LineupError
-from .fields import Fields
+from .fields import Fields, Within
 from .filters import (
     DEFAULT_FLOOR_DB,
     DEFAULT_Q_CAPACITOR,
@@ -48,6 +51,12 @@ EDGE_FACTOR = 1.1
 # Passband loss at a carrier the edge placement allows (dB): heat in the filter and
 # lost output power, which an engineer would not accept beyond a few tenths of a dB.
 MAX_PASSBAND_LOSS_DB = 0.3
+# The margin every product must keep (README, "Plausible values").  A negative target
+# would accept products above their limit and call the lineup fixed; beyond 60 dB no
+# planning margin is meant (common practice, no source).
+MARGIN_TARGET = Within(
+    "a margin target", 0.0, 60.0, "dB", "a negative target accepts products above their limit"
+)
 FAMILIES_TRIED = (("chebyshev", "0.1 dB"), ("butterworth", None))
 STAGE_NAME = "remedy filter"
 
@@ -161,6 +170,8 @@ def remedy(
     floor_db : float or None
         The proposed filter's stopband floor (dB; ``None``: the ideal ladder).
     """
+    if margin_db not in MARGIN_TARGET:
+        raise LineupError(f"{margin_db:g} dB: {MARGIN_TARGET.expected()}", field="--margin")
     before = check(lineup)
     needed = rejection_needed(before, margin_db)
     position = _position(lineup, at)
@@ -204,6 +215,7 @@ def remedy(
             )
         )
     parts = _parts_keys(q_inductor, q_capacitor, floor_db)
+    name = _free_name(lineup)
 
     tried = []
     for order in range(1, MAX_FILTER_ORDER + 1):
@@ -214,7 +226,7 @@ def remedy(
             shape = _shape(kind, family, order, lo, hi, edge_factor, max_loss_db)
             rip = f', ripple = "{ripple}"' if ripple else ""
             snippet = (
-                f'[[stage]]\nkind = "filter"\nname = "{STAGE_NAME}"\n'
+                f'[[stage]]\nkind = "filter"\nname = "{name}"\n'
                 f'prototype = {{ family = "{family}", {shape}, order = {order}{rip}, {parts} }}\n'
             )
             flt = _filter_from_snippet(snippet, lineup)
@@ -284,55 +296,116 @@ def _position(lineup, at: str | None) -> int:
     return amps[-1] if amps else len(lineup.stages)
 
 
+def _free_name(lineup) -> str:
+    """``STAGE_NAME``, numbered when the lineup has a stage of that name already (a lineup
+    remedied before): stage names must be unique, or the written file would not load."""
+    used = {s.name for s in lineup.stages}
+    name, k = STAGE_NAME, 1
+    while name in used:
+        k += 1
+        name = f"{STAGE_NAME} {k}"
+    return name
+
+
 def _filter_from_snippet(snippet: str, lineup) -> Filter:
     import tomllib
 
     table = tomllib.loads(snippet)["stage"][0]
     context = LoadContext(r_ohm=lineup.r_ohm, base_dir=lineup.source.parent if lineup.source else Path("."))
-    f = Fields(table, "remedy", f"stage {STAGE_NAME!r}")
+    f = Fields(table, "remedy", f"stage {table['name']!r}")
     f.raw("kind")
     return Filter.from_fields(f, context)
 
 
-def write_fixed(lineup, found: Remedy, path) -> Path:
+def write_fixed(lineup, found: Remedy, path):
     """Write the lineup file with the remedy's filter inserted (atomically).
 
-    The new file must sit in the lineup's folder when the lineup refers to other
-    files by relative path (Touchstone data, rule files): they would not be found
-    from elsewhere.
+    The file is edited as a TOML document (:func:`spurplan.lineup_edit.insert_stage`):
+    the filter's table goes into the ``stage`` array at ``found.position``, everything
+    else stays as the user wrote it.  Before anything is written the new document is
+    read back with the project's own loader and must be the lineup that was checked:
+    the same stages in the same order, the same filter, and the same re-check numbers
+    (so the numbers remedy prints are the written file's).  Relative data paths are
+    rewritten when the file goes to another folder.  Any mismatch is a one-line
+    :class:`~spurplan.errors.LineupError` and nothing is written; over the input
+    itself the write is atomic, so the input is intact on any failure.
+
+    Returns
+    -------
+    EditedLineup
+        What was written (``moved`` lists the rewritten data paths).
     """
+    from .errors import SpurplanError
+    from .lineup_edit import insert_stage
+    from .lineup_file import from_dict
     from .outputs import write_atomic
 
-    source = Path(lineup.source)
     target = Path(path)
-    text = source.read_text(encoding="utf-8")
-    refers = re.search(r"^\s*(touchstone|files)\s*=", text, flags=re.MULTILINE)
-    if refers and target.resolve().parent != source.resolve().parent:
+    if not found.found:
+        raise LineupError("no filter was found: nothing to write", file=str(target), field="--write")
+    if lineup.source is None:
         raise LineupError(
-            f"{target}: the lineup refers to files by relative path ('{refers.group(1)}'): expected --write "
-            f"to name a file in {source.resolve().parent}",
+            "the lineup was not read from a file: expected a lineup file to edit",
+            file=str(target),
             field="--write",
         )
-    return write_atomic(target, insert_stage(text, found.position, found.snippet))
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():  # before re-reading: data paths would be looked for there
+        raise LineupError(
+            f"the folder {folder} does not exist: expected an existing folder",
+            file=str(target),
+            field="--write",
+        )
+    edited = insert_stage(lineup.source, target, found.position, found.snippet)
+    try:
+        written = from_dict(edited.doc, name=str(target), base_dir=target.parent, source=target)
+        outcome = check(written)
+    except SpurplanError as exc:
+        raise LineupError(
+            f"the lineup with the filter would not load ({exc}): nothing written",
+            file=str(target),
+            field="--write",
+        ) from None
+    _same_as_checked(written, outcome, found, target)
+    write_atomic(target, edited.data)
+    return edited
 
 
-_TABLE_HEADER = re.compile(r"^\s*\[")
-_STAGE_HEADER = re.compile(r"^\s*\[\[\s*stage\s*\]\]")
+def _same_as_checked(written, outcome: CheckResult, found: Remedy, target: Path) -> None:
+    """Refuse unless ``written`` (the file to be written, as loaded) is what remedy checked."""
+    pos = found.position
+    checked = (*found.lineup.stages[:pos], found.filter, *found.lineup.stages[pos:])
+
+    def stages(lu_stages) -> list:
+        return [(s.name, type(s).__name__.lower()) for s in lu_stages]
+
+    def refuse(what: str) -> LineupError:
+        return LineupError(f"{what}: nothing written", file=str(target), field="--write")
+
+    if stages(written.stages) != stages(checked):
+        names = ", ".join(f"{n!r}" for n, _ in stages(written.stages))
+        raise refuse(f"the file would hold the stages {names}, not the lineup that was checked")
+    if getattr(written.stages[pos], "prototype", None) != found.filter.prototype:
+        raise refuse(f"stage {pos + 1} would not be the filter that was checked")
+    if not _same_numbers(outcome, found.outcome):
+        raise refuse(
+            f"the file re-checks to a worst margin of {outcome.worst_margin_db} dB, not the "
+            f"{found.outcome.worst_margin_db} dB of the lineup that was checked"
+        )
 
 
-def insert_stage(text: str, position: int, snippet: str) -> str:
-    """Lineup file text with ``snippet`` inserted as the stage after ``position`` stages."""
-    lines = text.splitlines(keepends=True)
-    headers = [i for i, line in enumerate(lines) if _STAGE_HEADER.match(line)]
-    if position < len(headers):
-        at = headers[position]
-    else:
-        if not headers:
-            raise LineupError("no [[stage]] table to insert after: expected a lineup with stages")
-        last = headers[-1]
-        later = [i for i in range(last + 1, len(lines)) if _TABLE_HEADER.match(lines[i])]
-        at = later[0] if later else len(lines)
-    block = snippet if snippet.endswith("\n") else snippet + "\n"
-    if at > 0 and lines[at - 1].strip():
-        block = "\n" + block
-    return "".join(lines[:at]) + block + "\n" + "".join(lines[at:])
+def _same_numbers(a: CheckResult, b: CheckResult, tol_db: float = 1e-9) -> bool:
+    """The same verdict and margins (dB) row by row, and the same carrier level."""
+
+    def close(x, y) -> bool:
+        return (x is None and y is None) or (x is not None and y is not None and abs(x - y) <= tol_db)
+
+    ra, rb = a.rows["margin_db"], b.rows["margin_db"]
+    return (
+        a.passed == b.passed
+        and close(a.worst_margin_db, b.worst_margin_db)
+        and close(a.carrier_dbm, b.carrier_dbm)
+        and a.rows["label"] == b.rows["label"]
+        and len(ra) == len(rb)
+        and all(close(x, y) for x, y in zip(ra, rb, strict=True))
+    )
