@@ -12,6 +12,7 @@ from pathlib import Path
 
 import numpy as np
 
+from . import escaping
 from .errors import LineupError, UnitError
 from .fields import Fields
 from .filters import describe_parts
@@ -96,7 +97,9 @@ class FilterView:
         net = self.stage.network(f)
         net.frequency.unit = "MHz"
         text = net.write_touchstone(return_string=True, skrf_comment=False)
-        header = f"! {self.stage.name}: written by spurplan (planning estimate, not a measurement)\n"
+        # A comment is one line: a name's line breaks or control characters must not end it.
+        name = " ".join(escaping.terminal(self.stage.name).split())
+        header = f"! {name}: written by spurplan (planning estimate, not a measurement)\n"
         return write_atomic(path, header + text)
 
 

@@ -1,7 +1,9 @@
 """Plain-text tables, CSV and JSON from column dicts (no pandas on the CLI path).
 
 Every command that reports rows offers the same three forms with the same columns
-(design notes section 7).
+(design notes section 7).  Free text in cells is escaped for each medium by
+:mod:`spurplan.escaping`: terminal-safe in text tables, formulas neutralised in CSV,
+literal in Markdown; JSON escapes everything non-printable itself.
 """
 
 from __future__ import annotations
@@ -10,6 +12,8 @@ import csv
 import io
 import json
 import math
+
+from .escaping import csv_cell, markdown, terminal
 
 
 def _cell(value, fmt: str | None) -> str:
@@ -37,10 +41,14 @@ def text_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]
         Data by column name.
     spec : list of (column, header, format)
         Which columns to show, their headers (with units) and number formats.
+
+    Cells are escaped with :func:`spurplan.escaping.terminal` before the widths are
+    measured, so a name with control characters can neither act on the terminal nor
+    break the alignment.
     """
-    header = [h for _, h, _ in spec]
+    header = [terminal(h) for _, h, _ in spec]
     n = len(next(iter(columns.values()), []))
-    body = [[_cell(columns[c][i], fmt) for c, _, fmt in spec] for i in range(n)]
+    body = [[terminal(_cell(columns[c][i], fmt)) for c, _, fmt in spec] for i in range(n)]
     widths = [max(len(h), *(len(r[j]) for r in body)) if body else len(h) for j, h in enumerate(header)]
     numeric = [all(_is_number(r[j]) for r in body) if body else False for j in range(len(header))]
 
@@ -62,11 +70,15 @@ def _is_number(text: str) -> bool:
 
 
 def to_csv(columns: dict[str, list]) -> str:
-    """CSV with a header row; lists (mixing vectors) are written space-separated."""
+    """CSV with a header row; lists (mixing vectors) are written space-separated.
+
+    Numbers are written as numbers; a text cell that a spreadsheet would take for a
+    formula is neutralised (:func:`spurplan.escaping.csv_cell`).
+    """
     buf = io.StringIO()
     writer = csv.writer(buf, lineterminator="\n")
     names = list(columns)
-    writer.writerow(names)
+    writer.writerow([csv_cell(c) for c in names])
     n = len(next(iter(columns.values()), []))
     for i in range(n):
         writer.writerow([_csv_cell(columns[c][i]) for c in names])
@@ -75,10 +87,10 @@ def to_csv(columns: dict[str, list]) -> str:
 
 def _csv_cell(value):
     if isinstance(value, list):
-        return " ".join(str(v) for v in value)
+        return csv_cell(" ".join(str(v) for v in value))
     if value is None:
         return ""
-    return value
+    return csv_cell(value)
 
 
 def rows_of(columns: dict[str, list]) -> list[dict]:
@@ -89,9 +101,13 @@ def rows_of(columns: dict[str, list]) -> list[dict]:
 
 
 def to_json(summary: dict, rows_key: str, columns: dict[str, list]) -> str:
-    """``{"summary": ..., rows_key: [...]}`` with infinities written as null."""
+    """``{"summary": ..., rows_key: [...]}`` with infinities written as null.
+
+    ``ensure_ascii`` writes every control, format (bidi) and non-ASCII character of a
+    name as a ``\\uXXXX`` escape, so the JSON text itself holds printable ASCII only.
+    """
     doc = {"summary": summary, rows_key: rows_of(columns)}
-    return json.dumps(_finite(doc), indent=2) + "\n"
+    return json.dumps(_finite(doc), indent=2, ensure_ascii=True) + "\n"
 
 
 def _finite(value):
@@ -123,11 +139,15 @@ def html_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]
 
 
 def markdown_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]) -> str:
-    """A Markdown pipe table of the same columns as :func:`text_table`."""
-    header = [h for _, h, _ in spec]
+    """A Markdown pipe table of the same columns as :func:`text_table`.
+
+    Every cell is literal text (:func:`spurplan.escaping.markdown`): no markup, link,
+    image or ``|`` from a name reaches the table's structure.
+    """
+    header = [markdown(h) for _, h, _ in spec]
     n = len(next(iter(columns.values()), []))
     lines = ["| " + " | ".join(header) + " |", "|" + "|".join("---" for _ in header) + "|"]
     for i in range(n):
-        cells = [_cell(columns[c][i], fmt).replace("|", "\\|") for c, _, fmt in spec]
+        cells = [markdown(_cell(columns[c][i], fmt)) for c, _, fmt in spec]
         lines.append("| " + " | ".join(cells) + " |")
     return "\n".join(lines) + "\n"

@@ -1,12 +1,17 @@
 """Figures. Plotting lives here only; everything returns a matplotlib Figure.
 
 matplotlib is imported inside each function (with the non-interactive Agg
-backend), so that the library and the CLI start without it.
+backend), so that the library and the CLI start without it.  Every text drawn that
+holds a name from a user's file (lineup, stage, band) passes
+:func:`spurplan.escaping.plot_text`, so that it is drawn literally, never as mathtext,
+and shortened, so that a long name cannot squeeze the axes away.
 """
 
 from __future__ import annotations
 
 import numpy as np
+
+from .escaping import plot_text
 
 
 def _pyplot():
@@ -53,14 +58,16 @@ def filter_response(stage, marks: dict[str, list], *, points: int = 2000, size_i
             at = 20 * np.log10(np.abs(stage.response(marked)))
         ax.plot(marked / scale, at, "o", color="tab:red", ms=4, label="products")
         for x, y, text in zip(marked / scale, at, marks.get("label", []), strict=False):
-            ax.annotate(text, (x, y), textcoords="offset points", xytext=(3, 4), fontsize=7)
+            ax.annotate(plot_text(text), (x, y), textcoords="offset points", xytext=(3, 4), fontsize=7)
     if rng is not None:
-        ax.set_title(f"{stage.name}: |S21| (data {lo / scale:.4g} to {hi / scale:.4g} {unit})")
+        ax.set_title(f"{plot_text(stage.name)}: |S21| (data {lo / scale:.4g} to {hi / scale:.4g} {unit})")
     else:
         from .filters import describe_parts
 
         proto = stage.prototype
-        ax.set_title(f"{stage.name}: |S21| (synthesized ladder; {describe_parts(proto)})", fontsize=9)
+        ax.set_title(
+            f"{plot_text(stage.name)}: |S21| (synthesized ladder; {describe_parts(proto)})", fontsize=9
+        )
         if proto.floor_db is not None:
             ax.axhline(proto.floor_db, color="grey", ls="--", lw=0.8, label="stopband floor")
     ax.set_xlabel(f"frequency ({unit})")
@@ -116,7 +123,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
         ax.plot(freq[~ok] / scale, level[~ok], "X", color="tab:red", ms=7, label="product FAILS")
         for i in np.nonzero(~ok)[0]:
             ax.annotate(
-                f"{rows['label'][i]} FAIL {rows['margin_db'][i]:+.1f} dB",
+                f"{plot_text(rows['label'][i])} FAIL {rows['margin_db'][i]:+.1f} dB",
                 (freq[i] / scale, level[i]),
                 textcoords="offset points",
                 xytext=(4, 6),
@@ -132,7 +139,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
         ax.text(
             (b.start_hz + min(b.stop_hz, top)) / 2 / scale,
             ymax - 2,
-            b.name,
+            plot_text(b.name),
             rotation=90,
             fontsize=6,
             va="top",
@@ -146,7 +153,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     verdict = "PASS" if outcome.passed else "FAIL"
     margin = outcome.worst_margin_db
     ax.set_title(
-        f"{outcome.result.lineup.name}: {verdict}"
+        f"{plot_text(outcome.result.lineup.name)}: {verdict}"
         + ("" if margin is None else f", worst margin {margin:+.2f} dB")
         + " (planning estimate)"
     )
@@ -194,7 +201,7 @@ def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8
             sweep.level_dbm[:, g],
             color=col,
             lw=1.4,
-            label=f"{sweep.labels[g]} ({sweep.freq_hz[0, g] / 1e6:.4g} MHz)",
+            label=f"{plot_text(sweep.labels[g])} ({sweep.freq_hz[0, g] / 1e6:.4g} MHz)",
         )
         ax.plot(x, sweep.limit_dbm[:, g], color=col, lw=1.0, ls="--")
     ax.plot(x, sweep.output_dbm, color="black", lw=2.0, label="carrier output")
@@ -206,7 +213,7 @@ def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8
         ax.axvline(sweep.max_compliant_input_dbm, color="tab:red", lw=1.5)
         ax.annotate(
             f"highest compliant drive {sweep.max_compliant_input_dbm:+.2f} dBm in\n"
-            f"({sweep.max_compliant_output_dbm:+.2f} dBm out; {sweep.limiting['label']} fails above)",
+            f"({sweep.max_compliant_output_dbm:+.2f} dBm out; {plot_text(sweep.limiting['label'])} fails above)",
             (sweep.max_compliant_input_dbm, ax.get_ylim()[1]),
             textcoords="offset points",
             xytext=(6, -30),
@@ -215,7 +222,7 @@ def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8
         )
     ax.set_xlabel("drive: strongest carrier at the input (dBm)")
     ax.set_ylabel("level at the output (dBm); dashed: each product's limit")
-    ax.set_title(f"{sweep.lineup.name}: products against drive (planning estimate)")
+    ax.set_title(f"{plot_text(sweep.lineup.name)}: products against drive (planning estimate)")
     ax.grid(True, alpha=0.35)
     ax.legend(loc="lower right", fontsize=7, ncols=2)
     return fig
@@ -243,7 +250,7 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
             ax.text(
                 xc[0] / sx,
                 (b.start_hz + min(b.stop_hz, top)) / 2 / sy,
-                b.name,
+                plot_text(b.name),
                 fontsize=6,
                 va="center",
                 color="tab:brown",
@@ -253,7 +260,7 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
         f = sweep.freq_hz[:, g]
         ax.plot(xc / sx, f / sy, color="tab:blue", lw=1.0)
         ax.annotate(
-            str(labels[-1, g]),
+            plot_text(labels[-1, g]),
             (xc[-1] / sx, f[-1] / sy),
             fontsize=7,
             xytext=(3, 0),
@@ -267,7 +274,7 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
     ax.set_xlabel(f"{'LO' if sweep.lineup.mixers else 'carrier'} frequency ({ux})")
     ax.set_ylabel(f"product frequency ({uy}); red: the product fails")
     verdict = "every channel passes" if not sweep.failing else f"{len(sweep.failing)} failing range(s)"
-    ax.set_title(f"{sweep.lineup.name}: tuning sweep, {verdict} (planning estimate)")
+    ax.set_title(f"{plot_text(sweep.lineup.name)}: tuning sweep, {verdict} (planning estimate)")
     ax.grid(True, alpha=0.35)
     return fig
 
@@ -292,7 +299,8 @@ def spectrum_figure(result, stage=None, size_px=(1200, 600), dpi: int = 100):
     ax.set_ylim(bottom, float(level.max()) + 5 if level.size else 0)
     ax.set_xlabel(f"frequency ({unit})")
     ax.set_ylabel("level (dBm)")
-    ax.set_title(f"{result.lineup.name}: spectrum at {stage or 'the output'} (planning estimate)")
+    where = plot_text(stage) if stage else "the output"
+    ax.set_title(f"{plot_text(result.lineup.name)}: spectrum at {where} (planning estimate)")
     ax.grid(True, alpha=0.35)
     ax.legend(loc="upper right", fontsize=8)
     return fig
@@ -334,12 +342,16 @@ def spur_figure(chart, lo_span_hz, size_px=(1200, 700), dpi: int = 100, points: 
         wanted = rows["wanted"][i]
         ax.plot(lo / sx, f / sy, color="black" if wanted else "tab:blue", lw=2.0 if wanted else 1.0)
         ax.annotate(
-            rows["label"][i], (lo[-1] / sx, f[-1] / sy), fontsize=7, xytext=(3, 0), textcoords="offset points"
+            plot_text(rows["label"][i]),
+            (lo[-1] / sx, f[-1] / sy),
+            fontsize=7,
+            xytext=(3, 0),
+            textcoords="offset points",
         )
     ax.axvline(mixer.lo_freq_hz / sx, color="tab:red", lw=1.0, ls="--")
     ax.set_xlabel(f"LO frequency ({ux})")
-    ax.set_ylabel(f"product frequency ({uy}); green: passband of {chart.filter_name or '-'}")
-    ax.set_title(f"{chart.lineup.name}: mixer products against LO (planning estimate)")
+    ax.set_ylabel(f"product frequency ({uy}); green: passband of {plot_text(chart.filter_name or '-')}")
+    ax.set_title(f"{plot_text(chart.lineup.name)}: mixer products against LO (planning estimate)")
     ax.set_ylim(0, top * 1.05 / sy)
     ax.grid(True, alpha=0.35)
     return fig
@@ -375,7 +387,7 @@ def yield_figure(result, size_px=(1000, 600), dpi: int = 100):
     ax.axvline(0.0, color="black", lw=1.2)
     lo, hi = result.interval
     ax.set_title(
-        f"{result.lineup.name}: yield {100 * result.yield_fraction:.2f} % "
+        f"{plot_text(result.lineup.name)}: yield {100 * result.yield_fraction:.2f} % "
         f"(95 % Wilson {100 * lo:.2f}-{100 * hi:.2f} %, {result.samples} samples; planning estimate)"
     )
     ax.set_xlabel("worst margin of a sample (dB)")
