@@ -66,6 +66,14 @@ rejection (conservative); interpolating Re/Im cuts the chord of the phase rotati
 and loses dB in the passband, and scikit-rf's rational fit is wild on sparse data
 (see the project's scikit-rf notes).  Outside the data nothing is known: see
 :data:`BEYOND_POLICIES`.
+
+Between two points the value lies between their dB values (a linear interpolant
+never leaves the interval of its end values; any numerical analysis text), so it is
+never below the lower neighbour, and no table value is below :data:`S_FLOOR_DB`.
+Where a chord in dB is not conservative: across a null (a notch), where
+``|S21|`` grows like ``|f - f0|`` and its dB curve lies above the chord, a coarse
+grid reads more rejection beside the null than the part has; such files need
+points close to the null.
 """
 
 from __future__ import annotations
@@ -94,6 +102,14 @@ DEFAULT_FLOOR_DB = -80.0
 # A floor within 20 dB of the passband would reshape the passband itself: not a filter.
 # Below -300 dB it is no floor (the ratio range of the lineup files).
 FLOOR_RANGE_DB = (-300.0, -20.0)
+# The lowest |S| (dB) a data table holds.  Below it no instrument measures (vector
+# network analysers reach some 120 to 150 dB of dynamic range; common practice, no
+# source), so a lower value in a file is held here: the lookup then reads less
+# rejection than the file states, never more, and a dB chord from it to a neighbour
+# cannot start from a number that is an artefact (-400 dB from an exact zero put 2f1
+# 27 dB under its limit beside a notch).  Exact zeros of the forward transmission are
+# refused before this (stages.touchstone).
+S_FLOOR_DB = -200.0
 # Frequencies below this (Hz) are evaluated here: 0 Hz would make capacitors open.
 _MIN_EVAL_HZ = 1.0
 _OPEN_CONDUCTANCE_S = 1e-15
@@ -392,10 +408,15 @@ class SParameterTable:
 
     @classmethod
     def from_s21(cls, freq_hz, s21, beyond: str = "error") -> SParameterTable:
+        """The table of ``s21`` (complex, at ``freq_hz`` in Hz), held at :data:`S_FLOOR_DB` from below.
+
+        An exact zero (a perfect match in S11, say) would make the dB table -inf; any
+        value under the floor is held at it, so that the table never shows more
+        rejection than the floor.
+        """
         s21 = np.asarray(s21, dtype=complex)
         with np.errstate(divide="ignore"):
-            # An exact zero (a perfect match in S11, say) would make the dB table -inf.
-            db = np.maximum(20.0 * np.log10(np.abs(s21)), -400.0)
+            db = np.maximum(20.0 * np.log10(np.abs(s21)), S_FLOOR_DB)
         return cls(np.asarray(freq_hz, dtype=float), db, np.unwrap(np.angle(s21)), beyond)
 
     @property

@@ -17,6 +17,7 @@ from __future__ import annotations
 import base64
 import html
 import io
+import re
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -126,22 +127,32 @@ class Report:
         )
 
     def to_markdown(self, made_at: str, figure_dir: str) -> tuple[str, dict[str, bytes]]:
-        """Markdown text and the figure files it refers to (name -> PNG bytes)."""
-        lines = [f"# {self.title}", "", f"**{self.verdict}**", "", f"Report made {made_at}", ""]
-        lines += [f"- {k}: {v}" for k, v in _flat(self.provenance).items()] + [""]
+        """Markdown text and the figure files it refers to (name -> PNG bytes).
+
+        Every text is literal (:func:`spurplan.escaping.markdown`): names and sources
+        from users' files cannot add HTML, links, images or table cells; the only
+        markup is the report's own, and the only images are its figures, by relative
+        percent-encoded paths.
+        """
+        from urllib.parse import quote
+
+        from .escaping import markdown as md
+
+        lines = [f"# {md(self.title)}", "", f"**{md(self.verdict)}**", "", f"Report made {md(made_at)}", ""]
+        lines += [f"- {md(k)}: {md(v)}" for k, v in _flat(self.provenance).items()] + [""]
         figures = {}
         for sec in self.sections:
-            lines += [f"## {sec.title}", ""]
+            lines += [f"## {md(sec.title)}", ""]
             for kind, value in sec.parts:
                 if kind in ("text", "caution"):
-                    lines += [("> " if kind == "caution" else "") + value, ""]
+                    lines += [("> " if kind == "caution" else "") + md(value), ""]
                 elif kind == "table":
-                    lines += [value[1], ""]
+                    lines += [value[1], ""]  # formatting.markdown_table escapes every cell
                 elif kind == "figure":
                     png, alt = value
                     name = f"figure-{len(figures) + 1}.png"
                     figures[name] = png
-                    lines += [f"![{alt}]({figure_dir}/{name})", ""]
+                    lines += [f"![{md(alt)}]({quote(f'{figure_dir}/{name}')})", ""]
         return "\n".join(lines), figures
 
 
@@ -438,23 +449,30 @@ def _cautions_section(outcome) -> Section:
 def write_report(lineup, path, now: datetime | None = None) -> Path:
     """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it."""
     from .errors import LineupError
+    from .outputs import check_folder, check_target, write_with_folder
 
-    path = Path(path)
+    # Every refusal of the target comes before the (slow) build, and nothing is written then.
+    path = check_target(path)
+    suffix = path.suffix.lower()
+    if suffix not in (".html", ".htm", ".md"):
+        raise LineupError(
+            f"{path}: unknown report format {suffix or '(none)'!r}: expected .html or .md", field="-o"
+        )
+    folder = f"{path.stem}_files"
+    if suffix == ".md":
+        check_folder(path.parent / folder, MARKDOWN_FIGURE)
     made_at = (now or datetime.now(UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
     report = build_report(lineup)
-    suffix = path.suffix.lower()
     if suffix in (".html", ".htm"):
         return write_atomic(path, report.to_html(made_at))
-    if suffix == ".md":
-        folder = f"{path.stem}_files"
-        text, figures = report.to_markdown(made_at, folder)
-        (path.parent / folder).mkdir(parents=True, exist_ok=True)
-        for name, png in figures.items():
-            write_atomic(path.parent / folder / name, png)
-        return write_atomic(path, text)
-    raise LineupError(
-        f"{path}: unknown report format {suffix or '(none)'!r}: expected .html or .md", field="-o"
-    )
+    text, figures = report.to_markdown(made_at, folder)
+    # The figures folder and the text as one unit: figures first, then the text, an
+    # earlier folder replaced only when it holds nothing but earlier figures.
+    return write_with_folder(path, text, folder, figures, MARKDOWN_FIGURE)
+
+
+# Names of the figure files a Markdown report writes beside it (Report.to_markdown).
+MARKDOWN_FIGURE = re.compile(r"figure-\d+\.png")
 
 
 _CSS = """

@@ -28,8 +28,8 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..errors import UnitError
-from ..fields import Fields, existing_file
+from ..errors import LineupError, UnitError
+from ..fields import Fields, existing_file, read_text_file
 from ..filters import (
     DEFAULT_FLOOR_DB,
     DEFAULT_Q_CAPACITOR,
@@ -38,6 +38,7 @@ from ..filters import (
     FLOOR_RANGE_DB,
     MAX_FILTER_ORDER,
     RESPONSES,
+    S_FLOOR_DB,
     Prototype,
     SParameterTable,
     floor_amplitude,
@@ -47,6 +48,7 @@ from ..filters import (
 )
 from ..units import parse_freq_hz, parse_gain_db
 from .base import LoadContext
+from .touchstone import Layout, TouchstoneFault, check_text
 
 # Below this (Hz) a filter edge or bandwidth is a typing mistake, and its element
 # values overflow.
@@ -329,7 +331,7 @@ def read_touchstone(fields: Fields, context: LoadContext):
     if port not in (1, 2) or isinstance(port, bool):
         raise fields.error("input_port", f"{port!r}: expected 1 or 2")
     path = existing_file(context.base_dir, rel, fields, "touchstone")
-    _precheck_touchstone(path, rel, fields)
+    layout = _precheck_touchstone(path, rel, fields, port)
     import skrf
 
     notes = []
@@ -356,6 +358,13 @@ def read_touchstone(fields: Fields, context: LoadContext):
         raise fields.error("touchstone", f"{rel!r}: expected at least 2 strictly increasing frequencies")
     if not np.all(np.isfinite(s)):
         raise fields.error("touchstone", f"{rel!r}: contains NaN or infinite S-parameters")
+    differs = _same_as_read(layout, f, s)
+    if differs is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {differs}")
+    zero = layout.zero_fault()
+    if zero is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {zero}")
+    notes += _floor_note(rel, layout)
     if port == 2:
         s = s[:, ::-1, ::-1]
     s21 = s[:, 1, 0]
@@ -367,17 +376,15 @@ def read_touchstone(fields: Fields, context: LoadContext):
     return SParameterTable.from_s21(f, s21, beyond), _SMatrixTable(f, s, beyond), notes
 
 
-_NUMBER_FORMATS = ("ri", "ma", "db")
+# A Touchstone file larger than this is not a filter measurement (a 2-port at 100,000
+# points is about 10 MB): refused before scikit-rf reads it.
+TOUCHSTONE_MAX_BYTES = 32 * 1024 * 1024
 
 
-def _precheck_touchstone(path, rel: str, fields: Fields) -> None:
-    """Reject what a Touchstone reader would misread silently (version 1 files).
+def _precheck_touchstone(path, rel: str, fields: Fields, input_port: int = 1) -> Layout:
+    """Read the file as data first (:mod:`spurplan.stages.touchstone`); a located error otherwise.
 
-    Every data value a number; 1- and 2-port files one frequency point of
-    ``1 + 2 N^2`` values per line, larger ones whole points over several lines (N from
-    the file's extension); frequencies finite and non-negative in the unit of the
-    option line; magnitudes not negative in MA form (Touchstone file format
-    specification, version 1.1; from memory).
+    Returns what was read, so that scikit-rf's reading can be compared with it.
     """
     import re
 
@@ -385,52 +392,57 @@ def _precheck_touchstone(path, rel: str, fields: Fields) -> None:
         return fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {message}")
 
     try:
-        text = path.read_text(encoding="utf-8", errors="strict")
-    except (OSError, UnicodeDecodeError) as exc:
-        raise bad(f"{exc.__class__.__name__}, expected a text file") from None
+        text = read_text_file(path, "a Touchstone text file", TOUCHSTONE_MAX_BYTES)
+    except LineupError as exc:
+        raise bad(exc.message) from None
     m = re.search(r"\.s(\d+)p$", str(path).lower())
     if m is None:
         raise bad("expected a file name ending in .s2p")
-    ports = int(m.group(1))
-    per_point = 1 + 2 * ports * ports
-    rows, form, unit = [], "ma", 1e9
-    for n, line in enumerate(text.splitlines(), start=1):
-        body = line.split("!", 1)[0].strip()
-        if not body:
-            continue
-        if body.startswith("["):
-            return  # Touchstone 2.0 keywords: leave the layout to the reader
-        if body.startswith("#"):
-            words = body[1:].lower().split()
-            form = next((w for w in words if w in _NUMBER_FORMATS), "ma")
-            unit = next((_UNITS[w] for w in words if w in _UNITS), 1e9)
-            continue
-        values = []
-        for token in body.split():
-            try:
-                values.append(float(token))
-            except ValueError:
-                raise bad(f"line {n}: {token[:40]!r} is not a number") from None
-        if ports <= 2 and len(values) != per_point:
-            raise bad(f"line {n} holds {len(values)} values: expected {per_point} for a {ports}-port file")
-        rows.extend(values)
-    if not rows:
-        raise bad("no data, expected rows of frequency and S-parameters")
-    if len(rows) % per_point:
-        raise bad(
-            f"{len(rows)} values: expected whole frequency points of {per_point} for a {ports}-port file"
+    try:
+        return check_text(text, int(m.group(1)), input_port)
+    except TouchstoneFault as exc:
+        raise bad(str(exc)) from None
+
+
+def _same_as_read(layout: Layout, f: np.ndarray, s: np.ndarray) -> str | None:
+    """Where scikit-rf's reading differs from the pre-check's (``None``: it agrees).
+
+    Points, frequencies and every S-parameter (``s``: ``(n, 2, 2)`` as read, before
+    any port swap) must agree to 1e-9 relative (values under 1e-12, -240 dB, count
+    as equal), so that a silent misreading (a data order mixed up, rows skipped or
+    added, memory never written) is an error, not a number.
+    """
+    if len(f) != len(layout.freq_hz):
+        return f"scikit-rf read {len(f)} points where the file holds {len(layout.freq_hz)}"
+    off = ~np.isclose(f, layout.freq_hz, rtol=1e-9, atol=0)
+    if off.any():
+        k = int(np.argmax(off))
+        return f"scikit-rf read {f[k]:g} Hz at line {layout.lines[k]}, where the file gives {layout.freq_hz[k]:g} Hz"
+    if layout.s is None:
+        return None
+    off = ~np.isclose(s, layout.s, rtol=1e-9, atol=1e-12)
+    if off.any():
+        k, i, j = (int(x[0]) for x in np.nonzero(off))
+        return (
+            f"scikit-rf read S{i + 1}{j + 1} = {s[k, i, j]:.6g} at line {layout.lines[k]}, "
+            f"where the file gives {layout.s[k, i, j]:.6g}"
         )
-    data = np.array(rows).reshape(-1, per_point)
-    with np.errstate(over="ignore"):
-        freq = data[:, 0] * unit
-    wrong = ~(np.isfinite(freq) & (freq >= 0))
-    if wrong.any():
-        raise bad(f"frequency {data[wrong, 0][0]:g}: expected finite frequencies >= 0")
-    if form == "ma" and np.any(data[:, 1::2] < 0):
-        raise bad("negative magnitude in MA data, expected magnitudes >= 0 (is the file RI?)")
+    return None
 
 
-_UNITS = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
+def _floor_note(rel: str, layout: Layout) -> list[str]:
+    """A note for forward transmission below :data:`S_FLOOR_DB` (held there by the lookup)."""
+    if layout.forward_db is None:
+        return []
+    low = layout.forward_db < S_FLOOR_DB
+    if not low.any():
+        return []
+    k = int(np.argmin(layout.forward_db))
+    return [
+        f"{rel}: |{layout.forward}| below {S_FLOOR_DB:g} dB at {int(low.sum())} point(s) (lowest "
+        f"{layout.forward_db[k]:.4g} dB at line {layout.lines[k]}): held at {S_FLOOR_DB:g} dB, "
+        "less rejection than the file states, never more"
+    ]
 
 
 @dataclass(frozen=True)
