@@ -39,12 +39,23 @@ class _Group(click.Group):
     """Maps every input error to one line on stderr and exit status 2."""
 
     def main(self, *args, **kwargs):
+        from .escaping import terminal_streams
+
+        # Everything printed (tables, verdicts, notes, errors) passes the terminal escaping
+        # here, once: names from users' files cannot act on the terminal or hide text.
+        with terminal_streams():
+            return self._main(*args, **kwargs)
+
+    def _main(self, *args, **kwargs):
         from .errors import SpurplanError
 
         try:
             return super().main(*args, standalone_mode=False, **kwargs)
         except click.exceptions.Exit as exc:
             sys.exit(exc.exit_code)
+        except _Interrupted:
+            click.echo("spurplan: interrupted", err=True)
+            sys.exit(130)  # 128 + SIGINT, as shells report it (common practice, no source)
         except click.exceptions.Abort:
             click.echo("spurplan: aborted", err=True)
             sys.exit(130)
@@ -59,6 +70,18 @@ class _Group(click.Group):
             # One line, whatever the message holds (a name with a line break, say).
             click.echo("spurplan: error: " + " ".join(str(exc).split()), err=True)
             sys.exit(2)
+
+    def invoke(self, ctx):
+        # Ctrl-C in a command: click would print an empty line and "Aborted!"; spurplan
+        # prints one line (in _main) and exits 130.
+        try:
+            return super().invoke(ctx)
+        except KeyboardInterrupt:
+            raise _Interrupted() from None
+
+
+class _Interrupted(Exception):
+    """A command was interrupted (SIGINT); not a KeyboardInterrupt, so click passes it on."""
 
 
 @click.group(cls=_Group, epilog=EPILOG)
@@ -90,6 +113,23 @@ def _lineup_arg(f):
     return click.argument("lineup", required=False, type=click.Path(dir_okay=False))(f)
 
 
+class _OutputFile(click.Path):
+    """An output file, refused before any work when it is no file to write (outputs.check_target)."""
+
+    def __init__(self):
+        super().__init__(dir_okay=False)
+
+    def convert(self, value, param, ctx):
+        from .outputs import OutputError, check_target
+
+        value = super().convert(value, param, ctx)
+        try:
+            check_target(value)
+        except OutputError as exc:
+            self.fail(str(exc), param, ctx)
+        return value
+
+
 def _format_option(f):
     return click.option("--format", "fmt", type=click.Choice(FORMATS), default="table", show_default=True)(f)
 
@@ -101,7 +141,7 @@ def _combine_option(f):
 
 
 def _plot_option(help_text: str):
-    return click.option("--plot", "plot_file", type=click.Path(dir_okay=False), help=help_text)
+    return click.option("--plot", "plot_file", type=_OutputFile(), help=help_text)
 
 
 def _plot_size_option(f):
@@ -206,12 +246,8 @@ def budget(lineup, fmt):
 @click.option("--q-capacitor", type=float, help="Unloaded Q of the capacitors.")
 @click.option("--impedance", default="50 ohm", show_default=True, help="System impedance for a prototype.")
 @click.option("--carrier", help="With a prototype: show the response at the harmonics of this frequency.")
-@click.option(
-    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw |S21| to this PNG/SVG/PDF file."
-)
-@click.option(
-    "--touchstone", "ts_file", type=click.Path(dir_okay=False), help="Write the network to this .s2p file."
-)
+@click.option("--plot", "plot_file", type=_OutputFile(), help="Draw |S21| to this PNG/SVG/PDF file.")
+@click.option("--touchstone", "ts_file", type=_OutputFile(), help="Write the network to this .s2p file.")
 @_format_option
 def filter_cmd(
     lineup,
@@ -251,6 +287,10 @@ def filter_cmd(
             "q_inductor": q_inductor,
             "q_capacitor": q_capacitor,
         }
+        if carrier is not None:
+            from .fields import CARRIER_FREQ
+
+            _parse("freq", carrier, "--carrier", CARRIER_FREQ)  # "0 Hz" would show nothing
         view = prototype_view({k: v for k, v in spec.items() if v is not None}, impedance, carrier)
     else:
         if stage is None:
@@ -370,18 +410,25 @@ def _progress(total: int, label: str):
 
     if total < 4 * 2000 or not sys.stderr.isatty():
         return contextlib.nullcontext(None)
-    return click.progressbar(length=total, label=label, file=sys.stderr)
+    from .escaping import raw_stream
+
+    # The bar's own carriage returns and cursor codes go to the real stream.
+    return click.progressbar(length=total, label=label, file=raw_stream(sys.stderr))
 
 
-def _parse(kind, text, option):
+def _parse(kind, text, option, within=None):
+    """``text`` read as a ``kind`` quantity, within ``within`` (a ``fields.Within``) if given."""
     from .errors import UnitError
     from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
 
     parse = {"power": parse_power_dbm, "freq": parse_freq_hz, "db": parse_gain_db}[kind]
     try:
-        return parse(text)
+        value = parse(text)
     except UnitError as exc:
         raise click.BadParameter(str(exc), param_hint=option) from None
+    if within is not None and value not in within:
+        raise click.BadParameter(f"{text!r}: {within.expected()}", param_hint=option)
+    return value
 
 
 @main.command(epilog=EPILOG)
@@ -392,9 +439,7 @@ def _parse(kind, text, option):
 @click.option("--target-output", is_flag=True, help="Start/stop are the carrier's output power instead.")
 @_format_option
 @_combine_option
-@click.option(
-    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw products and limits against drive."
-)
+@click.option("--plot", "plot_file", type=_OutputFile(), help="Draw products and limits against drive.")
 @_plot_size_option
 def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
@@ -516,7 +561,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
 @click.option(
     "--write",
     "write_file",
-    type=click.Path(dir_okay=False),
+    type=_OutputFile(),
     help="Write the lineup with the filter inserted to this file.",
 )
 @click.option(
@@ -546,11 +591,11 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     """
     from .filters import parts_text
     from .formatting import text_table, to_json
+    from .remedy import MARGIN_TARGET, write_fixed
     from .remedy import remedy as find_remedy
-    from .remedy import write_fixed
     from .stages.filter import parse_floor_db, parse_q
 
-    target = _parse("db", margin, "--margin")
+    target = _parse("db", margin, "--margin", MARGIN_TARGET)
     parts = {}
     for key, text, option in (
         ("q_inductor", q_inductor, "--q-inductor"),
@@ -574,8 +619,8 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
         raise click.BadParameter(str(exc), param_hint="--floor") from None
     lu = _load(lineup)
     found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
-    if write_file and found.found:
-        write_fixed(lu, found, write_file)
+    # Written before anything is printed: a refusal is one error line and nothing else.
+    edited = write_fixed(lu, found, write_file) if write_file and found.found else None
     if fmt == "json":
         click.echo(to_json(found.summary(), "needed", found.needed), nl=False)
         sys.exit(0 if found.found or not found.needed["freq_hz"] else 1)
@@ -608,8 +653,11 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
         f"{worst['freq_hz'][i] / 1e6:.6f} MHz); carrier at the output {out.carrier_dbm:+.2f} dBm "
         f"(was {found.before.carrier_dbm:+.2f} dBm)"
     )
-    if write_file:
-        click.echo(f"wrote {write_file}")
+    if edited is not None:
+        moved = "; ".join(f"{old!r} -> {new!r}" for old, new in edited.moved)
+        click.echo(
+            f"wrote {write_file}" + (f" (data paths rewritten for its folder: {moved})" if moved else "")
+        )
     click.echo(PLANNING_NOTICE)
 
 
@@ -620,7 +668,7 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     "--output",
     "out_file",
     required=True,
-    type=click.Path(dir_okay=False),
+    type=_OutputFile(),
     help="FILE.html (self-contained) or FILE.md (figures beside it).",
 )
 def report(lineup, out_file):
@@ -668,12 +716,20 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
         rows = {c: [vals[i] for i in keep] for c, vals in rows.items()}
     if plot_file:
         from .plots import save_spur_plot
+        from .stages.mixer import LO_FREQ
+        from .units import format_freq
 
         lo = chart.mixer.lo_freq_hz
         span = (
-            _parse("freq", lo_start, "--lo-start") if lo_start else 0.8 * lo,
-            _parse("freq", lo_stop, "--lo-stop") if lo_stop else 1.2 * lo,
+            _parse("freq", lo_start, "--lo-start", LO_FREQ) if lo_start else 0.8 * lo,
+            _parse("freq", lo_stop, "--lo-stop", LO_FREQ) if lo_stop else 1.2 * lo,
         )
+        if not span[0] < span[1]:
+            raise click.BadParameter(
+                f"LO range {format_freq(span[0])} to {format_freq(span[1])}: expected --lo-start below "
+                f"--lo-stop (defaults: the LO {format_freq(lo)} -20 % and +20 %)",
+                param_hint="--lo-start/--lo-stop",
+            )
         save_spur_plot(chart, span, plot_file, size)
     if not _machine_output(fmt, chart.summary(), "products", rows):
         m = chart.mixer
@@ -699,7 +755,11 @@ CAUSE_TABLE = [
 @_lineup_arg
 @click.option("--samples", type=click.IntRange(1, 10_000_000), default=10_000, show_default=True)
 @click.option(
-    "--seed", type=int, default=0, show_default=True, help="Same seed, same samples, wherever they run."
+    "--seed",
+    type=click.IntRange(0, 2**64 - 1),
+    default=0,
+    show_default=True,
+    help="Same seed, same samples, wherever they run (0 to 2^64 - 1; numpy seeds are non-negative).",
 )
 @click.option(
     "--channels",
@@ -714,17 +774,17 @@ CAUSE_TABLE = [
     "--workers", type=click.IntRange(1, 256), help="Start a local Dask cluster with this many workers."
 )
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
-@click.option(
-    "--plot", "plot_file", type=click.Path(dir_okay=False), help="Draw the histogram of worst margins."
-)
+@click.option("--plot", "plot_file", type=_OutputFile(), help="Draw the histogram of worst margins.")
 def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
     """Monte Carlo yield of LINEUP over its part tolerances and corners."""
     from .formatting import text_table, to_json
-    from .montecarlo import run_yield
+    from .montecarlo import check_scheduler_address, run_yield
     from .sweep import read_channels
 
-    if scheduler and workers:
+    if scheduler is not None and workers is not None:
         raise click.UsageError("give either --scheduler or --workers")
+    if scheduler is not None:
+        scheduler = check_scheduler_address(scheduler)  # '' is an error, not "in process"
     lu = _load(lineup)
     channels = read_channels(channel_file) if channel_file else None
     with _progress(samples, "yield") as bar:

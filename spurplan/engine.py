@@ -242,14 +242,17 @@ class Propagation:
             part times the responses of stages k+1 .. node.  The rows sum to
             ``nodes[node]`` exactly.
         """
-        sources = [self.nodes[0, rows]] + [self.added[i, rows] for i in range(node)]
-        out = []
-        for src, part in enumerate(sources):
-            carried = part
-            for j in range(src, node):
-                carried = carried * self.response[j, rows]
-            out.append(carried)
-        return np.stack(out)
+        first = self.nodes[0, rows]
+        out = np.empty((node + 1, *first.shape), dtype=complex)
+        # From the node back to the input: ``tail`` is the product of the responses of
+        # stages src+1 .. node, grown by one stage per source, so the work is linear in
+        # the number of stages (carrying each source forward on its own was quadratic).
+        tail = np.ones(first.shape, dtype=complex)
+        for src in range(node, 0, -1):
+            out[src] = self.added[src - 1, rows] * tail
+            tail = tail * self.response[src - 1, rows]
+        out[0] = first * tail
+        return out
 
 
 def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:

@@ -12,34 +12,131 @@ from __future__ import annotations
 
 import difflib
 import math
+import os
+import stat
 from collections.abc import Callable
+from dataclasses import dataclass
 from typing import Any
 
 from .errors import LineupError, UnitError
+from .outputs import file_kind  # what a st_mode is, for messages
+
+# Limits on what spurplan reads (README, "Limits").  The largest shipped rule file is
+# 8 kB; 1 MiB is over a hundred times that and parses in about a second even when it
+# is one long array (tomllib, measured), so a TOML file above it is refused before it
+# is read.  Lineup and rule files nest at most five levels (a stage's tolerance of one
+# figure, "{ uniform = ... }"); 32 levels leave room without letting a deeply nested
+# document reach the parser's recursion limit or the readers behind it.
+MAX_TOML_BYTES = 1 << 20
+MAX_TOML_DEPTH = 32
+# A channel file of 200,000 channels (spurplan.sweep.MAX_POINTS) with a comment on each
+# line fits in 8 MiB.
+MAX_CHANNEL_FILE_BYTES = 8 << 20
+
+
+def read_text_file(path, what: str, max_bytes: int) -> str:
+    """The UTF-8 text of a regular file of at most ``max_bytes`` bytes.
+
+    Every input file goes through here, so that what is read is data with limits:
+
+    * only a regular file (a symbolic link is followed) is opened.  A folder, device
+      (``/dev/zero``, ``/dev/urandom``), named pipe or socket is refused from
+      :func:`os.stat`, without a read that could block or never end; the file is then
+      opened with ``O_NONBLOCK`` and checked again with :func:`os.fstat`, so that one
+      swapped in between cannot block either (``O_NONBLOCK`` does not change reads of
+      a regular file: open(2), POSIX);
+    * at most ``max_bytes + 1`` bytes are read, whatever the file claims to hold;
+    * the bytes must be UTF-8 (a byte-order mark is dropped) without NUL characters,
+      which no text format spurplan reads contains.
+
+    Raises
+    ------
+    LineupError
+        One line naming the file, what is wrong and ``what`` was expected
+        (e.g. "a lineup file (TOML)").
+    """
+    name = str(path)
+
+    def refuse(message: str) -> LineupError:
+        return LineupError(f"{message}: expected {what}", file=name)
+
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise refuse("file not found") from None
+    except (OSError, ValueError) as exc:
+        raise refuse(f"cannot read ({exc.__class__.__name__})") from None
+    if not stat.S_ISREG(st.st_mode):
+        raise refuse(f"is {file_kind(st.st_mode)}, not a regular file") from None
+    if st.st_size > max_bytes:
+        raise LineupError(
+            f"is {_bytes(st.st_size)}: expected {what} of at most {_bytes(max_bytes)}", file=name
+        )
+    flags = (
+        os.O_RDONLY | getattr(os, "O_NONBLOCK", 0) | getattr(os, "O_NOCTTY", 0) | getattr(os, "O_BINARY", 0)
+    )
+    try:
+        fd = os.open(path, flags)
+    except (OSError, ValueError) as exc:
+        raise refuse(f"cannot read ({exc.__class__.__name__})") from None
+    with os.fdopen(fd, "rb") as handle:
+        try:
+            mode = os.fstat(handle.fileno()).st_mode
+            if not stat.S_ISREG(mode):
+                raise refuse(f"is {file_kind(mode)}, not a regular file")
+            data = handle.read(max_bytes + 1)
+        except OSError as exc:
+            raise refuse(f"cannot read ({exc.__class__.__name__})") from None
+    if len(data) > max_bytes:
+        raise LineupError(f"is larger than {_bytes(max_bytes)}: expected {what} of at most that", file=name)
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        raise refuse(f"holds a NUL byte at byte {nul} (binary data, not text)")
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise refuse(f"is not UTF-8 text (byte 0x{data[exc.start]:02x} at byte {exc.start})") from None
+
+
+def _bytes(n: int) -> str:
+    """``1 MiB``, ``8 MiB``, ``1.5 MiB``, ``300 bytes``."""
+    return f"{n / 2**20:.4g} MiB" if n >= 2**20 else f"{n} bytes"
 
 
 def read_toml(path, what: str) -> dict:
     """Parse a TOML file; any problem is a one-line LineupError naming the file.
 
-    ``what`` names the kind of file for the message, e.g. "a lineup file".
+    ``what`` names the kind of file for the message, e.g. "a lineup file".  The file is
+    read by :func:`read_text_file` (a regular file of at most :data:`MAX_TOML_BYTES`);
+    a document nested deeper than :data:`MAX_TOML_DEPTH` is refused.
     """
     import tomllib
-    from pathlib import Path
 
     name = str(path)
+    text = read_text_file(path, f"{what} (TOML, UTF-8)", MAX_TOML_BYTES)
+    deep = f"nested deeper than {MAX_TOML_DEPTH} levels: expected {what} (TOML)"
     try:
-        # utf-8-sig: a byte-order mark (some Windows editors write one) is not TOML.
-        text = Path(path).read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise LineupError(f"file not found: expected {what} (TOML)", file=name) from None
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        raise LineupError(
-            f"cannot read ({exc.__class__.__name__}): expected a UTF-8 TOML file", file=name
-        ) from None
-    try:
-        return tomllib.loads(text)
+        doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise LineupError(f"not valid TOML: {exc}{_line_context(text, str(exc))}", file=name) from None
+    except RecursionError:
+        # tomllib parses nested arrays and inline tables recursively.
+        raise LineupError(deep, file=name) from None
+    if _depth_exceeds(doc, MAX_TOML_DEPTH):
+        raise LineupError(deep, file=name)
+    return doc
+
+
+def _depth_exceeds(doc, limit: int) -> bool:
+    """Whether tables and arrays in ``doc`` nest deeper than ``limit`` (walked without recursion)."""
+    todo = [(doc, 1)]
+    while todo:
+        value, depth = todo.pop()
+        if depth > limit:
+            return True
+        children = value.values() if isinstance(value, dict) else value
+        todo.extend((v, depth + 1) for v in children if isinstance(v, (dict, list)))
+    return False
 
 
 def _line_context(text: str, message: str) -> str:
@@ -57,6 +154,70 @@ def _line_context(text: str, message: str) -> str:
     return f": {line[:120]!r}" if line else ""
 
 
+@dataclass(frozen=True)
+class Within:
+    """The physical-sense range of one quantity; a value outside is an input error.
+
+    The unit parsers of :mod:`spurplan.units` only keep numbers finite and inside what
+    float64 and the engine survive (-300 to +100 dBm, ...).  What makes sense depends on
+    what the number means: a saturated power of -300 dBm or a spur 25 dB above the
+    wanted product parses, and then turns into a PASS.  Each reader states the range of
+    the key it reads once, as a ``Within`` passed to :meth:`Fields.quantity` (or to
+    :meth:`Fields.require_within` for a value it derives), so the message and the check
+    cannot drift apart.  The ranges are listed in the README ("Plausible values").
+
+    Attributes
+    ----------
+    what : str
+        The quantity with its article, for the message: ``"a saturated power"``.
+    lo, hi : float
+        Inclusive bounds, in the unit the parser returns (dBm, dB, dBc, dBi, Hz, m).
+    unit : str
+        The unit shown in the message.
+    why : str
+        Why the range stops where it does, when that is not self-evident; shown in
+        parentheses after it.
+    """
+
+    what: str
+    lo: float
+    hi: float
+    unit: str
+    why: str = ""
+
+    def __contains__(self, value) -> bool:
+        return bool(self.lo <= value <= self.hi)
+
+    def expected(self) -> str:
+        """``"expected a saturated power from -50 to +90 dBm"`` (and the reason)."""
+        why = f" ({self.why})" if self.why else ""
+        lo, hi = _show(self.lo, self.unit), _show(self.hi, self.unit)
+        if lo.endswith(f" {self.unit}") and hi.endswith(f" {self.unit}"):
+            lo = lo.removesuffix(f" {self.unit}")  # "from -50 to +90 dBm", "from 1 kHz to 1 THz"
+        return f"expected {self.what} from {lo} to {hi}{why}"
+
+
+def _show(value: float, unit: str) -> str:
+    """A bound as the message writes it: levels in dB with their sign, Hz with a prefix."""
+    if unit in ("Hz", "ohm"):
+        for scale, prefix in ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k")):
+            if abs(value) >= scale:
+                return f"{value / scale:g} {prefix}{unit}"
+        return f"{value:g} {unit}"
+    if unit.startswith("dB") and value != 0:
+        return f"{value:+g} {unit}"
+    return f"{value:g} {unit}"
+
+
+# Ranges that more than one reader applies (carriers in a lineup, sweep options,
+# channel files).  A carrier below 1 kHz is not a radio transmission (the lowest
+# allocated band starts at 8.3 kHz, ITU Radio Regulations Article 5; from memory);
+# +90 dBm is 1 MW, beyond any transmitter this tool plans, and -150 dBm is below
+# thermal noise in any bandwidth an emission occupies (kT = -174 dBm/Hz at 290 K).
+CARRIER_FREQ = Within("a carrier frequency", 1e3, 1e12, "Hz", "a radio frequency, not DC")
+CARRIER_POWER = Within("a carrier power", -150.0, 90.0, "dBm")
+
+
 def existing_file(base_dir, rel: str, fields: Fields, key: str):
     """``base_dir / rel`` as an existing file, or a located error (bad names included)."""
     from pathlib import Path
@@ -64,8 +225,11 @@ def existing_file(base_dir, rel: str, fields: Fields, key: str):
     try:
         path = (Path(base_dir) / rel).resolve()
         ok = path.is_file()
+        mode = None if ok or not path.exists() else path.stat().st_mode
     except (OSError, ValueError) as exc:
         raise fields.error(key, f"{rel[:200]!r}: not a usable file name ({exc.__class__.__name__})") from None
+    if mode is not None:
+        raise fields.error(key, f"{rel[:200]!r}: is {file_kind(mode)}: expected a regular file")
     if not ok:
         raise fields.error(key, f"{rel[:200]!r}: file not found (looked for {str(path)[:300]})")
     return path
@@ -103,8 +267,19 @@ class Fields:
         self._seen.add(key)
         return self.table.get(key, default)
 
-    def quantity(self, key: str, parse: Callable[[object], Any], *, required: bool = False):
-        """Parse ``key`` with a :mod:`spurplan.units` parser; ``None`` when absent."""
+    def quantity(
+        self,
+        key: str,
+        parse: Callable[[object], Any],
+        *,
+        required: bool = False,
+        within: Within | tuple[Within | None, ...] | None = None,
+    ):
+        """Parse ``key`` with a :mod:`spurplan.units` parser; ``None`` when absent.
+
+        ``within`` is the key's physical-sense range (:class:`Within`); for a parser that
+        returns a tuple (``"-28 dBc @ +20 dBm"``), one range (or ``None``) per element.
+        """
         self._seen.add(key)
         if key not in self.table:
             if required:
@@ -115,9 +290,21 @@ class Fields:
                 raise self.error(key, f"is required{hint}")
             return None
         try:
-            return parse(self.table[key])
+            value = parse(self.table[key])
         except UnitError as exc:
             raise self.error(key, str(exc)) from None
+        if isinstance(within, Within):
+            self.require_within(key, value, within)
+        elif within is not None:
+            for part, rng in zip(value, within, strict=True):
+                if rng is not None:
+                    self.require_within(key, part, rng)
+        return value
+
+    def require_within(self, key: str, value: float, within: Within) -> None:
+        """Raise a located error quoting ``key`` as written unless ``value`` is ``within``."""
+        if value not in within:
+            raise self.error(key, f"{self.table.get(key, value)!r}: {within.expected()}")
 
     def text(self, key: str, *, default: str | None = None, choices: tuple[str, ...] = ()) -> str | None:
         """A string field, optionally one of ``choices``."""

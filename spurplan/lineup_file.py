@@ -24,7 +24,7 @@ from pathlib import Path
 
 from . import engine
 from .errors import LineupError
-from .fields import Fields, read_toml
+from .fields import CARRIER_FREQ, CARRIER_POWER, Fields, Within, read_toml
 from .filters import BEYOND_POLICIES
 from .lineup import (
     COMBINE_MODES,
@@ -39,12 +39,29 @@ from .lineup import (
 from .mask_files import read_mask
 from .montecarlo import Tolerances, read_corners, read_tolerance
 from .stages import KINDS, LoadContext
-from .units import parse_angle_rad, parse_freq_hz, parse_gain_db, parse_impedance_ohm, parse_power_dbm
+from .units import (
+    format_freq,
+    parse_angle_rad,
+    parse_freq_hz,
+    parse_gain_db,
+    parse_impedance_ohm,
+    parse_power_dbm,
+)
 
 TOP_LEVEL_KEYS = ("lineup", "carrier", "stage", "analysis", "mask", "report", "corner")
+# Physical-sense ranges of the keys read here (README, "Plausible values").  System
+# impedances of RF lineups are 50 or 75 ohm, balanced lines a few hundred ohm; below
+# 1 ohm or above 10 kohm the value is a slip (a missing "k", a stray "m").
+IMPEDANCE = Within("a system impedance", 1.0, 1e4, "ohm")
+# A carrier's occupied band must lie above 0 Hz: bandwidth < 2 x frequency (checked
+# against the carrier); the bounds themselves are common practice, no source.
+BANDWIDTH = Within("an occupied bandwidth", 1.0, 1e11, "Hz")
 # The torus engine's cost grows as (grid)^tones; beyond this many base tones a
 # check no longer fits a laptop's memory at useful orders.
 MAX_CARRIERS = 3
+# Transmitter lineups have a handful of stages; 200 is far beyond any, and keeps a run's
+# per-stage arrays (stage, batch, product) and the attribution bounded before any work.
+MAX_STAGES = 200
 
 
 def load(path: str | Path) -> Lineup:
@@ -79,8 +96,9 @@ def from_dict(
     top.finish()
 
     head = Fields(_table(doc, "lineup", name), name, "[lineup]")
-    title = head.text("name", default=Path(name).stem)
-    r_ohm = head.quantity("impedance", parse_impedance_ohm) or 50.0
+    # The file's own name stands in for a missing one, on one line like every name.
+    title = head.text("name", default=" ".join(Path(name).stem.split()) or "lineup")
+    r_ohm = head.quantity("impedance", parse_impedance_ohm, within=IMPEDANCE) or 50.0
     head.finish()
 
     carriers = tuple(_carrier(t, name, i) for i, t in enumerate(_array(doc, "carrier", name), start=1))
@@ -97,10 +115,16 @@ def from_dict(
     stages = []
     spreads = []
     seen_names: set[str] = set()
-    for i, table in enumerate(_array(doc, "stage", name), start=1):
+    # Every carrier's frequency at the current stage input (mixers move them).
+    carried_hz = [c.freq_hz for c in carriers]
+    stage_tables = _array(doc, "stage", name)
+    if len(stage_tables) > MAX_STAGES:
+        raise LineupError(f"{len(stage_tables)} [[stage]] tables: expected at most {MAX_STAGES}", file=name)
+    for i, table in enumerate(stage_tables, start=1):
         stage = _stage(table, name, i, context)
         lo_hz = getattr(stage, "lo_freq_hz", None)
         if lo_hz is not None:
+            carried_hz = _converted(stage, carried_hz, name, i)
             # Past a mixer the carrier is its wanted product: later stages' figures are
             # referred there.
             ref = context.ref_freq_hz
@@ -166,10 +190,19 @@ def _carrier(table, file: str, index: int) -> Carrier:
     freq = f.quantity("freq", parse_freq_hz, required=True)
     if freq <= 0:
         raise f.error("freq", f"{f.raw('freq')!r}: expected a frequency > 0 Hz")
-    power = f.quantity("power", parse_power_dbm, required=True)
+    f.require_within("freq", freq, CARRIER_FREQ)
+    power = f.quantity("power", parse_power_dbm, required=True, within=CARRIER_POWER)
     bandwidth = f.quantity("bandwidth", parse_freq_hz)
     if bandwidth is not None and bandwidth <= 0:
         raise f.error("bandwidth", f"{f.raw('bandwidth')!r}: expected a bandwidth > 0 Hz")
+    if bandwidth is not None:
+        f.require_within("bandwidth", bandwidth, BANDWIDTH)
+    if bandwidth is not None and not bandwidth < 2 * freq:
+        raise f.error(
+            "bandwidth",
+            f"{f.raw('bandwidth')!r} with the carrier at {f.raw('freq')!r}: expected a bandwidth below "
+            "2 x the carrier frequency (the occupied band must lie above 0 Hz)",
+        )
     phase = f.quantity("phase", parse_angle_rad) or 0.0
     f.finish()
     return Carrier(freq_hz=freq, power_dbm=power, bandwidth_hz=bandwidth, phase_rad=phase)
@@ -204,8 +237,9 @@ def _report(table, file: str) -> ReportSpec:
         if raw is None:
             continue
         sub = Fields(raw, file, f"[report] {key}")
-        start = sub.quantity("start", parse, required=True)
-        stop = sub.quantity("stop", parse, required=True)
+        within = CARRIER_POWER if key == "drive" else CARRIER_FREQ
+        start = sub.quantity("start", parse, required=True, within=within)
+        stop = sub.quantity("stop", parse, required=True, within=within)
         step = sub.quantity("step", parse_gain_db if key == "drive" else parse_freq_hz, required=True)
         sub.finish()
         try:
@@ -235,14 +269,46 @@ def _stage(table, file: str, index: int, context: LoadContext):
     return stage
 
 
-def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
+def _converted(mixer, freqs_hz: list[float], file: str, index: int) -> list[float]:
+    """Each carrier's wanted product at ``mixer``'s output; refused when one lands near 0 Hz.
+
+    A lower-sideband mixer whose LO equals the IF puts the wanted product at DC: no
+    transmission, no limit applies, and dBc against it has no meaning.  Such a product
+    (or one below :data:`~spurplan.fields.CARRIER_FREQ`'s lower end) is an input error.
+    """
+    lo = mixer.lo_freq_hz
+    out = [lo + f if mixer.sideband == "upper" else abs(lo - f) for f in freqs_hz]
+    wanted = replace(CARRIER_FREQ, what="a wanted product")
+    for k, (f_in, f_out) in enumerate(zip(freqs_hz, out, strict=True), start=1):
+        if f_out not in wanted:
+            raise LineupError(
+                f"LO {format_freq(lo)} with the {mixer.sideband} sideband puts carrier {k} ({format_freq(f_in)} "
+                f"at the mixer input) at {format_freq(f_out)}: {wanted.expected()}",
+                file=file,
+                stage=f"stage {index} {mixer.name!r}",
+                field="sideband" if mixer.sideband == "lower" else "lo",
+            )
+    return out
+
+
+def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
+    """Points of the engine's alias-free grid for one batch element, and the degree that sets it.
+
+    A lower bound on the work of one evaluation: non-polynomial models start there and
+    refine (DEVELOPERS.md, "Torus engine").  Sweeps and yield runs multiply it by their
+    points to bound their work before they start.
+    """
     degrees = [s.transfer.degree or 8 for s in stages if s.transfer is not None]
     degrees += [
         max(abs(n) + m for m, n, _ in s.transfer.terms) for s in stages if hasattr(s.transfer, "terms")
     ]
     degree = max(degrees, default=1)
+    return engine.alias_free_grid(degree, max_order, max_order) ** n_tones, degree
+
+
+def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
     m = analysis.max_order
-    points = engine.alias_free_grid(degree, m, m) ** n_tones
+    points, degree = grid_points(stages, n_tones, m)
     if points > engine.MAX_GRID_POINTS:
         raise LineupError(
             f"{analysis.max_order}: {n_tones} tones to order {m} with degree-{degree} stages needs "

@@ -41,10 +41,18 @@ from dataclasses import replace
 from pathlib import Path
 
 from .errors import LineupError, UnitError
-from .fields import Fields, _did_you_mean, existing_file, read_toml
+from .fields import CARRIER_POWER, Fields, Within, _did_you_mean, existing_file, read_toml
 from .masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
 from .resources import data_dir
-from .units import parse_dbc, parse_dbi, parse_freq_hz, parse_gain_db, parse_power_dbm, unit_hint
+from .units import (
+    check_value_length,
+    parse_dbc,
+    parse_dbi,
+    parse_freq_hz,
+    parse_gain_db,
+    parse_power_dbm,
+    unit_hint,
+)
 
 LIMIT_FORMS = "a limit such as '-36 dBm', '-60 dBc', '54 dBuV/m @ 3 m' or '2400/F uV/m @ 300 m'"
 _FIELD_UNITS = ("dBuV/m", "uV/m", "mV/m")
@@ -56,6 +64,24 @@ _FIELD_FORM = (
 )
 _FIELD = re.compile(_FIELD_FORM.format(units="dBuV/m|uV/m|mV/m", metre="m"))
 _FIELD_LOOSE = re.compile(_FIELD_FORM.format(units="dBuV/m|uV/m|mV/m", metre="m"), re.IGNORECASE)
+
+# Physical-sense ranges of limits (README, "Plausible values"; common practice, no
+# source).  Published spurious limits lie between about -100 dBm and +20 dBm, relative
+# ones between -100 and -20 dBc, field strengths between 20 and 100 dBuV/m.  The
+# ranges are wider than that; beyond them a value is a slip, and a relative limit at
+# or above the carrier, or an absolute one above +80 dBm (100 kW), limits nothing.
+ABSOLUTE_LIMIT = Within("an absolute limit", -200.0, 80.0, "dBm")
+RELATIVE_LIMIT = Within("a relative limit", -200.0, 0.0, "dBc", "a limit above the carrier is no limit")
+FIELD_LIMIT = Within("a field-strength limit", -60.0, 160.0, "dBuV/m")
+# K of a "K/F uV/m" form is the limit at F = 1 kHz, where the published forms are highest.
+FIELD_NUMERATOR = Within("the numerator of a K/F field-strength limit", -60.0, 200.0, "dBuV/m")
+DISTANCE = Within("a measurement distance", 0.1, 1e5, "m")
+# Attenuation coefficients and caps of published rules run from 40 to 80 dB; 100 dB is
+# the ratio parser's ceiling.
+ATTENUATION = Within("an attenuation", 0.0, 100.0, "dB")
+CAP = Within("an attenuation cap", 0.0, 100.0, "dB")
+RBW = Within("a reference bandwidth", 1.0, 100e6, "Hz")
+ANTENNA_GAIN = Within("an antenna gain", -50.0, 80.0, "dBi")
 
 
 def shipped_names() -> list[str]:
@@ -130,6 +156,8 @@ def _examined(head: Fields) -> Examined:
     stop = sub.quantity("stop", parse_freq_hz)
     harmonic = sub.integer("harmonic", default=0, low=1, high=100) or None
     sub.finish()
+    if stop is not None and not stop > start:
+        raise sub.error("stop", f"{sub.raw('stop')!r}: expected a stop frequency above start {start:g} Hz")
     return Examined(start_hz=start, stop_hz=math.inf if stop is None else stop, harmonic=harmonic)
 
 
@@ -142,6 +170,7 @@ def parse_limit(text) -> tuple[str, float, float | None, bool]:
     """
     if not isinstance(text, str):
         raise UnitError(text, LIMIT_FORMS)
+    check_value_length(text, LIMIT_FORMS)
     m = _FIELD.match(text)
     if m is None and (loose := _FIELD_LOOSE.match(text)):
         hint = unit_hint(loose["unit"], _FIELD_UNITS) or unit_hint(loose["dunit"], ("m",))
@@ -186,18 +215,16 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
     cap = distance = None
     per_khz = False
     if has_limit:
-        kind, value, distance, per_khz = f.quantity("limit", parse_limit)
+        kind, value, distance, per_khz = read_limit(f)
     else:
         kind, value = "attenuation", f.quantity("attenuation", parse_gain_db)
     f.raw("limit"), f.raw("attenuation")
     cap = f.quantity("cap", parse_gain_db)
     if cap is not None and kind != "attenuation":
         raise f.error("cap", "applies to 'attenuation' rules only")
-    rbw = f.quantity("rbw", parse_freq_hz)
-    if rbw is not None and rbw <= 0:
-        raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
-    floor = f.quantity("floor", parse_power_dbm)
-    ceiling = f.quantity("ceiling", parse_power_dbm)
+    rbw = _rbw(f)
+    floor = f.quantity("floor", parse_power_dbm, within=ABSOLUTE_LIMIT)
+    ceiling = f.quantity("ceiling", parse_power_dbm, within=ABSOLUTE_LIMIT)
     if (floor is not None or ceiling is not None) and kind != "relative":
         raise f.error("floor", "'floor' and 'ceiling' apply to relative (dBc) limits only")
     if floor is not None and ceiling is not None and floor > ceiling:
@@ -206,10 +233,14 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
         )
     if kind == "attenuation" and value <= 0:
         raise f.error("attenuation", f"{f.raw('attenuation')!r}: expected an attenuation > 0 dB")
+    if kind == "attenuation":
+        f.require_within("attenuation", value, ATTENUATION)
     if cap is not None and cap <= 0:
         raise f.error("cap", f"{f.raw('cap')!r}: expected a cap > 0 dB")
+    if cap is not None:
+        f.require_within("cap", cap, CAP)
     when_carrier = _range(f, "when_carrier", ("start", "stop"), parse_freq_hz)
-    when_power = _range(f, "when_power", ("above", "at_most"), parse_power_dbm)
+    when_power = _range(f, "when_power", ("above", "at_most"), parse_power_dbm, CARRIER_POWER)
     status = _status(f, required=status_required)
     source = f.text("source", default=default_source) or default_source
     f.finish()
@@ -233,13 +264,41 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
     )
 
 
-def _range(f: Fields, key: str, ends: tuple[str, str], parse):
+def read_limit(f: Fields, *, required: bool = False):
+    """``limit`` of a rule, band or ``[mask] use`` entry, within the range of its kind.
+
+    Returns ``(kind, value, distance_m, per_khz)`` as :func:`parse_limit`, or ``None``
+    when the key is absent and not ``required``.
+    """
+    parsed = f.quantity("limit", parse_limit, required=required)
+    if parsed is None:
+        return None
+    kind, value, distance, per_khz = parsed
+    within = {"absolute": ABSOLUTE_LIMIT, "relative": RELATIVE_LIMIT}.get(kind)
+    if kind == "field":
+        within = FIELD_NUMERATOR if per_khz else FIELD_LIMIT
+        f.require_within("limit", distance, DISTANCE)
+    f.require_within("limit", value, within)
+    return parsed
+
+
+def _rbw(f: Fields) -> float | None:
+    """``rbw`` (Hz) within :data:`RBW`, or ``None``."""
+    rbw = f.quantity("rbw", parse_freq_hz)
+    if rbw is not None and rbw <= 0:
+        raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+    if rbw is not None:
+        f.require_within("rbw", rbw, RBW)
+    return rbw
+
+
+def _range(f: Fields, key: str, ends: tuple[str, str], parse, within: Within | None = None):
     raw = f.raw(key)
     if raw is None:
         return None
     sub = Fields(raw, f.file, f"{f.where} {key}")
-    lo = sub.quantity(ends[0], parse)
-    hi = sub.quantity(ends[1], parse)
+    lo = sub.quantity(ends[0], parse, within=within)
+    hi = sub.quantity(ends[1], parse, within=within)
     sub.finish()
     if lo is None and hi is None:
         raise f.error(key, f"expected '{ends[0]}' and/or '{ends[1]}'")
@@ -273,10 +332,8 @@ def read_band(
     source = f.text("source", default=default_source) or default_source
     own = limit
     if f.has("limit"):
-        kind, value, distance, per_khz = f.quantity("limit", parse_limit)
-        rbw = f.quantity("rbw", parse_freq_hz)
-        if rbw is not None and rbw <= 0:
-            raise f.error("rbw", f"{f.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+        kind, value, distance, per_khz = read_limit(f)
+        rbw = _rbw(f)
         own = (kind, value, distance, per_khz, rbw)
     elif f.has("rbw"):
         raise f.error("rbw", "applies together with a 'limit': expected both or neither")
@@ -388,10 +445,8 @@ def _use(entry, f: Fields, index: int) -> RuleSet:
     name = sub.text("name")
     if not name:
         raise sub.error("name", "is required: expected a shipped band list's name")
-    kind, value, distance, per_khz = sub.quantity("limit", parse_limit, required=True)
-    rbw = sub.quantity("rbw", parse_freq_hz)
-    if rbw is not None and rbw <= 0:
-        raise sub.error("rbw", f"{sub.raw('rbw')!r}: expected a reference bandwidth > 0 Hz")
+    kind, value, distance, per_khz = read_limit(sub, required=True)
+    rbw = _rbw(sub)
     sub.finish()
     base = load_ruleset(shipped_path(name, f))
     if not base.bands:
@@ -445,8 +500,11 @@ def _antenna_gain(f: Fields) -> tuple[tuple[float, float], ...]:
 
 def _dbi(text, f: Fields) -> float:
     try:
-        return parse_dbi(text)
+        gain = parse_dbi(text)
     except UnitError as exc:
         raise f.error(
             "antenna_gain", f"{text!r}: expected a gain in dBi, e.g. '2.15 dBi'{exc.hint}"
         ) from None
+    if gain not in ANTENNA_GAIN:
+        raise f.error("antenna_gain", f"{text!r}: {ANTENNA_GAIN.expected()}")
+    return gain

@@ -31,13 +31,14 @@ Yield is reported with the Wilson score interval (95 %) for a binomial proportio
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from .check import evaluate
 from .engine import propagate
-from .errors import LineupError
+from .errors import LineupError, SpurplanError
 from .fields import Fields
 from .filters import ladder_s21
 from .result import Result
@@ -54,6 +55,84 @@ DB_FIGURES = {
 PERCENT_FIGURES = ("cutoff", "center", "q_inductor", "q_capacitor", "elements")
 BATCH_SAMPLES = 2000
 Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (standard tables)
+
+# Limits checked before a yield run starts (README, "Limits").  One evaluated point is
+# one sample at one channel and one corner: a pass of the engine over the lineup.  A
+# one-amplifier lineup evaluates about 6 x 10^4 points a second in one process
+# (measured), so 10^8 points is half an hour of the smallest work, the most one run may
+# ask for; larger lineups are held by the grid budget (sweep.MAX_WORK_GRID_POINTS).
+MAX_SAMPLES = 10_000_000
+MAX_YIELD_POINTS = 100_000_000
+MAX_WORKERS = 256
+# numpy seeds are non-negative integers (numpy.random.SeedSequence); one of 64 bits is
+# more entropy than a yield run can use, and prints as a number in JSON.
+MAX_SEED = 2**64 - 1
+# How long a --scheduler address may take to connect and answer as a dask scheduler.
+SCHEDULER_TIMEOUT_S = 3.0
+# tcp://HOST:PORT or tls://HOST:PORT (dask.distributed's address form), or HOST:PORT;
+# a host is a name, an IPv4 address or a bracketed IPv6 address.  The host cannot hold
+# ":", so the split is unambiguous and the match linear.
+_SCHEDULER_ADDRESS = re.compile(
+    r"(?:(?:tcp|tls)://)?(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9][A-Za-z0-9.-]{0,252}):([0-9]{1,5})"
+)
+
+
+class YieldError(SpurplanError, ValueError):
+    """Yield arguments that do not make a run: seed, sample budget, workers, scheduler."""
+
+
+def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
+    """Refuse a run before it starts; returns the number of points it evaluates.
+
+    Parameters
+    ----------
+    samples : int
+        Monte Carlo samples, 1 to :data:`MAX_SAMPLES`.
+    seed : int
+        0 to :data:`MAX_SEED` (numpy seeds are non-negative).
+    n_channels, n_corners : int
+        Channels and corners each sample is evaluated at (1 for none given).
+
+    Raises
+    ------
+    YieldError
+        When samples x channels x corners exceeds :data:`MAX_YIELD_POINTS`, or an
+        argument is out of range.
+    """
+    if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)):
+        raise YieldError(f"--samples {samples!r}: expected a whole number from 1 to {MAX_SAMPLES}")
+    if not 1 <= samples <= MAX_SAMPLES:
+        raise YieldError(f"--samples {samples}: expected a whole number from 1 to {MAX_SAMPLES}")
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed <= MAX_SEED:
+        shown = f"{seed}" if isinstance(seed, (int, np.integer)) and abs(seed) < 10**30 else f"{seed!r}"[:40]
+        raise YieldError(
+            f"--seed {shown}: expected a whole number from 0 to 2^64 - 1 (numpy seeds are non-negative)"
+        )
+    channels, corners = max(1, n_channels), max(1, n_corners)
+    points = int(samples) * channels * corners
+    if points > MAX_YIELD_POINTS:
+        raise YieldError(
+            f"{samples} samples x {channels} channel{'s' * (channels > 1)} x {corners} "
+            f"corner{'s' * (corners > 1)} = {points:.3g} "
+            f"evaluated points: expected at most {MAX_YIELD_POINTS:.0e}, spurplan's budget for one yield run "
+            "(use fewer samples or channels)"
+        )
+    return points
+
+
+def check_scheduler_address(address) -> str:
+    """``address`` as a dask scheduler address (``tcp://HOST:PORT``), or a YieldError."""
+    expected = "expected a dask scheduler address such as tcp://127.0.0.1:8786"
+    if not isinstance(address, str):
+        raise YieldError(f"--scheduler {address!r}: {expected}")
+    text = address.strip()
+    shown = repr(text[:60] + ("..." if len(text) > 60 else ""))
+    m = _SCHEDULER_ADDRESS.fullmatch(text) if len(text) <= 300 else None
+    if m is None:
+        raise YieldError(f"--scheduler {shown}: {expected}")
+    if not 1 <= int(m.group(2)) <= 65535:
+        raise YieldError(f"--scheduler {shown}: {expected} (a port from 1 to 65535)")
+    return text if "://" in text else f"tcp://{text}"
 
 
 @dataclass(frozen=True)
@@ -400,7 +479,23 @@ def run_yield(
     workers : int, optional
         Start a local Dask cluster with this many worker processes.
     """
+    from .sweep import work_refusal
+
     tolerances = lineup.tolerances
+    n_channels = 1 if channels_hz is None else int(np.size(channels_hz))
+    points = check_yield_request(samples, seed, n_channels, len(tolerances.corners))
+    if why := work_refusal(lineup, points, "evaluated points"):
+        raise YieldError(why)
+    if scheduler is not None and workers is not None:
+        raise YieldError("--scheduler and --workers: expected one of them, not both")
+    if scheduler is not None:
+        scheduler = check_scheduler_address(scheduler)
+    if workers is not None and (
+        isinstance(workers, bool)
+        or not isinstance(workers, (int, np.integer))
+        or not 1 <= workers <= MAX_WORKERS
+    ):
+        raise YieldError(f"--workers {workers!r}: expected a whole number from 1 to {MAX_WORKERS}")
     if lineup.mask is None:
         raise LineupError("no emission limits: expected a [mask] table", file=str(lineup.source))
     # The nominal run first: it applies the lineup's beyond-data policy (an error by
@@ -408,7 +503,7 @@ def run_yield(
     lineup.run()
     sizes = [min(batch_samples, samples - s) for s in range(0, samples, batch_samples)]
     jobs = [(lineup, tolerances, seed, b, size, channels_hz, combine) for b, size in enumerate(sizes)]
-    if scheduler or workers:
+    if scheduler is not None or workers is not None:
         parts, where = _on_dask(jobs, scheduler, workers, progress)
     else:
         parts, where = [], "in process"
@@ -443,7 +538,15 @@ def _batch_job(job):
 
 
 def _on_dask(jobs, scheduler, workers, progress):
-    """Evaluate the batches on a dask.distributed cluster (optional dependency)."""
+    """Evaluate the batches on a dask.distributed cluster (optional dependency).
+
+    A ``scheduler`` is first asked who it is, within :data:`SCHEDULER_TIMEOUT_S`
+    (:func:`_probe_scheduler`): an address where nothing listens, or something that is
+    no scheduler, is one line rather than a long wait.  A local cluster's workers
+    ignore SIGINT, so that Ctrl-C reaches only this process, which closes the cluster
+    (in ``finally``) with dask's logging silenced: one "interrupted" line, no worker
+    tracebacks.
+    """
     try:
         import dask
         from dask.distributed import Client, LocalCluster
@@ -451,33 +554,166 @@ def _on_dask(jobs, scheduler, workers, progress):
         raise LineupError(
             "dask.distributed is not installed: expected pip install 'spurplan[dask]' for --scheduler/--workers"
         ) from None
-    cluster = None
-    if scheduler:
-        client = Client(scheduler)
-        where = f"dask scheduler {scheduler}"
-    else:
-        # Dask's workers trim freed memory back to the OS from 64 kB up by default; the
-        # engine allocates and frees grids of megabytes per batch, and the trimming
-        # halved its speed (measured with tests/benchmarks/yield.py).
-        with dask.config.set({"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": str(1 << 30)}):
-            cluster = LocalCluster(
-                n_workers=workers,
-                threads_per_worker=1,
-                processes=True,
-                host="127.0.0.1",
-                dashboard_address=None,
-            )
-        client = Client(cluster)
-        where = f"local dask cluster, {workers} workers"
-    try:
-        futures = client.map(_batch_job, jobs, pure=False)
-        parts = []
-        for fut, job in zip(futures, jobs, strict=True):
-            parts.append(fut.result())
-            if progress:
-                progress(job[4])
-    finally:
-        client.close()
-        if cluster is not None:
-            cluster.close()
+    cluster = client = None
+    with _quiet_dask_logs():
+        try:
+            if scheduler is not None:
+                _probe_scheduler(scheduler)
+                try:
+                    client = Client(scheduler, timeout=SCHEDULER_TIMEOUT_S)
+                except Exception as exc:  # any failure of the network boundary
+                    raise YieldError(_cannot_use(scheduler, exc)) from None
+                where = f"dask scheduler {scheduler}"
+            else:
+                # Dask's workers trim freed memory back to the OS from 64 kB up by default;
+                # the engine allocates and frees grids of megabytes per batch, and the
+                # trimming halved its speed (measured with tests/benchmarks/yield.py).
+                trim = {"distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": str(1 << 30)}
+                with dask.config.set(trim):
+                    cluster = _local_cluster(
+                        LocalCluster,
+                        workers,
+                        threads_per_worker=1,
+                        processes=True,
+                        host="127.0.0.1",
+                        dashboard_address=None,
+                        silence_logs=_SILENT,
+                    )
+                client = Client(cluster)
+                where = f"local dask cluster, {workers} workers"
+            futures = client.map(_batch_job, jobs, pure=False)
+            parts = []
+            for fut, job in zip(futures, jobs, strict=True):
+                parts.append(fut.result())
+                if progress:
+                    progress(job[4])
+        finally:
+            if client is not None:
+                client.close()
+            if cluster is not None:
+                cluster.close()
     return parts, where
+
+
+# Above CRITICAL: no dask log record reaches stderr while spurplan runs a cluster.
+_SILENT = 100
+
+
+def _quiet_dask_logs():
+    """A context in which the loggers of dask.distributed print nothing (restored after)."""
+    import contextlib
+    import logging
+
+    @contextlib.contextmanager
+    def quiet():
+        loggers = [logging.getLogger(name) for name in ("distributed", "dask", "tornado", "asyncio")]
+        levels = [lg.level for lg in loggers]
+        for lg in loggers:
+            lg.setLevel(_SILENT)
+        try:
+            yield
+        finally:
+            for lg, level in zip(loggers, levels, strict=True):
+                lg.setLevel(level)
+
+    return quiet()
+
+
+def _local_cluster(factory, workers: int, **options):
+    """Start a local cluster whose worker processes ignore SIGINT; returns it.
+
+    A terminal's Ctrl-C goes to the whole process group; each worker would print its
+    own KeyboardInterrupt traceback.  An ignored signal stays ignored across fork and
+    exec (POSIX, execve), and Python installs its KeyboardInterrupt handler only where
+    SIGINT is at its default (signal module documentation), so SIGINT is ignored here
+    until the worker processes exist, then restored: this process alone is
+    interrupted, and closes the cluster.  The cluster starts in a helper thread so
+    that the main thread can restore the handler as soon as the workers are spawned
+    (a second or more before they are ready) and Ctrl-C during the start still works.
+    Outside the main thread (no signal handlers there) the cluster starts as it is.
+    """
+    import multiprocessing
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        return factory(n_workers=workers, **options)
+    box: dict = {}
+
+    def start():
+        try:
+            box["cluster"] = factory(n_workers=workers, **options)
+        except BaseException as exc:  # handed to the main thread
+            box["error"] = exc
+
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    thread = threading.Thread(target=start, name="spurplan local cluster", daemon=True)
+    try:
+        thread.start()
+        while thread.is_alive():
+            # A process is listed once it is forked, so it holds the ignored disposition.
+            if previous is not None and len(multiprocessing.active_children()) >= workers:
+                signal.signal(signal.SIGINT, previous)
+                previous = None
+            thread.join(0.02)
+    except KeyboardInterrupt:
+        # Let the start finish (a second Ctrl-C stops waiting), then close what it made.
+        try:
+            thread.join()
+        finally:
+            if "cluster" in box:
+                box["cluster"].close()
+        raise
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGINT, previous)
+    if "error" in box:
+        raise box["error"]
+    return box["cluster"]
+
+
+def _probe_scheduler(address: str, timeout_s: float = SCHEDULER_TIMEOUT_S) -> None:
+    """Connect to ``address`` and ask its identity, all within ``timeout_s``; a YieldError otherwise.
+
+    dask.distributed's own client waits 30 s for an address where nothing listens and
+    without end for a peer that accepts and stays silent; its reader takes a length
+    from whatever bytes arrive.  So the address is asked first, with one deadline for
+    the connection and the answer together (``identity`` is a handler every
+    dask.distributed server has; a scheduler answers with ``type`` "Scheduler").
+    """
+    import asyncio
+
+    from distributed.comm import connect
+
+    async def identity():
+        comm = await connect(address, timeout=timeout_s)
+        try:
+            await comm.write({"op": "identity", "reply": True})
+            return await comm.read()
+        finally:
+            comm.abort()
+
+    try:
+        reply = asyncio.run(asyncio.wait_for(identity(), timeout_s))
+    except TimeoutError:
+        raise YieldError(
+            f"--scheduler {address}: no dask scheduler answered within {timeout_s:g} s: "
+            "expected the address of a running scheduler"
+        ) from None
+    except Exception as exc:  # anything the peer sends or does is data, not a crash
+        raise YieldError(_cannot_use(address, exc)) from None
+    if not (isinstance(reply, dict) and reply.get("type") == "Scheduler"):
+        raise YieldError(
+            f"--scheduler {address}: answered, but not as a dask scheduler: expected the address of a running scheduler"
+        )
+
+
+def _cannot_use(address: str, exc: Exception) -> str:
+    """The one-line message for a scheduler address that failed with ``exc``."""
+    what = (
+        "cannot connect" if isinstance(exc, OSError) and "connect" in str(exc).lower() else "no usable answer"
+    )
+    return (
+        f"--scheduler {address}: {what} ({exc.__class__.__name__}): expected the address of a running "
+        f"dask scheduler (waited at most {SCHEDULER_TIMEOUT_S:g} s)"
+    )

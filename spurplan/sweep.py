@@ -10,12 +10,13 @@ the channel where a product starts to fail) are refined point by point, by bisec
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .check import evaluate, require_mask
 from .errors import SpurplanError
+from .fields import CARRIER_FREQ, CARRIER_POWER
 from .spectrum import labels
 
 # Points evaluated per engine batch: bounds memory, and paces a progress bar.
@@ -24,6 +25,11 @@ MAX_POINTS = 200_000
 # Drive is refined to this (dB); a tuning edge to this (Hz).
 DRIVE_TOL_DB = 1e-3
 FREQ_TOL_HZ = 1.0
+# The most engine work one sweep or yield run may ask for, in grid points: its points
+# times the alias-free grid of one point (lineup_file.grid_points).  The engine gets
+# through about 10^7 grid points a second on one laptop core (measured with a
+# three-tone lineup), so 10^10 is about a quarter of an hour (README, "Limits").
+MAX_WORK_GRID_POINTS = 10**10
 
 
 class SweepError(SpurplanError, ValueError):
@@ -51,21 +57,53 @@ def sweep_points(
     return start + step * np.arange(n)
 
 
-def read_channels(path) -> np.ndarray:
-    """Carrier frequencies from a file: one per line with its unit; '#' starts a comment."""
-    from pathlib import Path
+def work_refusal(lineup, n_points: int, what: str) -> str | None:
+    """Why evaluating ``n_points`` points of ``lineup`` is beyond :data:`MAX_WORK_GRID_POINTS`, or None.
 
+    ``what`` names the points in the message ("drive points", "channels", "evaluated points").
+    """
+    from .lineup_file import grid_points
+
+    per_point, _ = grid_points(lineup.stages, lineup.n_tones, lineup.analysis.max_order)
+    total = int(n_points) * per_point
+    if total <= MAX_WORK_GRID_POINTS:
+        return None
+    return (
+        f"{n_points} {what} x {per_point} engine grid points each ({lineup.n_tones} tones to order "
+        f"{lineup.analysis.max_order}) = {total:.3g}: expected at most {MAX_WORK_GRID_POINTS:.0e} grid points, "
+        "spurplan's work budget for one run (use fewer points or a lower max_order)"
+    )
+
+
+def check_within(value: float, within, option: str, unit: str) -> None:
+    """Raise a :class:`SweepError` naming ``option`` unless ``value`` is ``within``
+    (a :class:`~spurplan.fields.Within`, in the unit the option was read in)."""
+    if value not in within:
+        raise SweepError(f"{option} {value:g} {unit}: {within.expected()}")
+
+
+def _drive_range(start_dbm: float, stop_dbm: float, target_output: bool) -> None:
+    """Both ends of a drive sweep within the carrier power range (input or output)."""
+    which = "output" if target_output else "input"
+    within = replace(CARRIER_POWER, what=f"a carrier {which} power")
+    check_within(start_dbm, within, "--start", "dBm")
+    check_within(stop_dbm, within, "--stop", "dBm")
+
+
+def read_channels(path) -> np.ndarray:
+    """Carrier frequencies from a file: one per line with its unit; '#' starts a comment.
+
+    The file is read as data with limits (:func:`spurplan.fields.read_text_file`: a
+    regular UTF-8 file of at most :data:`~spurplan.fields.MAX_CHANNEL_FILE_BYTES`), and
+    reading stops at the first channel beyond :data:`MAX_POINTS`.
+    """
     from .errors import LineupError, UnitError
+    from .fields import MAX_CHANNEL_FILE_BYTES, read_text_file
     from .units import parse_freq_hz
 
-    try:
-        lines = Path(path).read_text(encoding="utf-8").splitlines()
-    except (OSError, UnicodeDecodeError) as exc:
-        raise LineupError(
-            f"cannot read ({exc.__class__.__name__}): expected a text file of frequencies", file=str(path)
-        ) from None
+    text_all = read_text_file(path, "a text file of frequencies, one per line", MAX_CHANNEL_FILE_BYTES)
     out = []
-    for n, line in enumerate(lines, start=1):
+    for n, line in enumerate(text_all.splitlines(), start=1):
         text = line.split("#", 1)[0].strip()
         if not text:
             continue
@@ -75,11 +113,15 @@ def read_channels(path) -> np.ndarray:
             raise LineupError(str(exc), file=f"{path}:{n}") from None
         if value <= 0:
             raise LineupError(f"{text!r}: expected a carrier frequency > 0 Hz", file=f"{path}:{n}")
+        if value not in CARRIER_FREQ:
+            raise LineupError(f"{text!r}: {CARRIER_FREQ.expected()}", file=f"{path}:{n}")
         out.append(value)
+        if len(out) > MAX_POINTS:
+            raise LineupError(
+                f"more than {MAX_POINTS} channels: expected at most {MAX_POINTS}", file=str(path)
+            )
     if not out:
         raise LineupError("no frequencies: expected one per line, e.g. '462.5625 MHz'", file=str(path))
-    if len(out) > MAX_POINTS:
-        raise LineupError(f"{len(out)} channels: expected at most {MAX_POINTS}", file=str(path))
     return np.array(out)
 
 
@@ -209,7 +251,10 @@ def drive_sweep(
     require_mask(lineup)
     k = lineup.reference_carrier_index
     nominal = lineup.carriers[k].power_dbm
+    _drive_range(start_dbm, stop_dbm, target_output)
     points = sweep_points(start_dbm, stop_dbm, step_db, "drive", "dBm", "dB")
+    if why := work_refusal(lineup, len(points), "drive points"):
+        raise SweepError(why)
     offsets = points - nominal
     if target_output:
         offsets = _inputs_for_outputs(lineup, points, combine)
@@ -295,12 +340,19 @@ def _bisect(good, lo: float, hi: float, tol: float) -> float:
     return lo
 
 
+# Input offsets around the nominal drive searched for a target output (dB).
+_TARGET_SEARCH_DB = (-60.0, 40.0)
+
+
 def _inputs_for_outputs(lineup, targets_dbm: np.ndarray, combine) -> np.ndarray:
-    """Input offsets (dB) that give each target output power; NaN where unreachable."""
+    """Input offsets (dB) that give each target output power.
+
+    A target the model cannot reach (above saturation, or below the output at the
+    lowest input searched) is a :class:`SweepError` naming the reachable range: a
+    point that was never evaluated must not read as meeting the mask.
+    """
     k = lineup.reference_carrier_index
-    nominal = lineup.carriers[k].power_dbm
-    del nominal
-    grid = np.arange(-60.0, 40.0, 0.02)  # input offsets around the nominal drive (dB)
+    grid = np.arange(*_TARGET_SEARCH_DB, 0.02)  # input offsets around the nominal drive (dB)
     result = lineup.run(drive_offset_db=grid)
     out = result.carrier_levels_dbm_batch()[:, k]
     # The usable part of the transfer is where the output still rises with drive.
@@ -308,7 +360,19 @@ def _inputs_for_outputs(lineup, targets_dbm: np.ndarray, combine) -> np.ndarray:
     stop = np.argmin(rising) if not rising.all() else len(out)
     g, o = grid[:stop], out[:stop]
     inside = (targets_dbm >= o[0]) & (targets_dbm <= o[-1])
-    return np.where(inside, np.interp(targets_dbm, o, g), np.nan)
+    if not inside.all():
+        bad = float(targets_dbm[~inside][-1] if targets_dbm[-1] > o[-1] else targets_dbm[~inside][0])
+        option = "--stop" if bad > o[-1] else "--start"
+        why = (
+            "the output saturates there"
+            if bad > o[-1]
+            else f"the lowest input searched, {-_TARGET_SEARCH_DB[0]:g} dB below the nominal drive"
+        )
+        raise SweepError(
+            f"{option} {bad:+g} dBm (--target-output) is unreachable: the modelled output of the strongest "
+            f"carrier runs from {o[0]:+.2f} to {o[-1]:+.2f} dBm ({why}); expected target outputs in that range"
+        )
+    return np.interp(targets_dbm, o, g)
 
 
 @dataclass(frozen=True)
@@ -397,6 +461,10 @@ def tune_sweep(
     def tones_for(f):
         return base[None, :] + (f[:, None] - ref) * shift[None, :]
 
+    _check_channels(lineup, carrier_hz, tones_for(carrier_hz))
+    if why := work_refusal(lineup, carrier_hz.size, "channels"):
+        raise SweepError(why)
+
     def one_chunk(chunk):
         result = lineup.run(tone_freqs_hz=tones_for(chunk))
         levels = result.levels(None, combine)
@@ -438,6 +506,31 @@ def tune_sweep(
         rows=rows,
         failing=failing,
     )
+
+
+def _check_channels(lineup, carrier_hz: np.ndarray, tones_hz: np.ndarray) -> None:
+    """Every tone, and every carrier after every mixer, within the carrier range, per channel.
+
+    A lower-sideband mixer tuned through its IF puts the wanted product at 0 Hz for one
+    channel: refused as the lineup loader refuses it, never checked against no rule.
+    """
+    from .units import format_freq
+
+    what = "LO" if lineup.mixers else "carrier"
+    checks = [("a tone", tones_hz)]
+    for node, stage in enumerate(lineup.stages, start=1):
+        if getattr(stage, "lo_freq_hz", None) is not None:
+            wanted = np.abs(tones_hz @ lineup.carrier_vectors(node).T.astype(float))
+            checks.append((f"the wanted product of '{stage.name}'", wanted))
+    for name, freqs in checks:
+        out = (freqs < CARRIER_FREQ.lo) | (freqs > CARRIER_FREQ.hi)
+        if out.any():
+            i, j = np.argwhere(out)[0]
+            within = replace(CARRIER_FREQ, what="channels that keep it")
+            raise SweepError(
+                f"the {what} at {format_freq(carrier_hz[i])} puts {name} at {format_freq(freqs[i, j])}: "
+                f"{within.expected()}"
+            )
 
 
 def _failing_ranges(

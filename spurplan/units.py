@@ -31,8 +31,16 @@ import numpy as np
 from .errors import UnitError
 from .fields import _did_you_mean
 
-_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
-_QUANTITY = re.compile(rf"^\s*({_NUMBER})\s*([^\s\d+-].*?)?\s*$")
+# Matched against the stripped text with fullmatch.  Every quantifier here has one way to
+# match a given text (the digits before a point, the spaces before the unit, the unit to
+# the end), so the time is linear in the length: the earlier form, with a lazy unit and
+# trailing spaces both able to take the same run of spaces, backtracked quadratically
+# (20 s for 64,000 characters).
+_NUMBER = r"[+-]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][+-]?\d+)?"
+_QUANTITY = re.compile(rf"({_NUMBER})\s*([^\s\d+-].*)?", re.DOTALL)
+# The longest value string read ("-28 dBc @ +20 dBm" is 17 characters); a longer one is
+# refused before any pattern sees it.
+MAX_VALUE_CHARS = 200
 
 # Accepted spellings, case-exact (SI symbols; BIPM SI Brochure, 9th edition 2019).
 _FREQ_SCALE = {"Hz": 1.0, "kHz": 1e3, "MHz": 1e6, "GHz": 1e9, "THz": 1e12}
@@ -72,7 +80,8 @@ def _split(text: object, expected: str) -> tuple[float, str]:
     if not isinstance(text, str):
         # A TOML number: legal syntax, but it carries no unit.
         raise UnitError(text, f"{expected} (a bare number has no unit)")
-    match = _QUANTITY.match(text)
+    check_value_length(text, expected)
+    match = _QUANTITY.fullmatch(text.strip())
     if match is None:
         if text.strip().lower().lstrip("+-").startswith(("nan", "inf")):
             raise UnitError(text, f"{expected} (a finite number)")
@@ -81,6 +90,15 @@ def _split(text: object, expected: str) -> tuple[float, str]:
     if not math.isfinite(value):
         raise UnitError(text, f"{expected} (a finite number)")
     return value, (match.group(2) or "").strip()
+
+
+def check_value_length(text: str, expected: str) -> None:
+    """Refuse a value string longer than :data:`MAX_VALUE_CHARS`, quoting only its start."""
+    if len(text) > MAX_VALUE_CHARS:
+        raise UnitError(
+            f"{text[:40]}...",
+            f"{expected} (a value of at most {MAX_VALUE_CHARS} characters, not {len(text)})",
+        )
 
 
 def _require_unit(text: object, unit: str, expected: str) -> None:
@@ -202,6 +220,7 @@ def parse_dbc_at(text: object) -> tuple[float, float]:
     """
     if not isinstance(text, str) or "@" not in text:
         raise UnitError(text, DBC_AT_UNITS)
+    check_value_length(text, DBC_AT_UNITS)
     left, right = text.split("@", 1)
     try:
         value, unit = _split(left, DBC_AT_UNITS)

@@ -36,7 +36,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..fields import Fields
+from ..fields import Fields, Within
 from ..filters import SParameterTable
 from ..nonlinear import Polynomial, Saturating
 from ..units import dbm_to_vpeak, parse_dbc_at, parse_freq_hz, parse_gain_db, parse_power_dbm, vpeak_to_dbm
@@ -49,6 +49,18 @@ MAX_HARMONIC = 9
 # (datasheet rounding).
 CONSISTENCY_DB = 0.5
 MAX_BAND_ORDER = 8
+# Physical-sense ranges of the keys (README, "Plausible values"; common practice, no
+# source).  Gain: a pad-like stage of -20 dB to a high-gain module of +60 dB.  Output
+# powers: -50 dBm (a small-signal buffer) to +90 dBm (1 MW).  Intercepts reach higher,
+# a second-order intercept tens of dB above Psat, up to what the unit parser takes.
+GAIN = Within("an amplifier gain", -20.0, 60.0, "dB")
+PSAT = Within("a saturated output power", -50.0, 90.0, "dBm")
+P1DB = Within("an output 1 dB compression point", -50.0, 90.0, "dBm")
+OUTPUT_INTERCEPT = Within("an output intercept point", -50.0, 100.0, "dBm")
+# Input-referred: the output range less the highest gain.
+INPUT_INTERCEPT = Within("an input intercept point", -110.0, 100.0, "dBm")
+HARMONIC_DBC = Within("a harmonic level", -200.0, 0.0, "dBc", "below the carrier")
+HARMONIC_AT = Within("the output power of a harmonic figure", -50.0, 90.0, "dBm")
 # Knots of the zone weights run to this zone; beyond, what the stage generates keeps
 # the memoryless level (0 dB), shaped by the pass band.
 _WEIGHT_ZONES = MAX_HARMONIC + 1
@@ -473,8 +485,8 @@ def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[object, d
 
 def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | None:
     """An intercept given output-referred, input-referred or both (must agree)."""
-    out = fields.quantity(out_key, parse_power_dbm)
-    inp = fields.quantity(in_key, parse_power_dbm)
+    out = fields.quantity(out_key, parse_power_dbm, within=OUTPUT_INTERCEPT)
+    inp = fields.quantity(in_key, parse_power_dbm, within=INPUT_INTERCEPT)
     if out is not None and inp is not None and abs(out - (inp + gain_db)) > CONSISTENCY_DB:
         raise fields.error(
             in_key,
@@ -493,14 +505,14 @@ def read_figures(fields: Fields) -> AmplifierFigures:
     sets the harmonics, the in-band terminations the intermodulation) and are both
     honoured; ``hN`` and ``ohipN`` are two forms of one figure and must agree.
     """
-    gain = fields.quantity("gain", parse_gain_db, required=True)
+    gain = fields.quantity("gain", parse_gain_db, required=True, within=GAIN)
     oip3 = _pair(fields, "oip3", "iip3", gain)
     oip2 = _pair(fields, "oip2", "iip2", gain)
     ohip: dict[int, float] = {}
     harmonics: dict[int, tuple[float, float]] = {}
     for n in range(2, MAX_HARMONIC + 1):
-        from_ohip = fields.quantity(f"ohip{n}", parse_power_dbm)
-        point = fields.quantity(f"h{n}", parse_dbc_at)
+        from_ohip = fields.quantity(f"ohip{n}", parse_power_dbm, within=OUTPUT_INTERCEPT)
+        point = fields.quantity(f"h{n}", parse_dbc_at, within=(HARMONIC_DBC, HARMONIC_AT))
         if from_ohip is not None and point is not None:
             dbc, at_dbm = point
             implied = at_dbm + abs(dbc) / (n - 1)
@@ -515,10 +527,21 @@ def read_figures(fields: Fields) -> AmplifierFigures:
             harmonics[n] = point
         elif from_ohip is not None:
             ohip[n] = from_ohip
-    p1db = fields.quantity("p1db", parse_power_dbm)
-    psat = fields.quantity("psat", parse_power_dbm)
+    p1db = fields.quantity("p1db", parse_power_dbm, within=P1DB)
+    psat = fields.quantity("psat", parse_power_dbm, within=PSAT)
     if p1db is not None and psat is not None and p1db > psat:
         raise fields.error("p1db", f"{fields.raw('p1db')!r}: expected p1db <= psat {fields.raw('psat')!r}")
+    if psat is not None:
+        # The output cannot exceed saturation, so no figure can have been measured above it
+        # (beyond datasheet rounding, CONSISTENCY_DB).
+        for n, (_, at_dbm) in harmonics.items():
+            if at_dbm > psat + CONSISTENCY_DB:
+                raise fields.error(
+                    f"h{n}",
+                    f"{fields.raw(f'h{n}')!r} is stated at an output above psat {fields.raw('psat')!r}: "
+                    f"expected the output power of a harmonic figure at or below saturation "
+                    f"(within {CONSISTENCY_DB} dB)",
+                )
     cubic = fields.text("cubic", default="compressive", choices=("compressive", "expansive"))
     return AmplifierFigures(
         gain_db=gain,

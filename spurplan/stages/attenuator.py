@@ -6,9 +6,14 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..fields import Fields
+from ..fields import Fields, Within
 from ..units import parse_gain_db
 from .base import LoadContext, flat_response
+
+# A negative loss would be a gain (an amplifier stage); beyond 100 dB no pad exists
+# (switched attenuators stop near 120 dB in steps of pads of at most tens of dB; common
+# practice, no source), and 100 dB is also the ratio parser's ceiling.
+LOSS = Within("an attenuator loss", 0.0, 100.0, "dB")
 
 
 @dataclass(frozen=True)
@@ -38,5 +43,9 @@ class Attenuator:
     def from_fields(cls, fields: Fields, context: LoadContext) -> Attenuator:
         loss = fields.quantity("loss", parse_gain_db, required=True)
         if loss < 0:
-            raise fields.error("loss", f"{fields.raw('loss')!r}: expected a loss >= 0 dB")
+            raise fields.error(
+                "loss",
+                f"{fields.raw('loss')!r}: expected a loss >= 0 dB (a negative loss is a gain: use an amplifier stage)",
+            )
+        fields.require_within("loss", loss, LOSS)
         return cls(name=fields.raw("name"), loss_db=loss)

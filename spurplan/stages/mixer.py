@@ -89,18 +89,48 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from ..engine import alias_free_grid, torus_analytic, torus_coefficients
-from ..fields import Fields
+from ..fields import CARRIER_FREQ, Fields, Within
 from ..nonlinear import per_sample
 from ..units import dbm_to_vpeak, parse_dbc, parse_freq_hz, parse_gain_db, parse_power_dbm
 from .base import LoadContext
 
-_SPUR = re.compile(r"^\s*(?:(\d*)\s*LO)?\s*(?:([+-]?)\s*(\d*)\s*IF)?\s*$", re.IGNORECASE)
+# Matched against the stripped label with fullmatch.  Each run of spaces can go to one
+# quantifier only (every "\s*" follows a token that must be there), so the time is
+# linear in the length; the earlier form, with optional digits and signs between
+# adjacent "\s*", took over a minute for 500 spaces.
+_SPUR = re.compile(r"(?:(?:(\d+)\s*)?LO)?\s*(?:(?:([+-])\s*)?(?:(\d+)\s*)?IF)?", re.IGNORECASE)
 MAX_SPUR_ORDER = 15
+
+# Physical-sense ranges of the keys (README, "Plausible values"; common practice, no
+# source).  LO drive: active mixers take about -10 dBm, diode and FET rings +7 to
+# +27 dBm; below -20 dBm no mixer switches, so the stated conversion gain cannot hold.
+LO_FREQ = replace(CARRIER_FREQ, what="an LO frequency", why="")
+LO_DRIVE = Within(
+    "an LO drive", -20.0, 30.0, "dBm", "the stated conversion gain holds only with the LO port driven"
+)
+CONVERSION_GAIN = Within("a conversion gain", -40.0, 30.0, "dB")
+CONVERSION_LOSS = Within(
+    "a conversion loss", 0.0, 40.0, "dB", "a mixer with gain states conversion_gain instead"
+)
+# Isolations and image rejection of real mixers lie between 15 and 70 dB; 100 dB is the
+# ratio parser's ceiling.
+ISOLATION = Within("an isolation", 0.0, 100.0, "dB", "a port cannot leak more than it is driven with")
+IMAGE_REJECTION = Within("an image rejection", 0.0, 100.0, "dB", "0 dB: double-sideband")
+# IF port: the compression figures and the drive of the spur table.
+IF_P1DB = Within("an IF-port 1 dB compression point", -40.0, 40.0, "dBm")
+IF_IIP3 = Within("an IF-port IIP3", -40.0, 50.0, "dBm")
+SPUR_DRIVE = Within("the IF drive of the spur table", -80.0, 30.0, "dBm")
+# Conversion products (m >= 1, n != 0) are measured below the wanted product: a spur
+# table entry above it is a sign slip.  LO products (n = 0) and the IF's own (m = 0)
+# are absolute leaks and may exceed a weak wanted output; they are bounded by the drive
+# of their port instead (:func:`_check_leaks`).
+SPUR_DBC = Within("a spur level", -200.0, 0.0, "dBc", "at or below the wanted product")
+LEAK_DBC = Within("a leakage level", -200.0, 200.0, "dBc")
 
 
 def parse_spur_label(text: str) -> tuple[int, int]:
     """``"2LO-IF"`` -> (2, -1); ``"LO+3IF"`` -> (1, 3); ``"2LO"`` -> (2, 0); ``"2IF"`` -> (0, 2)."""
-    m = _SPUR.match(text or "")
+    m = _SPUR.fullmatch((text or "").strip())
     if not m or (m.group(0).strip() == "") or ("LO" not in text.upper() and "IF" not in text.upper()):
         raise ValueError(text)
     lo_part = "lo" in text.lower()
@@ -369,28 +399,28 @@ class Mixer:
         if not isinstance(lo_raw, dict):
             raise fields.error("lo", f"{lo_raw!r}: expected a table {{ freq = '...', power = '...' }}")
         lo = Fields(lo_raw, fields.file, f"{fields.where} lo")
-        lo_freq = lo.quantity("freq", parse_freq_hz, required=True)
-        lo_power = lo.quantity("power", parse_power_dbm, required=True)
+        lo_freq = lo.quantity("freq", parse_freq_hz, required=True, within=LO_FREQ)
+        lo_power = lo.quantity("power", parse_power_dbm, required=True, within=LO_DRIVE)
         lo.finish()
-        if lo_freq <= 0:
-            raise fields.error("lo", "expected an LO frequency > 0 Hz")
-        gain = fields.quantity("conversion_gain", parse_gain_db)
-        loss = fields.quantity("conversion_loss", parse_gain_db)
+        gain = fields.quantity("conversion_gain", parse_gain_db, within=CONVERSION_GAIN)
+        loss = fields.quantity("conversion_loss", parse_gain_db, within=CONVERSION_LOSS)
         if (gain is None) == (loss is None):
             raise fields.error(
                 "conversion_gain", "expected exactly one of 'conversion_gain' or 'conversion_loss'"
             )
         gain = gain if gain is not None else -loss
         sideband = fields.text("sideband", default="upper", choices=("upper", "lower"))
-        isolation = fields.quantity("lo_isolation", parse_gain_db)
+        isolation = fields.quantity("lo_isolation", parse_gain_db, within=ISOLATION)
         if_isolation = fields.quantity("if_isolation", parse_gain_db)
         if if_isolation is not None and if_isolation < 0:
             raise fields.error(
                 "if_isolation", f"{fields.raw('if_isolation')!r}: expected an isolation >= 0 dB"
             )
-        image_rej = fields.quantity("image_rejection", parse_gain_db)
+        if if_isolation is not None:
+            fields.require_within("if_isolation", if_isolation, ISOLATION)
+        image_rej = fields.quantity("image_rejection", parse_gain_db, within=IMAGE_REJECTION)
         p1db, iip3, knee = _compression(fields, context.r_ohm)
-        drive = fields.quantity("spur_drive", parse_power_dbm)
+        drive = fields.quantity("spur_drive", parse_power_dbm, within=SPUR_DRIVE)
         raw = fields.raw("spurs", {})
         if not isinstance(raw, dict):
             raise fields.error("spurs", f'{raw!r}: expected a table such as {{ "2LO-IF" = "-40 dBc" }}')
@@ -420,6 +450,7 @@ class Mixer:
         # compressed there, by g_ref (1 without compression).
         g_ref = 1.0 if knee is None else float(envelope_gain(a_ref**2, knee))
         wanted_dbm = drive + gain + 20 * math.log10(g_ref)
+        _check_leaks(fields, raw, table, wanted_dbm, lo_power, drive)
         if isolation is not None:
             leak_dbc = lo_power - isolation - wanted_dbm
             if (1, 0) in table and abs(table[(1, 0)] - leak_dbc) > 0.5:
@@ -462,8 +493,8 @@ class Mixer:
 
 def _compression(fields: Fields, r_ohm: float) -> tuple[float | None, float | None, float | None]:
     """``p1db``, ``iip3`` (dBm, as given) and the envelope knee (peak V, or None)."""
-    p1db = fields.quantity("p1db", parse_power_dbm)
-    iip3 = fields.quantity("iip3", parse_power_dbm)
+    p1db = fields.quantity("p1db", parse_power_dbm, within=IF_P1DB)
+    iip3 = fields.quantity("iip3", parse_power_dbm, within=IF_IIP3)
     if p1db is not None and iip3 is not None and abs(iip3 - (p1db + IIP3_OVER_P1DB_DB)) > 0.5:
         raise fields.error(
             "iip3",
@@ -504,9 +535,35 @@ def _spur_table(fields: Fields, raw: dict) -> dict:
         if m + abs(n) > MAX_SPUR_ORDER:
             raise fields.error("spurs", f"{key!r}: expected an order m + |n| up to {MAX_SPUR_ORDER}")
         try:
-            table[(m, n)] = parse_dbc(value)
+            level = parse_dbc(value)
         except UnitError as exc:
             raise fields.error(
                 "spurs", f"{key} = {value!r}: expected a level in dBc, e.g. '-40 dBc'{exc.hint}"
             ) from None
+        within = SPUR_DBC if m >= 1 and n != 0 else LEAK_DBC
+        if level not in within:
+            raise fields.error("spurs", f"{key} = {value!r}: {within.expected()}")
+        table[(m, n)] = level
     return table
+
+
+def _check_leaks(fields: Fields, raw: dict, table: dict, wanted_dbm: float, lo_dbm: float, drive_dbm: float):
+    """LO products (n = 0) at most the LO drive, the IF's own (m = 0) at most the IF drive.
+
+    Both are leaks through a passive path or the port's own distortion, so at the
+    output they cannot be stronger than what drives that port (isolation >= 0 dB,
+    the bound of :data:`ISOLATION`).  The table states them relative to the wanted
+    output at ``spur_drive``, ``wanted_dbm`` (dBm).
+    """
+    names = {parse_spur_label(k): k for k in raw}
+    for (m, n), dbc in table.items():
+        if n != 0 and m != 0:
+            continue
+        port, port_dbm = ("LO", lo_dbm) if n == 0 else ("IF", drive_dbm)
+        if wanted_dbm + dbc > port_dbm + 1e-9:
+            key = names.get((m, n), spur_label(m, n))
+            raise fields.error(
+                "spurs",
+                f"{key} = {raw.get(key)!r} is {wanted_dbm + dbc:+.2f} dBm at the output, above the {port} drive "
+                f"({port_dbm:+.2f} dBm): expected a leak at or below the drive of its port",
+            )
