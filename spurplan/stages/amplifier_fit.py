@@ -25,7 +25,7 @@ Oppenheim and Schafer, Discrete-Time Signal Processing, from memory).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -319,7 +319,6 @@ def fit_compression(
     reported rather than intermodulation read optimistically.  With one compression
     figure the knee is the softest of :data:`_KNEE_LADDER` that keeps that intercept.
     """
-    from dataclasses import replace
 
     a1 = float(base.a1)
 
@@ -432,14 +431,28 @@ def _fit_p1db(build, grid: tuple[float, float], p1db_dbm: float, r_ohm: float):
     Returns the model, the end of the range nearest to the target when the range
     does not reach it, or None when no model in the range can be built.
     """
-    ends = []
-    for t in grid:
+
+    def point(t):
         m = build(t)
-        p = None if m is None else model_p1db_dbm(m, r_ohm)
-        ends.append((t, m, p))
+        return t, m, (None if m is None else model_p1db_dbm(m, r_ohm))
+
+    ends = [point(t) for t in grid]
     usable = [e for e in ends if e[2] is not None]
     if not usable:
         return None
+    if len(usable) == 1:
+        # Part of the range cannot be built (Psat out of reach there): move the other end
+        # to the edge of the part that can, so that a P1dB inside it is still found.
+        good, bad = usable[0][0], next(e[0] for e in ends if e[2] is None)
+        for _ in range(30):
+            mid = 0.5 * (good + bad)
+            if point(mid)[2] is None:
+                bad = mid
+            else:
+                good = mid
+        edge = point(good)
+        if edge[0] != usable[0][0]:
+            usable = sorted([usable[0], edge], key=lambda e: e[0])
     if len(usable) == 1 or (usable[0][2] - p1db_dbm) * (usable[1][2] - p1db_dbm) > 0:
         return min(usable, key=lambda e: abs(e[2] - p1db_dbm))[1]
 
