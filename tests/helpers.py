@@ -9,6 +9,7 @@ the engine's product rows with the brute-force reference (tests/reference.py).
 
 from __future__ import annotations
 
+import codecs
 import json
 import os
 import subprocess
@@ -200,12 +201,151 @@ def assert_one_error_line(
 # --- the engine against the brute-force reference -------------------------------------------------
 
 
-def compare_with_reference(rows, ref, floor_dbc: float = -150.0, abs_db: float = 0.01) -> int:
-    """Every product row above ``floor_dbc`` lies within ``abs_db`` of the reference
-    spectrum ``ref`` (tests/reference.py) at its frequency; returns how many were compared."""
-    compared = 0
+def representable_bins(tones_hz, max_order: int, df_hz: float) -> set[int]:
+    """Bins (of ``df_hz``) holding a product ``|m . f|`` with ``sum |m_k| <= max_order``.
+
+    Enumerated here by brute force over every integer vector (``itertools``-free:
+    a numpy grid of ``(2 max_order + 1)^K`` vectors), independently of spurplan's
+    mixing vectors; 0 Hz is left out (the stages are AC-coupled).  A product the engine
+    keeps must sit on one of these bins; a reference bin outside them can only hold
+    products of higher order, which the engine truncates by design.
+    """
+    tones = np.asarray(tones_hz, dtype=float)
+    axis = np.arange(-max_order, max_order + 1)
+    grids = np.meshgrid(*([axis] * len(tones)), indexing="ij")
+    vectors = np.stack([g.ravel() for g in grids], axis=1)
+    vectors = vectors[np.abs(vectors).sum(axis=1) <= max_order]
+    bins = np.rint(np.abs(vectors @ tones) / df_hz).astype(np.int64)
+    return {int(b) for b in np.unique(bins) if b > 0}
+
+
+def compare_with_reference(
+    rows,
+    ref,
+    floor_dbc: float = -150.0,
+    abs_db: float = 0.01,
+    *,
+    tones_hz,
+    max_order: int,
+    margin_db: float = 0.1,
+) -> int:
+    """The engine's product rows against the reference spectrum ``ref``
+    (tests/reference.py), in both directions; returns how many bins were compared.
+
+    * Every row above ``floor_dbc`` lies within ``abs_db`` of the reference at its
+      frequency.
+    * Every reference bin more than ``margin_db`` above the floor that the engine can
+      represent (a product of order <= ``max_order`` of the base tones ``tones_hz``,
+      :func:`representable_bins`) is in the table, and is compared too: a loud
+      product the engine left out fails.  dBc here is relative to the reference's
+      strongest carrier bin (the rows of kind "carrier").
+    """
+    engine = {}
     for f, level, dbc_ in zip(rows["freq_hz"], rows["level_dbm"], rows["dbc"], strict=True):
-        if dbc_ > floor_dbc:
-            assert level == pytest.approx(ref.at(f), abs=abs_db), f
-            compared += 1
-    return compared
+        engine[ref.bin_of(f)] = (float(level), float(dbc_))
+    compare = {b for b, (_, dbc_) in engine.items() if dbc_ > floor_dbc}
+    carriers = [f for f, kind in zip(rows["freq_hz"], rows["kind"], strict=True) if kind == "carrier"]
+    assert carriers, "no carrier row in the table"
+    carrier_dbm = max(ref.at(f) for f in carriers)
+    allowed = representable_bins(tones_hz, max_order, ref.df_hz)
+    loud = np.nonzero(ref.level_dbm - carrier_dbm > floor_dbc + margin_db)[0]
+    loud = {int(b) for b in loud if int(b) in allowed}
+    missing = sorted(b for b in loud if b not in engine)
+    assert not missing, (
+        f"reference bins {missing} (df {ref.df_hz} Hz) are above {floor_dbc} dBc and of order "
+        f"<= {max_order}, but not in the engine's table"
+    )
+    compare |= loud
+    for b in sorted(compare):
+        # Expected value: brute-force time-domain FFT (tests/reference.py, numpy.fft).
+        assert engine[b][0] == pytest.approx(float(ref.level_dbm[b]), abs=abs_db), b * ref.df_hz
+    return len(compare)
+
+
+# --- running as an unprivileged user --------------------------------------------------------------
+
+
+def unprivileged_ids() -> tuple[int, int] | None:
+    """(uid, gid) of the ``nobody`` account when running as root on a POSIX system, else None."""
+    if not hasattr(os, "fork") or not hasattr(os, "geteuid") or os.geteuid() != 0:
+        return None
+    try:
+        import pwd
+
+        entry = pwd.getpwnam("nobody")
+    except (ImportError, KeyError):
+        return None
+    return entry.pw_uid, entry.pw_gid
+
+
+def run_in_process_unprivileged(args, check_unreadable=(), warm_up=(), timeout: float = 120):
+    """Run the CLI in-process in a forked child that has dropped root for ``nobody``.
+
+    Returns (exit code, stdout, stderr, detail, unreadable), where ``unreadable`` says
+    whether every path in ``check_unreadable`` was unreadable to the child
+    (``os.access``), the precondition of a permission test.  ``warm_up`` (CLI
+    arguments) is run first, still as root, for the modules it imports.  The child does not exec:
+    the interpreter may sit in a folder that ``nobody`` cannot enter.  setgroups,
+    setgid then setuid, in that order (a process that has given up its uid can no
+    longer change its groups; POSIX setuid(2), from memory).  Skips when no
+    unprivileged account exists.
+    """
+    import select
+    import signal
+    import warnings
+
+    ids = unprivileged_ids()
+    if ids is None:
+        pytest.skip("needs root and a 'nobody' account to drop privileges")
+    uid, gid = ids
+    read_fd, write_fd = os.pipe()
+    with warnings.catch_warnings():
+        # Python 3.12+ warns that fork() in a threaded process may deadlock; the child
+        # below is bounded by ``timeout`` and killed if it hangs.
+        warnings.simplefilter("ignore", DeprecationWarning)
+        pid = os.fork()
+    if pid == 0:  # pragma: no cover - runs in the child
+        status = 0
+        try:
+            os.close(read_fd)
+            # The interpreter's own files may sit below a folder that ``nobody`` cannot
+            # enter (a per-user Python install): load, while still root, what is loaded
+            # lazily later: codecs, and the modules the command imports.
+            codecs.lookup("utf-8-sig")
+            if warm_up:
+                run_in_process(warm_up)
+            os.setgroups([])
+            os.setgid(gid)
+            os.setuid(uid)
+            unreadable = all(not os.access(p, os.R_OK) for p in check_unreadable)
+            code, out, err, detail, _ = run_in_process(args)
+            payload = json.dumps([code, out, err, detail, unreadable])
+        except BaseException as exc:
+            payload = json.dumps(
+                [-1, "", "", "child failed: " + "".join(traceback.format_exception(exc)), False]
+            )
+            status = 1
+        data = payload.encode("utf-8")
+        while data:
+            data = data[os.write(write_fd, data) :]
+        os._exit(status)
+    os.close(write_fd)
+    chunks = []
+    deadline = time.monotonic() + timeout
+    try:
+        while True:
+            left = deadline - time.monotonic()
+            ready, _, _ = select.select([read_fd], [], [], max(left, 0))
+            if not ready:
+                os.kill(pid, signal.SIGKILL)
+                pytest.fail(f"the unprivileged child did not finish within {timeout} s")
+            chunk = os.read(read_fd, 1 << 16)
+            if not chunk:
+                break
+            chunks.append(chunk)
+    finally:
+        os.close(read_fd)
+        os.waitpid(pid, 0)
+    code, out, err, detail, unreadable = json.loads(b"".join(chunks).decode("utf-8"))
+    assert code != -1, detail
+    return code, out, err, detail, unreadable

@@ -78,6 +78,7 @@ def parts(draw):
 
 @settings(max_examples=40, deadline=None)
 @given(parts())
+@pytest.mark.slow
 def test_every_stated_figure_is_reproduced_at_its_point(table):
     stage = amp("pa", **table)
     gain = float(table["gain"].split()[0])
@@ -258,6 +259,7 @@ def test_missing_figures_never_pass(figures, missing):
         assert outcome.verdict.startswith("PASS")
 
 
+@pytest.mark.slow
 def test_strict_turns_an_incomplete_model_into_a_failure(tmp_path):
     from helpers import run_cli
 
@@ -302,6 +304,7 @@ def test_pass_band_corner_is_minus_3_db_and_rolls_off_20n_db_per_decade():
         assert decade == pytest.approx(-20.0 * order, abs=0.01)
 
 
+@pytest.mark.slow
 def test_pass_band_shapes_difference_products_and_passing_harmonics():
     # Two carriers 25 kHz apart through a driver whose f2 - f1 product the PA's band
     # (first order, 10 MHz low corner) cuts by 20 log10(25 kHz / 10 MHz) = -52.04 dB

@@ -156,6 +156,7 @@ _POWERS_DBM = st.sampled_from([-16.0, -13.0, -10.0])
     carriers=st.lists(st.tuples(_FREQS_MHZ, _POWERS_DBM), min_size=2, max_size=3, unique_by=lambda c: c[0]),
     data=st.data(),
 )
+@pytest.mark.slow
 def test_worst_margin_and_products_do_not_depend_on_the_order(carriers, data):
     # Listing the same carriers in another order describes the same transmitter: the set
     # of product frequencies, each one's margin, and the worst margin must not change

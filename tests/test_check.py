@@ -171,3 +171,77 @@ def test_relative_rules_use_the_total_carrier_power():
     outcome = check(_lineup([amp(gain="20 dB", oip3="+60 dBm")], carriers, mask))
     assert outcome.carrier_dbm == pytest.approx(20 + 10 * math.log10(2), abs=0.01)
     assert _row(outcome, "2f1-f2")["limit_dbm"] == pytest.approx(20 + 10 * math.log10(2) - 60, abs=0.01)
+
+
+def _two_tone_check(carriers, mask, max_order=7):
+    stages = [amp(gain="20 dB", oip3="+30 dBm", oip2="+40 dBm", ohip5="+45 dBm", ohip7="+40 dBm")]
+    return check(_lineup(stages, carriers, mask, max_order=max_order))
+
+
+FLAT_100K = {"rule": [{"start": "9 kHz", "stop": "10 GHz", "limit": "-36 dBm", "rbw": "100 kHz"}]}
+
+
+def test_product_narrower_than_rbw_gets_no_correction():
+    # A product narrower than the RBW falls whole inside it and reads its full power
+    # (common practice, no source): 2f1 - f2 of two 10 kHz carriers is 2 x 10 + 10 = 30 kHz
+    # wide (sum |m_k| B_k, arithmetic), 2f1 is 20 kHz: both below 100 kHz, 0 dB.
+    carriers = [
+        {"freq": "450 MHz", "power": "-10 dBm", "bandwidth": "10 kHz"},
+        {"freq": "460 MHz", "power": "-10 dBm", "bandwidth": "10 kHz"},
+    ]
+    outcome = _two_tone_check(carriers, FLAT_100K)
+    for label, width_hz in (("2f1-f2", 30e3), ("2f1", 20e3), ("f1+f2", 20e3)):
+        row = _row(outcome, label)
+        assert row["bandwidth_hz"] == pytest.approx(width_hz)
+        assert row["level_in_rbw_dbm"] == row["level_dbm"], label
+
+
+def test_product_ten_rbw_wide_reads_exactly_10_db_lower():
+    # Power spread evenly over B, read in RBW < B: 10 log10(B / RBW) lower (common practice,
+    # no source): one 500 kHz carrier, 2f1 is 1 MHz wide = 10 x 100 kHz, exactly 10 dB;
+    # 3f1 is 1.5 MHz, 10 log10(15) = 11.761 dB (arithmetic). A product exactly one RBW
+    # wide (4f1 = 2 MHz in a 2 MHz RBW rule) reads its full power.
+    carriers = [{"freq": "100 MHz", "power": "-10 dBm", "bandwidth": "500 kHz"}]
+    stages = [amp(gain="20 dB", oip3="+30 dBm", oip2="+40 dBm", ohip4="+45 dBm")]
+    outcome = check(_lineup(stages, carriers, FLAT_100K, max_order=4))
+    h2, h3 = _row(outcome, "2f1"), _row(outcome, "3f1")
+    assert h2["level_dbm"] - h2["level_in_rbw_dbm"] == pytest.approx(10.0, abs=1e-9)
+    assert h3["level_dbm"] - h3["level_in_rbw_dbm"] == pytest.approx(10 * math.log10(15), abs=1e-9)
+    wide = {"rule": [{"start": "9 kHz", "stop": "10 GHz", "limit": "-36 dBm", "rbw": "2 MHz"}]}
+    outcome = check(_lineup(stages, carriers, wide, max_order=4))
+    h4 = _row(outcome, "4f1")
+    assert h4["bandwidth_hz"] == pytest.approx(2e6)
+    assert h4["level_in_rbw_dbm"] == pytest.approx(h4["level_dbm"], abs=1e-12)
+
+
+@pytest.mark.parametrize(("spacing", "domain"), [("24.5 kHz", "out-of-band"), ("25.5 kHz", "spurious")])
+def test_out_of_band_boundary_just_inside_and_just_beyond(spacing, domain):
+    # The out-of-band domain reaches 250 % of the necessary bandwidth from the carrier
+    # (ITU RR Appendix 3, from memory): 50 kHz for 20 kHz carriers. 3f1 - 2f2 lies two
+    # spacings below f1 (arithmetic): 49 kHz (inside) or 51 kHz (beyond).
+    f2 = 450e6 + float(spacing.split()[0]) * 1e3
+    carriers = [
+        {"freq": "450 MHz", "power": "-10 dBm", "bandwidth": "20 kHz"},
+        {"freq": f"{f2 / 1e6:.4f} MHz", "power": "-10 dBm", "bandwidth": "20 kHz"},
+    ]
+    outcome = _two_tone_check(carriers, FLAT_100K)
+    row = _row(outcome, "3f1-2f2")
+    assert row["domain"] == domain
+    assert (row["pass"] is None) == (domain == "out-of-band")
+    # One spacing away is always inside, three always beyond (24.5-25.5 vs 73.5-76.5 kHz).
+    assert _row(outcome, "2f1-f2")["domain"] == "out-of-band"
+    assert _row(outcome, "4f1-3f2")["domain"] == "spurious"
+
+
+@pytest.mark.parametrize(("bandwidth", "domain"), [("2 MHz", "out-of-band"), ("1.9 MHz", "spurious")])
+def test_out_of_band_boundary_scales_with_the_necessary_bandwidth(bandwidth, domain):
+    # The same boundary moved by the bandwidth (ITU RR Appendix 3, 250 %, from memory):
+    # 2f1 - f2 sits 4.9 MHz below f1 (carriers 100 and 104.9 MHz, arithmetic); 2.5 x 2 MHz
+    # = 5 MHz puts it inside, 2.5 x 1.9 MHz = 4.75 MHz beyond.
+    carriers = [
+        {"freq": "100 MHz", "power": "-10 dBm", "bandwidth": bandwidth},
+        {"freq": "104.9 MHz", "power": "-10 dBm", "bandwidth": bandwidth},
+    ]
+    outcome = _two_tone_check(carriers, FLAT_100K, max_order=3)
+    assert _row(outcome, "2f1-f2")["domain"] == domain
+    assert _row(outcome, "2f2-f1")["domain"] == domain

@@ -272,6 +272,7 @@ def _png_size(path: Path) -> tuple[int, int]:
 
 
 @pytest.mark.parametrize(("size", "want"), [("800x500", (800, 500)), ("640x480", (640, 480))])
+@pytest.mark.slow
 def test_plot_png_has_the_asked_size(size, want, mixed, tmp_path):
     out = tmp_path / "out.png"
     invoke("check", mixed, "--plot", out, "--plot-size", size, expect=1)

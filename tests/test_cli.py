@@ -259,6 +259,7 @@ def test_budget_cascaded_iip3_matches_cascade_formula(pad, stages, tmp_path):
     assert rows[-1]["cascade_oip3_dbm"] == pytest.approx(expected + total_gain, abs=1e-9)
 
 
+@pytest.mark.slow
 def test_budget_of_a_linear_amplifier_is_clean(tmp_path):
     # An amplifier given only a gain is linear: it never compresses by 1 dB, so it has no
     # P1dB (None, as output_p1db_dbm documents for a linear model), and the carrier
@@ -359,6 +360,7 @@ def test_bad_format_is_one_line_error(tmp_path):
     [["spectrum"], ["spectrum", "--format", "json"], ["budget"], ["budget", "--format", "csv"]],
     ids=lambda a: " ".join(a),
 )
+@pytest.mark.slow
 def test_bundled_example_from_another_directory(args, tmp_path):
     proc = run_cli(args, cwd=tmp_path)
     assert proc.returncode == 0, proc.stderr

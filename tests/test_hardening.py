@@ -39,7 +39,13 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from helpers import assert_one_error_line, run_cli, run_in_process
+from helpers import (
+    assert_one_error_line,
+    run_cli,
+    run_in_process,
+    run_in_process_unprivileged,
+    unprivileged_ids,
+)
 
 try:
     import resource
@@ -535,6 +541,7 @@ def run_limited(args, cwd, timeout: float = 60):
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if not c.only_proc], ids=lambda c: c.id)
+@pytest.mark.slow
 def test_malformed_in_process(case, tmp_path):
     _materialise(case, tmp_path)
     code, out, err, detail, seconds = run_in_process(_fill(case.args, tmp_path))
@@ -548,6 +555,7 @@ def test_malformed_in_process(case, tmp_path):
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc or c.only_proc], ids=lambda c: c.id)
+@pytest.mark.slow
 def test_malformed_subprocess(case, tmp_path):
     _materialise(case, tmp_path)
     proc, seconds = run_limited(_fill(case.args, tmp_path), cwd=tmp_path, timeout=60)
@@ -583,35 +591,70 @@ def test_corrupt_touchstone_leaves_no_open_file(tmp_path):
     assert leaks == []
 
 
-def test_unreadable_touchstone_file(tmp_path):
-    (tmp_path / "l.toml").write_text(filter_lineup("locked.s2p"), encoding="utf-8")
-    locked = tmp_path / "locked.s2p"
+@pytest.fixture
+def readable_dir(tmp_path):
+    """A folder for the permission tests: ``tmp_path`` for an ordinary user; as root, a
+    mode-0755 folder under the system's temporary folder, which the unprivileged child
+    of :func:`helpers.run_in_process_unprivileged` can enter (pytest's own folders are
+    mode 0700 and belong to root)."""
+    if unprivileged_ids() is None:
+        yield tmp_path
+        return
+    import shutil
+    import tempfile
+
+    folder = Path(tempfile.mkdtemp(prefix="spurplan-perm-"))
+    try:
+        folder.chmod(0o755)
+        yield folder
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _run_without_read_permission(args, locked: Path):
+    """Run the CLI where ``locked`` (mode 000) cannot be read: in process for an ordinary
+    user; as root (who reads any file: POSIX access permissions, from memory) in a child
+    that has dropped privileges.  Skips only when neither can make the file unreadable."""
+    if unprivileged_ids() is None:
+        if os.access(locked, os.R_OK):
+            pytest.skip("this user can read a file with mode 000 and cannot drop privileges")
+        code, out, err, detail, _ = run_in_process(args)
+        return code, out, err, detail
+    code, out, err, detail, unreadable = run_in_process_unprivileged(args, check_unreadable=[locked])
+    assert unreadable, "precondition: the unprivileged child cannot read the mode-000 file"
+    return code, out, err, detail
+
+
+def test_unreadable_touchstone_file(readable_dir):
+    lineup_path = readable_dir / "l.toml"
+    lineup_path.write_text(filter_lineup("locked.s2p"), encoding="utf-8")
+    lineup_path.chmod(0o644)
+    locked = readable_dir / "locked.s2p"
     locked.write_text(RI_MHZ + s2p_rows(F6), encoding="utf-8")
     locked.chmod(0)
     try:
-        if os.access(locked, os.R_OK):
-            pytest.skip("this user can read a file with mode 000 (root)")
-        code, out, err, detail, _ = run_in_process(["spectrum", str(tmp_path / "l.toml")])
+        code, out, err, detail = _run_without_read_permission(["spectrum", str(lineup_path)], locked)
         assert_one_error(
             code,
             out,
             err,
-            (str(tmp_path / "l.toml"), "stage 1 'flt'", "field 'touchstone'", "'locked.s2p'"),
+            (str(lineup_path), "stage 1 'flt'", "field 'touchstone'", "'locked.s2p'"),
             detail=detail,
         )
     finally:
         locked.chmod(0o600)
 
 
-def test_unreadable_lineup_file(tmp_path):
-    path = tmp_path / "l.toml"
+def test_unreadable_lineup_file(readable_dir):
+    path = readable_dir / "l.toml"
     path.write_text(MASKED, encoding="utf-8")
     path.chmod(0)
     try:
-        if os.access(path, os.R_OK):
-            pytest.skip("this user can read a file with mode 000 (root)")
-        code, out, err, detail, _ = run_in_process(["check", str(path)])
-        assert_one_error(code, out, err, (str(path), "cannot read"), detail=detail)
+        code, out, err, detail = _run_without_read_permission(["check", str(path)], path)
+        # One line naming the file; the reason is either spurplan's ("cannot read") or
+        # the command line's own check of the argument ("is not readable").
+        line = assert_one_error(code, out, err, (str(path),), detail=detail)
+        assert "cannot read" in line or "is not readable" in line, line
     finally:
         path.chmod(0o600)
 
@@ -654,6 +697,7 @@ def test_data_short_of_a_product_runs_under_the_other_policies(policy, tmp_path)
 
 
 @pytest.mark.parametrize("how", ["in-process", "subprocess"])
+@pytest.mark.slow
 def test_lineup_with_a_byte_order_mark(how, tmp_path):
     # Some editors start UTF-8 files with U+FEFF (the Unicode standard calls it a
     # byte-order mark and allows it in UTF-8; from memory).  Either read the file as
@@ -692,6 +736,7 @@ def test_stage_name_100_kb_is_fine_or_one_line(tmp_path):
         assert name in out  # the product rows name the stage
 
 
+@pytest.mark.slow
 def test_stage_name_100_kb_subprocess(tmp_path):
     name = "y" * 100_000
     text = CARRIER_100 + f'[[stage]]\nkind = "amplifier"\nname = "{name}"\ngain = "10 dB"\nloss = "1 dB"\n'
@@ -887,6 +932,7 @@ def writer(request, tmp_path):
 
 
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
+@pytest.mark.slow
 def test_writer_works_when_not_interrupted(writer, tmp_path):
     # The control for the tests below: uninterrupted, each command writes its file.
     _, args, target = writer
@@ -898,6 +944,7 @@ def test_writer_works_when_not_interrupted(writer, tmp_path):
 
 @pytest.mark.parametrize("existed", [False, True], ids=["new", "existing"])
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
+@pytest.mark.slow
 def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, monkeypatch):
     import spurplan.outputs
 
@@ -923,6 +970,7 @@ def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, mo
 
 @pytest.mark.parametrize("existed", [False, True], ids=["new", "existing"])
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
+@pytest.mark.slow
 def test_interrupted_mid_write_leaves_no_partial_file(writer, existed, tmp_path, monkeypatch):
     # The interruption comes after half the bytes have reached the disk.
     import spurplan.outputs
@@ -966,6 +1014,7 @@ def test_figure_rendering_interrupted_halfway_leaves_no_file(writer, existed, tm
 
 
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
+@pytest.mark.slow
 def test_full_disk_is_one_line_and_leaves_no_partial_file(writer, tmp_path, monkeypatch):
     # The disk fills up after half the bytes (ENOSPC, errno 28 on Linux): an output
     # error, so exit status 2 and one line naming the file, and nothing left behind.
@@ -988,6 +1037,7 @@ def test_full_disk_is_one_line_and_leaves_no_partial_file(writer, tmp_path, monk
     assert_one_error(code, out, err, (str(target), "No space left on device"), detail=detail)
 
 
+@pytest.mark.slow
 def test_file_size_limit_in_a_real_process_is_one_line(tmp_path):
     # A real write failure without any patching: RLIMIT_FSIZE makes write(2) fail
     # with EFBIG once a file would pass 4 kB (setrlimit(2) man page; CPython ignores

@@ -605,6 +605,7 @@ def _run_as_a_user(args: list[str]) -> tuple:
 
 
 @pytest.mark.parametrize("which", ["check-plot", "filter-touchstone", "report", "remedy-write"])
+@pytest.mark.slow
 def test_read_only_folder_is_one_line(which, tmp_path):
     ro = tmp_path / "ro"
     ro.mkdir()
@@ -662,6 +663,7 @@ def test_clashing_files_folder_is_one_line_and_nothing_is_written(clash, tmp_pat
 
 
 @pytest.mark.parametrize("where", ["files-folder", "report-folder"])
+@pytest.mark.slow
 def test_read_only_folders_of_a_markdown_report_are_one_line(where, tmp_path):
     # A read-only r_files (from an earlier report), or a read-only folder for the report.
     home = tmp_path / "reports"
@@ -706,6 +708,7 @@ def test_markdown_report_replaces_its_own_earlier_folder_whole(tmp_path):
 
 
 @pytest.mark.parametrize("step", ["folder-rename", "text-rename"])
+@pytest.mark.slow
 def test_interrupted_markdown_report_keeps_the_earlier_one(step, tmp_path, monkeypatch):
     # Ctrl-C at the folder's rename or at the text's: the earlier report (text and
     # figures) is as it was, and no hidden folder or file is left.
@@ -808,6 +811,7 @@ def _tmpfile_supported(folder: Path) -> bool:
     ],
     ids=["html-new", "html-over-earlier", "md-figure", "md-text-over-earlier", "check-plot"],
 )
+@pytest.mark.slow
 def test_sigkill_during_a_write_leaves_nothing_behind(output, nth, earlier, tmp_path):
     out = tmp_path / "out"
     out.mkdir()
@@ -851,6 +855,7 @@ def test_sigkill_during_a_write_leaves_nothing_behind(output, nth, earlier, tmp_
 
 
 @pytest.mark.parametrize("delay_s", [0.4, 0.8, 1.2])
+@pytest.mark.slow
 def test_sigkill_at_a_moment_leaves_the_whole_report_or_nothing(delay_s, tmp_path):
     # No patching: the real command, killed at some moment of its run.  Whatever the
     # moment, the folder holds nothing new, or the whole report (an HTML file ends

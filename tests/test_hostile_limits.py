@@ -111,6 +111,7 @@ def _listing(folder: Path) -> list[str]:
 
 @pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no named pipes here")
 @pytest.mark.parametrize("command", [["check"], ["spectrum"], ["budget"]])
+@pytest.mark.slow
 def test_a_named_pipe_as_lineup_is_refused_without_blocking(tmp_path, command):
     # Nothing ever writes to the pipe: a blocking open or read would hang until the timeout.
     os.mkfifo(tmp_path / "l.toml")
@@ -118,6 +119,7 @@ def test_a_named_pipe_as_lineup_is_refused_without_blocking(tmp_path, command):
 
 
 @pytest.mark.parametrize("device", ["/dev/zero", "/dev/urandom"])
+@pytest.mark.slow
 def test_an_endless_device_as_lineup_is_refused_without_reading_it(tmp_path, device):
     if not os.path.exists(device):
         pytest.skip(f"no {device} here")
@@ -127,6 +129,7 @@ def test_an_endless_device_as_lineup_is_refused_without_reading_it(tmp_path, dev
 
 
 @pytest.mark.skipif(not hasattr(socket, "AF_UNIX"), reason="no Unix sockets here")
+@pytest.mark.slow
 def test_a_socket_as_lineup_is_refused(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)  # a short relative name: socket paths are limited to ~100 bytes
     with socket.socket(socket.AF_UNIX, socket.SOCK_STREAM) as server:
@@ -144,6 +147,7 @@ def test_a_named_pipe_as_channel_file_is_refused_without_blocking(tmp_path):
 
 
 @pytest.mark.skipif(not hasattr(os, "mkfifo"), reason="no named pipes here")
+@pytest.mark.slow
 def test_a_named_pipe_as_rule_file_is_refused_without_blocking(tmp_path):
     _write(tmp_path, "l.toml", "# invented test lineup\n" + CARRIER + PA + '[mask]\nfiles = ["rules.toml"]\n')
     os.mkfifo(tmp_path / "rules.toml")
@@ -204,6 +208,7 @@ def test_a_binary_channel_file_is_one_line(tmp_path, data, needle):
     _inproc(["tune", tmp_path / "l.toml", "--channels", tmp_path / "ch.txt"], (needle,), names="ch.txt")
 
 
+@pytest.mark.slow
 def test_a_channel_file_with_too_many_channels_stops_at_the_limit(tmp_path):
     # 1,000,000 lines: reading stops at channel 200,001 (README, "Limits") instead of
     # parsing them all first.
@@ -387,6 +392,7 @@ class _LoopbackServer:
     ],
     ids=["http", "garbage", "silent"],
 )
+@pytest.mark.slow
 def test_a_peer_that_is_no_scheduler_is_one_line_within_seconds(tmp_path, payload, hold_s):
     pytest.importorskip("dask.distributed")
     path = _write(tmp_path, "l.toml", YIELD_LINEUP)
@@ -399,6 +405,7 @@ def test_a_peer_that_is_no_scheduler_is_one_line_within_seconds(tmp_path, payloa
     assert path.exists()
 
 
+@pytest.mark.slow
 def test_an_address_where_nothing_listens_is_one_line_within_seconds(tmp_path):
     pytest.importorskip("dask.distributed")
     _write(tmp_path, "l.toml", YIELD_LINEUP)
@@ -474,6 +481,7 @@ def _assert_interrupted(code: int, out: str, err: str) -> None:
 
 @pytest.mark.skipif(not hasattr(os, "killpg"), reason="no process groups here")
 @pytest.mark.parametrize("wait_s", [1.0, 3.0], ids=["while-starting", "while-running"])
+@pytest.mark.slow
 def test_ctrl_c_during_yield_on_two_workers_is_one_line_and_130(tmp_path, wait_s):
     pytest.importorskip("dask.distributed")
     _write(tmp_path, "l.toml", YIELD_LINEUP)
@@ -484,6 +492,7 @@ def test_ctrl_c_during_yield_on_two_workers_is_one_line_and_130(tmp_path, wait_s
 
 
 @pytest.mark.skipif(not hasattr(os, "killpg"), reason="no process groups here")
+@pytest.mark.slow
 def test_ctrl_c_during_yield_in_process_is_one_line_and_130(tmp_path):
     _write(tmp_path, "l.toml", YIELD_LINEUP)
     _assert_interrupted(*_interrupt(["yield", "l.toml", "--samples", "10000000"], tmp_path, 2.0))

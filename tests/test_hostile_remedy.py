@@ -154,6 +154,7 @@ def write(path: Path, text: str, *, newline: str = "\n", bom: bool = False) -> P
     ],
     ids=["header", "dotted", "inline", "quoted-header"],
 )
+@pytest.mark.slow
 def test_sub_table_of_the_last_amplifier_stays_with_it(tmp_path, tolerance):
     # The amplifier is the last stage, so the filter goes at the end of the stage array;
     # its tolerance table must stay the amplifier's (the text editor moved it under the
@@ -229,6 +230,7 @@ def test_comments_and_blank_lines_between_stages_are_kept_in_place(tmp_path):
 
 
 @pytest.mark.parametrize("header", ["[[stage]]", '[["stage"]]'], ids=["bare", "mixed-spellings"])
+@pytest.mark.slow
 def test_crlf_line_endings_and_a_bom_are_kept(tmp_path, header):
     text = HEAD + PA + "\n" + pad("out").replace("[[stage]]", header) + "\n" + MASK
     path = write(tmp_path / "l.toml", text, newline="\r\n", bom=True)
@@ -279,6 +281,7 @@ def test_single_line_inline_array_of_stages(tmp_path):
     ],
     ids=["no-final-newline", "final-comment", "indented", "escaped-header", "whitespace-lines"],
 )
+@pytest.mark.slow
 def test_unusual_layouts_are_kept(tmp_path, text):
     path = write(tmp_path / "l.toml", text)
     _, written, i = remedy_and_verify(path)

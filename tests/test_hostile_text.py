@@ -194,6 +194,7 @@ def test_error_line_quoting_a_hostile_file_name(tmp_path):
     assert_terminal_clean(err)
 
 
+@pytest.mark.slow
 def test_error_line_quoting_a_hostile_file_name_real_process(tmp_path):
     path = _missing_rule_file_case(tmp_path)
     proc = run_cli(["check", str(path)], cwd=tmp_path, timeout=60)
@@ -455,6 +456,7 @@ def _svg_texts(fig) -> list[str]:
 
 
 @pytest.mark.parametrize("name", [r"$\frac{$", "gain $5 and $x^2$ too", "cost $5", r"a\$b \alpha"])
+@pytest.mark.slow
 def test_figure_draws_the_literal_name(tmp_path, name):
     from spurplan.check import check
     from spurplan.lineup_file import load

@@ -506,6 +506,7 @@ def test_malformed_in_process(case, command, tmp_path):
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc or c.only_proc], ids=lambda c: c.id)
+@pytest.mark.slow
 def test_malformed_subprocess(case, tmp_path):
     path = _materialise(case, tmp_path)
     # A runaway case must fail, not take the machine's memory.

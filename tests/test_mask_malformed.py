@@ -372,6 +372,7 @@ def test_malformed_mask_in_process(case, tmp_path):
 
 
 @pytest.mark.parametrize("case", [c for c in CASES if c.proc], ids=lambda c: c.id)
+@pytest.mark.slow
 def test_malformed_mask_subprocess(case, tmp_path):
     path, named = _materialise(case, tmp_path)
     proc = run_cli(["check", str(path)], cwd=tmp_path)

@@ -34,6 +34,7 @@ def html_file(example, tmp_path_factory):
     return path
 
 
+@pytest.mark.slow
 def test_html_is_self_contained_and_has_the_parts(html_file, example):
     text = html_file.read_text(encoding="utf-8")
     # No reference outside the file: no URLs, no external stylesheets or scripts,
@@ -64,6 +65,7 @@ def test_html_is_self_contained_and_has_the_parts(html_file, example):
     assert "@media print" in text
 
 
+@pytest.mark.slow
 def test_report_is_deterministic_apart_from_the_timestamp(example, tmp_path):
     a, b, c = tmp_path / "a.html", tmp_path / "b.html", tmp_path / "c.html"
     write_report(example, a, now=T0)
@@ -76,6 +78,7 @@ def test_report_is_deterministic_apart_from_the_timestamp(example, tmp_path):
     assert len(diff) == 1 and "Report made" in diff[0][0]
 
 
+@pytest.mark.slow
 def test_markdown_report_has_figures_beside_it(example, tmp_path):
     path = tmp_path / "review.md"
     write_report(example, path, now=T0)
@@ -88,6 +91,7 @@ def test_markdown_report_has_figures_beside_it(example, tmp_path):
     assert "| product |" in text or "product" in text
 
 
+@pytest.mark.slow
 def test_report_command(tmp_path):
     out = CliRunner().invoke(main, ["report", "-o", str(tmp_path / "r.html")])
     assert out.exit_code == 0, out.output
@@ -115,6 +119,7 @@ FLAGS = [
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="no Chromium installed (apt-get install chromium)")
+@pytest.mark.slow
 def test_report_opens_in_a_headless_browser(html_file, tmp_path):
     # The browser renders the page: the DOM has the verdict, the product table and the
     # figures, and a screenshot is taken (kept as tests' artefact for a person to look at).
@@ -162,6 +167,7 @@ def test_notebook_objects_give_frames_and_figures(example):
         close(fig)
 
 
+@pytest.mark.slow
 def test_build_report_lists_rule_set_sources(example):
     report = build_report(example)
     titles = [s.title for s in report.sections]

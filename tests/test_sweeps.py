@@ -31,6 +31,7 @@ def _slope(sweep, label, lo, hi):
     return np.polyfit(sweep.input_dbm[sel], sweep.level_dbm[sel, g], 1)[0]
 
 
+@pytest.mark.slow
 def test_small_signal_slopes_and_flattening_in_saturation():
     # nth harmonic rises n dB per dB and IM3 3 dB per dB of drive at small signal, and
     # both flatten in saturation (Razavi, RF Microelectronics 2e, ch. 2, from memory;
