@@ -22,11 +22,13 @@ from .tables import (
     PRODUCT_TABLE,
     RESPONSE_TABLE,
     RULES_TABLE,
+    SPUR_TABLE,
     TUNE_TABLE,
     check_display,
     element_display,
     mhz,
     product_display,
+    spur_display,
     tune_display,
 )
 
@@ -466,7 +468,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
         from .plots import save_drive_plot
 
         save_drive_plot(sw, plot_file, size)
-    rows = sw.rows()
+    rows = sw.rows
     summary = {**sw.summary(), **provenance(lu)}
     if not _machine_output(fmt, summary, "points", rows):
         shown = dict(rows)
@@ -701,7 +703,6 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
     from .formatting import text_table
     from .spur_chart import spur_chart
-    from .tables import SPUR_TABLE, spur_display
 
     size = _size(plot_size)
     lu = _load(lineup)

@@ -1,21 +1,37 @@
 """Exception tree of spurplan.
 
 Every error a user can cause derives from :class:`SpurplanError`; the CLI turns any
-of them into one line on stderr and exit status 2.  The classes also subclass the
-builtin that fits (``ValueError``) so library callers can catch either.
+of them into one line on stderr and exit status 2.  Each class also subclasses the
+builtin it stands for (``ValueError`` for bad input, ``OSError`` for files that
+cannot be written or found) so library callers can catch either.
+
+Every class pickles with its fields (yield batches run on Dask workers and their
+errors come back pickled).  ``BaseException`` pickles ``self.args``, which a
+dataclass ``__init__`` never sets, so the dataclass errors carry a ``__reduce__``
+that rebuilds them from their fields (:class:`_Fields`).
+
+The modules that raise an error re-export its name where it used to live
+(``spurplan.sweep.SweepError``, ``spurplan.outputs.OutputError``, ...).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 
 class SpurplanError(Exception):
     """Root of all errors raised for bad input."""
 
 
+class _Fields:
+    """Pickling for dataclass exceptions: rebuild from the fields, not from ``args``."""
+
+    def __reduce__(self):
+        return (self.__class__, tuple(getattr(self, f.name) for f in fields(self)))
+
+
 @dataclass(eq=False)
-class UnitError(SpurplanError, ValueError):
+class UnitError(_Fields, SpurplanError, ValueError):
     """A quantity string could not be read with the unit that was expected.
 
     Parameters
@@ -38,7 +54,7 @@ class UnitError(SpurplanError, ValueError):
 
 
 @dataclass(eq=False)
-class LineupError(SpurplanError, ValueError):
+class LineupError(_Fields, SpurplanError, ValueError):
     """A lineup file (or one of its parts) is not valid.
 
     The message names the file, the stage (name and position), the field, the value
@@ -61,7 +77,7 @@ class LineupError(SpurplanError, ValueError):
 
 
 @dataclass(eq=False)
-class OutOfDataRange(SpurplanError, ValueError):
+class OutOfDataRange(_Fields, SpurplanError, ValueError):
     """A response was asked for outside the frequency range that a data file covers."""
 
     stage: str
@@ -83,3 +99,36 @@ class OutOfDataRange(SpurplanError, ValueError):
             f"S-parameter data{data} ({self.data_start_hz:.6g} to {self.data_stop_hz:.6g} Hz){tail}"
         )
         return " ".join(text.split())
+
+
+class SweepError(SpurplanError, ValueError):
+    """Sweep arguments that do not make a sweep (raised by :mod:`spurplan.sweep`)."""
+
+
+class YieldError(SpurplanError, ValueError):
+    """Yield arguments that do not make a run: seed, sample budget, workers, scheduler.
+
+    Raised by :mod:`spurplan.montecarlo`.
+    """
+
+
+class TouchstoneFault(SpurplanError, ValueError):
+    """A Touchstone file that cannot be read without guessing; the message says where.
+
+    Raised by :mod:`spurplan.stages.touchstone`; the filter stage turns it into a
+    :class:`LineupError` naming the lineup file, stage and field.
+    """
+
+
+class OutputError(SpurplanError, OSError):
+    """An output file could not be written, or its target is not one to write.
+
+    Raised by :mod:`spurplan.outputs`.
+    """
+
+
+class ResourceError(SpurplanError, FileNotFoundError):
+    """A folder that ships with spurplan (``examples/``, ``bands/``) is missing.
+
+    Raised by :mod:`spurplan.resources`: the installation is incomplete.
+    """

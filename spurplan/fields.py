@@ -337,8 +337,6 @@ class Fields:
             if not value.is_integer():
                 raise self.error(key, f"{value!r}: {expected}")
             value = int(value)
-        if not low <= value <= high:
-            raise self.error(key, f"{value!r}: expected a whole number from {low} to {high}")
         return value
 
     def finish(self) -> None:

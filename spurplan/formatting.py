@@ -1,7 +1,7 @@
 """Plain-text tables, CSV and JSON from column dicts (no pandas on the CLI path).
 
 Every command that reports rows offers the same three forms with the same columns
-(design notes section 7).  Free text in cells is escaped for each medium by
+(the output contract: exit status 0 pass, 1 mask violated, 2 bad input).  Free text in cells is escaped for each medium by
 :mod:`spurplan.escaping`: terminal-safe in text tables, formulas neutralised in CSV,
 literal in Markdown; JSON escapes everything non-printable itself.
 """

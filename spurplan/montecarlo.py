@@ -38,11 +38,11 @@ import numpy as np
 
 from .check import evaluate
 from .engine import propagate
-from .errors import LineupError, SpurplanError
-from .fields import Fields
+from .errors import LineupError, UnitError, YieldError  # YieldError: re-exported (lives in errors.py)
+from .fields import Fields, _did_you_mean
 from .filters import ladder_s21
 from .result import Result
-from .spectrum import mixing_vectors, product_freqs_hz
+from .spectrum import labels, mixing_vectors, product_freqs_hz
 from .stages import Amplifier, Attenuator, Filter, Mixer
 from .stages.amplifier import sampled_model
 from .units import parse_gain_db
@@ -75,10 +75,6 @@ SCHEDULER_TIMEOUT_S = 3.0
 _SCHEDULER_ADDRESS = re.compile(
     r"(?:(?:tcp|tls)://)?(\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9][A-Za-z0-9.-]{0,252}):([0-9]{1,5})"
 )
-
-
-class YieldError(SpurplanError, ValueError):
-    """Yield arguments that do not make a run: seed, sample budget, workers, scheduler."""
 
 
 def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
@@ -181,7 +177,6 @@ def _amount(text, f: Fields, key: str, percent: bool) -> float:
             if math.isfinite(value) and abs(value) < 100:
                 return value / 100.0
         raise f.error(key, f"{text!r}: expected a relative amount in %, e.g. '2 %'")
-    from .errors import UnitError
 
     try:
         return parse_gain_db(text)
@@ -198,7 +193,6 @@ def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Toler
         if key not in names:
             f.raw(key)
             allowed = ", ".join(names) or "none (this stage has no figures that spread)"
-            from .fields import _did_you_mean
 
             raise f.error(key, f"cannot spread{_did_you_mean(key, names)}: expected one of {allowed}")
         value = raw[key]
@@ -386,7 +380,6 @@ def evaluate_batch(
 
 
 def _slot_names(result, levels, slot: np.ndarray) -> np.ndarray:
-    from .spectrum import labels
 
     plus, minus = labels(result.mix, result.lineup.tone_names)
     rows = np.arange(len(slot))

@@ -33,7 +33,8 @@ class NodeLevels:
     freq_hz, level_dbm : ndarray (B, G)
     valid, is_carrier, beyond : ndarray of bool (B, G)
     rep : ndarray of int (B, G)
-        Canonical product index of each slot's lowest-order member.
+        Canonical product index of each slot's representative: its strongest member,
+        ties to the lowest order, then the lowest index (as ``node_levels`` picks it).
     sign : ndarray of int (B, G)
         +1 or -1: the representative's mixing vector times this has positive frequency.
     members : ndarray of int (B, G)

@@ -15,8 +15,7 @@ Each model is a small frozen object with
 Models
 ------
 Polynomial
-    ``y = a1 x + a2 x^2 + ... + aD x^D`` (design notes section 4; Razavi, RF
-    Microelectronics 2e, ch. 2).
+    ``y = a1 x + a2 x^2 + ... + aD x^D`` (Razavi, RF Microelectronics 2e, ch. 2).
 Saturating
     The datasheet's small-signal terms in a monotone, bounded inner function, behind
     a smooth output rail with its own knee: gain and intercepts hold at small

@@ -34,12 +34,7 @@ import stat
 import tempfile
 from pathlib import Path
 
-from .errors import SpurplanError
-
-
-class OutputError(SpurplanError, OSError):
-    """An output file could not be written, or its target is not one to write."""
-
+from .errors import OutputError  # re-exported (lives in errors.py)
 
 # Errors of open(O_TMPFILE) that mean "not supported here" (open(2) man page): the
 # kernel does not know the flag (EISDIR: it sees O_DIRECTORY with O_WRONLY) or the

@@ -35,7 +35,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from .check import CheckResult, check
-from .errors import LineupError
+from .errors import LineupError, SpurplanError
 from .fields import Fields, Within
 from .filters import (
     DEFAULT_FLOOR_DB,
@@ -335,7 +335,6 @@ def write_fixed(lineup, found: Remedy, path):
     EditedLineup
         What was written (``moved`` lists the rewritten data paths).
     """
-    from .errors import SpurplanError
     from .lineup_edit import insert_stage
     from .lineup_file import from_dict
     from .outputs import write_atomic

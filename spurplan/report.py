@@ -26,7 +26,7 @@ from .budget import budget_rows
 from .check import check, figure_check_rows
 from .filters import describe_parts
 from .notices import PLANNING_NOTICE, POWER_NOTICE
-from .outputs import write_atomic
+from .outputs import check_folder, check_target, write_atomic, write_with_folder
 from .provenance import provenance
 from .tables import (
     BUDGET_TABLE,
@@ -449,7 +449,6 @@ def _cautions_section(outcome) -> Section:
 def write_report(lineup, path, now: datetime | None = None) -> Path:
     """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it."""
     from .errors import LineupError
-    from .outputs import check_folder, check_target, write_with_folder
 
     # Every refusal of the target comes before the (slow) build, and nothing is written then.
     path = check_target(path)

@@ -1,4 +1,4 @@
-"""Files shipped with spurplan: example lineups and (later) rule sets.
+"""Files shipped with spurplan: example lineups and rule sets (``bands/``).
 
 In a wheel they sit in ``spurplan/_data/``; in a source checkout (or an editable
 install) they are the repository's own ``examples/`` and ``bands/`` folders.
@@ -7,6 +7,8 @@ install) they are the repository's own ``examples/`` and ``bands/`` folders.
 from __future__ import annotations
 
 from pathlib import Path
+
+from .errors import ResourceError
 
 _PACKAGE = Path(__file__).resolve().parent
 DEFAULT_EXAMPLE = "uhf_telemetry.toml"
@@ -17,7 +19,7 @@ def data_dir(name: str) -> Path:
     for candidate in (_PACKAGE / "_data" / name, _PACKAGE.parent / name):
         if candidate.is_dir():
             return candidate
-    raise FileNotFoundError(f"spurplan's {name}/ folder is missing from this installation")
+    raise ResourceError(f"spurplan's {name}/ folder is missing from this installation")
 
 
 def example_path(name: str = DEFAULT_EXAMPLE) -> Path:

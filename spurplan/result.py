@@ -1,7 +1,6 @@
 """Results of a lineup run: product tables at any node, with per-stage attribution.
 
-Contributions of the stages to a product are combined in one of three ways
-(design notes section 3):
+Contributions of the stages to a product are combined in one of three ways:
 
 ``phase``  as modelled: the complex sum, phase-true;
 ``worst``  magnitudes add, the conservative default (interconnect phases on a real

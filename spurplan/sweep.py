@@ -14,9 +14,9 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from .check import evaluate, require_mask
-from .errors import SpurplanError
-from .fields import CARRIER_FREQ, CARRIER_POWER
+from .check import bands_at, check, evaluate, require_mask
+from .errors import LineupError, SweepError, UnitError  # re-exported (lives in errors.py)
+from .fields import CARRIER_FREQ, CARRIER_POWER, MAX_CHANNEL_FILE_BYTES, read_text_file
 from .spectrum import labels
 
 # Points evaluated per engine batch: bounds memory, and paces a progress bar.
@@ -30,10 +30,6 @@ FREQ_TOL_HZ = 1.0
 # through about 10^7 grid points a second on one laptop core (measured with a
 # three-tone lineup), so 10^10 is about a quarter of an hour (README, "Limits").
 MAX_WORK_GRID_POINTS = 10**10
-
-
-class SweepError(SpurplanError, ValueError):
-    """Sweep arguments that do not make a sweep."""
 
 
 def sweep_points(
@@ -97,8 +93,6 @@ def read_channels(path) -> np.ndarray:
     regular UTF-8 file of at most :data:`~spurplan.fields.MAX_CHANNEL_FILE_BYTES`), and
     reading stops at the first channel beyond :data:`MAX_POINTS`.
     """
-    from .errors import LineupError, UnitError
-    from .fields import MAX_CHANNEL_FILE_BYTES, read_text_file
     from .units import parse_freq_hz
 
     text_all = read_text_file(path, "a text file of frequencies, one per line", MAX_CHANNEL_FILE_BYTES)
@@ -180,8 +174,12 @@ class DriveSweep:
     status: str
     extrapolated: np.ndarray
 
+    @property
     def rows(self) -> dict[str, list]:
-        """One row per drive point: levels, worst margin and the product that sets it."""
+        """One row per drive point: levels, worst margin and the product that sets it.
+
+        An attribute, as :attr:`TuneSweep.rows` is (built afresh on each access).
+        """
         masked = np.where(np.isnan(self.margin_db), np.inf, self.margin_db)
         worst_slot = np.argmin(masked, axis=1)
         checked = np.isfinite(self.worst_margin_db)
@@ -207,17 +205,17 @@ class DriveSweep:
         return drive_figure(self, size_px)
 
     def table(self):
-        """:meth:`rows` as a pandas DataFrame."""
+        """:attr:`rows` as a pandas DataFrame."""
         import pandas as pd
 
-        return pd.DataFrame(self.rows())
+        return pd.DataFrame(self.rows)
 
     def _repr_html_(self) -> str:
         from .formatting import html_table
         from .tables import DRIVE_TABLE, drive_display
 
         return f"<p><b>{self.status}</b>: {self.summary()}</p>" + html_table(
-            drive_display(self.rows()), DRIVE_TABLE
+            drive_display(self.rows), DRIVE_TABLE
         )
 
     def summary(self) -> dict:
@@ -322,7 +320,6 @@ def _worst_at(lineup, offset_db: float, combine) -> float:
 def _limiting(lineup, ok_offset: float, bad_offset: float, combine) -> tuple[float, dict]:
     """Output power at the compliant edge, and the product that fails just above it."""
     _result, _, _, out = _drive_eval(lineup, np.array([ok_offset]), combine)
-    from .check import check
 
     bad = check(lineup, lineup.run(drive_offset_db=np.array([bad_offset])), combine)
     worst = {c: bad.rows[c][bad.worst] for c in ("label", "freq_hz", "rule", "band", "margin_db", "stage")}
@@ -476,7 +473,6 @@ def tune_sweep(
     plus, minus = labels(result0.mix, lineup.tone_names)
     label = np.where(sign > 0, np.asarray(plus, dtype=object)[rep], np.asarray(minus, dtype=object)[rep])
     rules = evaluate(lineup, result0, result0.levels(None, combine)).rules
-    from .check import bands_at
 
     rows = {c: [] for c in ("carrier_hz", "freq_hz", "label", "band", "rule", "margin_db", "pass")}
     failing_mask = np.where(np.isnan(margin), False, margin < 0)

@@ -88,7 +88,14 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from ..engine import alias_free_grid, torus_analytic, torus_coefficients
+from ..engine import (
+    CONVERGENCE_FLOOR,
+    CONVERGENCE_RTOL,
+    MAX_GRID_POINTS,
+    alias_free_grid,
+    torus_analytic,
+    torus_coefficients,
+)
 from ..fields import CARRIER_FREQ, Fields, Within
 from ..nonlinear import per_sample
 from ..units import dbm_to_vpeak, parse_dbc, parse_freq_hz, parse_gain_db, parse_power_dbm
@@ -220,7 +227,6 @@ class MixerModel:
         alias-free grid.  Otherwise the grid doubles, for the batch elements that have not
         settled, until successive grids agree as in :func:`spurplan.engine.apply_memoryless`.
         """
-        from ..engine import CONVERGENCE_FLOOR, CONVERGENCE_RTOL, MAX_GRID_POINTS
 
         active = np.any(x_phasors != 0, axis=0)
         m_in = int(np.abs(mix[active]).max()) if active.any() else 1
@@ -262,7 +268,6 @@ class MixerModel:
     def _evaluate(self, x_phasors, mix, freqs_hz, size: int, rows: np.ndarray):
         """Output phasors on a ``size``-point grid per axis, in batch chunks, and whether
         each element's envelope is constant (so that this grid is exact)."""
-        from ..engine import MAX_GRID_POINTS
 
         chunk = max(1, MAX_GRID_POINTS // size ** mix.shape[1])
         parts = [
@@ -374,23 +379,8 @@ class Mixer:
         return np.zeros(np.shape(freq_hz), dtype=complex)
 
     def with_lo_index(self, index: int) -> Mixer:
-        from dataclasses import replace
 
         return replace(self, transfer=replace(self.transfer, lo_index=index))
-
-    def chart(self, if_freq_hz: float, max_order: int) -> dict[str, list]:
-        """The m x n chart: every ``|m f_LO + n f_IF|`` up to ``m + |n| <= max_order``."""
-        cols = {"m": [], "n": [], "label": [], "freq_hz": [], "level_dbc": []}
-        for m in range(0, max_order + 1):
-            for n in range(-max_order, max_order + 1):
-                if m + abs(n) > max_order or (m == 0 and n <= 0):
-                    continue
-                cols["m"].append(m)
-                cols["n"].append(n)
-                cols["label"].append(spur_label(m, n))
-                cols["freq_hz"].append(abs(m * self.lo_freq_hz + n * if_freq_hz))
-                cols["level_dbc"].append(self.table.get((m, n)))
-        return cols
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Mixer:

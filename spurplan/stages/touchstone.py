@@ -37,6 +37,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..errors import TouchstoneFault  # re-exported (lives in errors.py)
+
 UNITS_HZ = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
 FORMATS = ("ma", "db", "ri")
 PARAMETERS = ("s", "y", "z", "h", "g")
@@ -58,10 +60,6 @@ KEYWORDS_2 = (
     "noise data",
     "end",
 )
-
-
-class TouchstoneFault(ValueError):
-    """A Touchstone file that cannot be read without guessing; the message says where."""
 
 
 @dataclass(frozen=True)
