@@ -9,7 +9,7 @@ from .mask_files import load_ruleset, shipped_names, shipped_path
 
 def catalogue_rows() -> dict[str, list]:
     """One row per shipped file: name, kind, number of entries, statuses, title."""
-    cols = {"name": [], "kind": [], "entries": [], "status": [], "title": [], "source": []}
+    cols: dict[str, list] = {"name": [], "kind": [], "entries": [], "status": [], "title": [], "source": []}
     for name in shipped_names():
         s = load_ruleset(shipped_path(name))
         entries = list(s.rules) + list(s.bands)
@@ -29,7 +29,14 @@ def _mhz(hz: float):
 def band_rows(name: str) -> tuple[dict[str, list], dict]:
     """Entries of one shipped file with their limits, statuses and sources."""
     s = load_ruleset(shipped_path(name))
-    cols = {"name": [], "start_mhz": [], "stop_mhz": [], "limit": [], "status": [], "source": []}
+    cols: dict[str, list] = {
+        "name": [],
+        "start_mhz": [],
+        "stop_mhz": [],
+        "limit": [],
+        "status": [],
+        "source": [],
+    }
     for r in s.rules:
         cols["name"].append(r.name)
         cols["start_mhz"].append(_mhz(r.start_hz))

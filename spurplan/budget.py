@@ -88,7 +88,7 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     ]
     oip3 = [s.figures.oip3_dbm if isinstance(s, Amplifier) else None for s in stages]
     iip3 = cascade_iip3_dbm(gains, oip3)
-    cols = {c: [] for c in BUDGET_COLUMNS}
+    cols: dict[str, list] = {c: [] for c in BUDGET_COLUMNS}
     cum = 0.0
     for i, stage in enumerate(stages):
         node_in = result.propagation.nodes[i, batch]

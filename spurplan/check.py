@@ -16,11 +16,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .errors import LineupError
 from .notices import PLANNING_NOTICE
+
+if TYPE_CHECKING:  # annotations only; the check runs on a Result it is handed
+    from .result import Result
 
 CHECK_COLUMNS = [
     "freq_hz",
@@ -63,7 +67,7 @@ class CheckResult:
     notes : list of str
     """
 
-    result: object
+    result: Result
     rows: dict
     passed: bool
     worst: int | None
@@ -139,6 +143,8 @@ class CheckResult:
         from .provenance import provenance
 
         lineup = self.result.lineup
+        mask = lineup.mask
+        assert mask is not None  # check() made this result, and it refuses a lineup without one
         worst = None if self.worst is None else {c: self.rows[c][self.worst] for c in CHECK_COLUMNS}
         failing = sum(1 for p in self.rows["pass"] if p is False)
         return {
@@ -154,7 +160,7 @@ class CheckResult:
             "failing": failing,
             "checked": sum(1 for p in self.rows["pass"] if p is not None),
             "carrier_total_dbm": self.carrier_dbm,
-            "rule_sets": [{"name": s.name, "title": s.title, "source": s.source} for s in lineup.mask.sets],
+            "rule_sets": [{"name": s.name, "title": s.title, "source": s.source} for s in mask.sets],
             "notes": list(self.notes) + list(lineup.notes),
             "model_extrapolated": self.result.extrapolated_stages,
             **provenance(lineup),
@@ -370,7 +376,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
     ev = evaluate(lineup, _Rows(result, sel), levels)
     # product_rows lists the slots above the report floor in frequency order; find them.
     slot_of = {round(f / 1e-3): g for g, f in enumerate(levels.freq_hz[0]) if levels.valid[0, g]}
-    out = {c: [] for c in CHECK_COLUMNS}
+    out: dict[str, list] = {c: [] for c in CHECK_COLUMNS}
     picks = []
     for i, kind in enumerate(rows["kind"]):
         if kind == "product":
@@ -419,7 +425,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
 class _Rows:
     """A view of a run restricted to some batch rows (what :func:`evaluate` reads)."""
 
-    result: object
+    result: Result
     rows: slice
 
     def carrier_freqs_hz(self):
@@ -459,13 +465,14 @@ def _covers(rule, examined, freq: np.ndarray, f_highest) -> np.ndarray:
 
 def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none."""
-    lineup = outcome.result.lineup
+    mask = outcome.result.lineup.mask
+    assert mask is not None  # check() made the outcome, and it refuses a lineup without one
     f_carrier = output_carrier_hz(outcome.result)
     f_highest = highest_output_carrier_hz(outcome.result)
     freq_hz = np.asarray(freq_hz, dtype=float)
-    gain = lineup.mask.antenna_gain_dbi(freq_hz)
+    gain = mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
-    pairs = [(r, ex) for r, ex in lineup.mask.rules] + [(r, None) for b in lineup.mask.bands for r in b.rules]
+    pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
     for rule, ex in pairs:
         if not rule.holds_for(f_carrier, outcome.carrier_dbm):
             continue

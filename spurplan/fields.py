@@ -16,7 +16,7 @@ import os
 import stat
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, overload
 
 from .errors import LineupError, UnitError
 from .outputs import file_kind  # what a st_mode is, for messages
@@ -305,6 +305,11 @@ class Fields:
         """Raise a located error quoting ``key`` as written unless ``value`` is ``within``."""
         if value not in within:
             raise self.error(key, f"{self.table.get(key, value)!r}: {within.expected()}")
+
+    @overload
+    def text(self, key: str, *, default: str, choices: tuple[str, ...] = ()) -> str: ...
+    @overload
+    def text(self, key: str, *, default: None = None, choices: tuple[str, ...] = ()) -> str | None: ...
 
     def text(self, key: str, *, default: str | None = None, choices: tuple[str, ...] = ()) -> str | None:
         """A string field, optionally one of ``choices``."""

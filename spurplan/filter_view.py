@@ -9,6 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -21,6 +22,9 @@ from .provenance import provenance
 from .stages.filter import Filter, assumed_notes, read_prototype
 from .tables import element_display, mhz
 from .units import parse_freq_hz, parse_impedance_ohm
+
+if TYPE_CHECKING:  # annotations only
+    from .lineup import Lineup
 
 # Points of a Touchstone file written for a synthesized ladder.
 TOUCHSTONE_POINTS = 1001
@@ -36,7 +40,7 @@ class FilterView:
     stage: Filter
     response: dict[str, list]
     notes: tuple[str, ...]
-    lineup: object = None
+    lineup: Lineup | None = None
 
     @property
     def elements(self) -> dict[str, list]:
@@ -128,7 +132,7 @@ def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterVie
     proto = read_prototype(Fields({"prototype": spec}, where, "filter"))
     notes = assumed_notes(spec)
     stage = Filter(name="prototype", r_ohm=r_ohm, prototype=proto, notes=notes)
-    response = {
+    response: dict[str, list] = {
         k: [] for k in ("freq_hz", "label", "order", "level_in_dbm", "s21_db", "s21_deg", "beyond_data")
     }
     if f0:

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Literal
+from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
@@ -17,6 +17,11 @@ from .errors import LineupError, OutOfDataRange
 from .sections import with_sections
 from .spectrum import default_tone_names, label, mixing_vectors, product_freqs_hz, product_index
 from .units import dbm_to_vpeak
+
+if TYPE_CHECKING:  # annotations only: masks and Monte Carlo load when a lineup uses them
+    from .masks import Mask
+    from .montecarlo import Tolerances
+    from .stages.amplifier_fit import FigureCheck
 
 Combine = Literal["worst", "power", "phase"]
 COMBINE_MODES: tuple[str, ...] = ("worst", "power", "phase")
@@ -143,9 +148,9 @@ class Lineup:
     r_ohm: float = 50.0
     source: Path | None = None
     notes: tuple[str, ...] = field(default=())
-    mask: object = None
+    mask: Mask | None = None
     report: ReportSpec | None = None
-    tolerances: object = None
+    tolerances: Tolerances | None = None
 
     @property
     def mixers(self) -> list:
@@ -203,12 +208,12 @@ class Lineup:
             (s.name, what) for s in self.stages for what in getattr(s, "missing_figures", lambda: ())()
         )
 
-    def figure_checks(self) -> tuple[tuple[str, object], ...]:
+    def figure_checks(self) -> tuple[tuple[str, FigureCheck], ...]:
         """``(stage name, FigureCheck)`` for every stated large-signal figure: the datasheet
         value beside what the fitted model gives at the same point."""
         return tuple((s.name, c) for s in self.stages for c in getattr(s, "checks", ()))
 
-    def figures_missed(self) -> tuple[tuple[str, object], ...]:
+    def figures_missed(self) -> tuple[tuple[str, FigureCheck], ...]:
         """The :meth:`figure_checks` whose figure the model does not meet."""
         return tuple((name, c) for name, c in self.figure_checks() if not c.met)
 

@@ -202,7 +202,7 @@ def _transplant(text: str, before: str, after: str) -> str:
     import difflib
 
     a, b, c = text.split("\n"), before.split("\n"), after.split("\n")
-    out = []
+    out: list[str] = []
     for tag, i1, i2, j1, j2 in difflib.SequenceMatcher(None, b, c, autojunk=False).get_opcodes():
         out.extend(a[i1:i2] if tag == "equal" else (_MARK.sub("", line) for line in c[j1:j2]))
     return "\n".join(out)
@@ -255,7 +255,7 @@ def data_paths(doc: dict) -> list[tuple[tuple, str]]:
     ``("mask", "files", j)`` (the only keys that name files; :mod:`spurplan.stages.
     filter` and :mod:`spurplan.mask_files` read them relative to the lineup's folder).
     """
-    out = []
+    out: list[tuple[tuple, str]] = []
     stages = doc.get("stage", [])
     for i, table in enumerate(stages if isinstance(stages, list) else []):
         if isinstance(table, dict) and isinstance(table.get("touchstone"), str):

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 from pathlib import Path
+from typing import cast
 
 from . import engine
 from .errors import LineupError
@@ -32,12 +33,13 @@ from .lineup import (
     MAX_ORDER_LIMIT,
     Analysis,
     Carrier,
+    Combine,
     Lineup,
     ReportSpec,
     reference_carrier_index,
 )
 from .mask_files import read_mask
-from .montecarlo import Tolerances, read_corners, read_tolerance
+from .montecarlo import Tolerance, Tolerances, read_corners, read_tolerance
 from .stages import KINDS, LoadContext
 from .units import (
     format_freq,
@@ -113,7 +115,7 @@ def from_dict(
         r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=reference.freq_hz
     )
     stages = []
-    spreads = []
+    spreads: list[Tolerance] = []
     seen_names: set[str] = set()
     # Every carrier's frequency at the current stage input (mixers move them).
     carried_hz = [c.freq_hz for c in carriers]
@@ -219,7 +221,11 @@ def _analysis(table, file: str) -> Analysis:
         raise f.error("strict", f"{strict!r}: expected true or false")
     f.finish()
     return Analysis(
-        max_order=max_order, combine=combine, beyond_data=beyond, linear_sections=sections, strict=strict
+        max_order=max_order,
+        combine=cast(Combine, combine),  # one of COMBINE_MODES, the Literal's values (text() checked)
+        beyond_data=beyond,
+        linear_sections=sections,
+        strict=strict,
     )
 
 

@@ -33,6 +33,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -46,6 +47,9 @@ from .spectrum import labels, mixing_vectors, product_freqs_hz
 from .stages import Amplifier, Attenuator, Filter, Mixer
 from .stages.amplifier import sampled_model
 from .units import parse_gain_db
+
+if TYPE_CHECKING:  # annotations only (lineup_file imports this module's readers)
+    from .lineup import Lineup
 
 DB_FIGURES = {
     Amplifier: ("gain", "oip3", "oip2", "psat", "p1db", *(f"ohip{n}" for n in range(2, 10))),
@@ -291,8 +295,8 @@ class _Sampled:
 class _SampledAmplifier(_Sampled):
     """An amplifier with per-sample model and harmonic-zone weights."""
 
-    amplifier: object = None
-    weights_db: dict = None
+    amplifier: Amplifier | None = None
+    weights_db: dict | None = None
 
     def generated_weight(self, freq_hz, ref_hz=None):
         return self.amplifier.generated_weight(freq_hz, ref_hz, self.weights_db)
@@ -413,7 +417,7 @@ def wilson_interval(passed: int, n: int, z: float = Z_95) -> tuple[float, float]
 class YieldResult:
     """What :func:`run_yield` found."""
 
-    lineup: object
+    lineup: Lineup
     samples: int
     seed: int
     passed: int

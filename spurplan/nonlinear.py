@@ -184,12 +184,12 @@ class Saturating:
         ``q`` in (0, 1/2].
     """
 
-    a1: object
-    gamma: object = 0.0
-    a3_exp: object = 0.0
-    even: tuple = ()
-    gamma_even: object = 0.0
-    rail_v: object = math.inf
+    a1: float | np.ndarray
+    gamma: float | np.ndarray = 0.0
+    a3_exp: float | np.ndarray = 0.0
+    even: tuple[tuple[int, float | np.ndarray], ...] = ()
+    gamma_even: float | np.ndarray = 0.0
+    rail_v: float | np.ndarray = math.inf
     smoothness: float = 2.0
     inner_exponent: float = 0.5
 
@@ -261,7 +261,7 @@ class Saturating:
         with np.errstate(divide="ignore"):
             return v * np.exp(-np.logaddexp(0.0, two_s * np.log(ratio)) / two_s)
 
-    def saturated_levels_v(self) -> tuple[float, float]:
+    def saturated_levels_v(self) -> tuple[np.ndarray, np.ndarray]:
         """``(R(u(-inf)), R(u(+inf)))`` (V): the two levels of the odd part under hard
         drive (the even part adds no fundamental)."""
         a1 = np.asarray(self.a1, dtype=float)

@@ -33,6 +33,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from .check import CheckResult, check
 from .errors import LineupError, SpurplanError
@@ -46,6 +47,9 @@ from .filters import (
 )
 from .stages import Amplifier, LoadContext
 from .stages.filter import Filter
+
+if TYPE_CHECKING:  # annotations only
+    from .lineup import Lineup
 
 EDGE_FACTOR = 1.1
 # Passband loss at a carrier the edge placement allows (dB): heat in the filter and
@@ -88,7 +92,7 @@ class Remedy:
         (``None``: lossless) and ``floor_db`` (``None``: no floor).
     """
 
-    lineup: object
+    lineup: Lineup
     before: CheckResult
     margin_target_db: float
     needed: dict
@@ -128,7 +132,9 @@ class Remedy:
 def rejection_needed(outcome: CheckResult, margin_db: float) -> dict[str, list]:
     """Products whose margin is below ``margin_db``, and how much more rejection each needs."""
     rows = outcome.rows
-    out = {c: [] for c in ("freq_hz", "label", "margin_db", "rejection_needed_db", "rule", "band")}
+    out: dict[str, list] = {
+        c: [] for c in ("freq_hz", "label", "margin_db", "rejection_needed_db", "rule", "band")
+    }
     for i, m in enumerate(rows["margin_db"]):
         if m is not None and m < margin_db:
             out["freq_hz"].append(rows["freq_hz"][i])

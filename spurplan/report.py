@@ -140,7 +140,7 @@ class Report:
 
         lines = [f"# {md(self.title)}", "", f"**{md(self.verdict)}**", "", f"Report made {md(made_at)}", ""]
         lines += [f"- {md(k)}: {md(v)}" for k, v in _flat(self.provenance).items()] + [""]
-        figures = {}
+        figures: dict[str, bytes] = {}
         for sec in self.sections:
             lines += [f"## {md(sec.title)}", ""]
             for kind, value in sec.parts:
@@ -237,7 +237,7 @@ def _lineup_section(lineup) -> Section:
         "bandwidth_khz": [None if c.bandwidth_hz is None else c.bandwidth_hz / 1e3 for c in lineup.carriers],
     }
     sec.parts.append(_table(carriers, CARRIER_TABLE))
-    stages = {"position": [], "name": [], "kind": [], "figures": []}
+    stages: dict[str, list] = {"position": [], "name": [], "kind": [], "figures": []}
     for i, s in enumerate(lineup.stages, start=1):
         stages["position"].append(i)
         stages["name"].append(s.name)

@@ -16,12 +16,17 @@ way as the stage contributions.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .node_table import node_levels
 from .spectrum import label, labels, orders, product_index
 from .units import ratio_db, vpeak_to_dbm
+
+if TYPE_CHECKING:  # annotations only: lineup imports the engine, which result must not load
+    from .engine import Propagation
+    from .lineup import Lineup
 
 # Rows more than this far below the strongest carrier are numerical noise of the
 # engine (float64 FFTs reach about -300 dBc), not products.
@@ -65,10 +70,10 @@ class Result:
         Carrier frequencies of each batch element.
     """
 
-    lineup: object
+    lineup: Lineup
     mix: np.ndarray
     freqs_hz: np.ndarray
-    propagation: object
+    propagation: Propagation
     tone_freqs_hz: np.ndarray
 
     def node_index(self, stage: str | None) -> int:
@@ -154,10 +159,10 @@ class Result:
         not_conv = bool((~prop.converged[:node, batch]).any())
         f = self.freqs_hz[batch]
 
-        def name(i: int) -> str:
+        def name(i: int | np.integer) -> str:
             return plus[i] if f[i] >= 0 else minus[i]
 
-        def also(g: int) -> str:
+        def also(g: int | np.integer) -> str:
             members = [i for i in np.nonzero(group == g)[0] if i != lv.rep[0, g]]
             return " ".join(name(i) for i in sorted(members, key=lambda i: (order_of[i], i)))
 

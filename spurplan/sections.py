@@ -12,8 +12,12 @@ product of the responses along the section is the cascade's S21 exactly.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:  # annotations only
+    from .stages.base import LinearStage
 
 
 def _network(s: np.ndarray, freq_hz: np.ndarray, r_ohm: float):
@@ -35,8 +39,8 @@ def cascade_s21(stages, freq_hz: np.ndarray, r_ohm: float) -> np.ndarray:
 class SectionStage:
     """A linear stage seen through the cascade of the section it ends."""
 
-    stage: object
-    before: tuple
+    stage: LinearStage
+    before: tuple[LinearStage, ...]
     r_ohm: float
 
     transfer = None
@@ -60,7 +64,8 @@ class SectionStage:
 
 def with_sections(stages, r_ohm: float) -> list:
     """Replace each linear stage by its :class:`SectionStage` view (others unchanged)."""
-    out, run = [], []
+    out: list = []
+    run: list = []
     for stage in stages:
         if stage.transfer is not None:
             out.append(stage)

@@ -43,8 +43,8 @@ def mixing_vectors(n_tones: int, max_order: int) -> np.ndarray:
             rows.append(m)
     mix = np.array(rows, dtype=np.int64).reshape(-1, n_tones)
     keys = [(-int(np.abs(r).sum()), *r.tolist()) for r in mix]
-    order = sorted(range(len(rows)), key=lambda i: keys[i], reverse=True)
-    mix = mix[order]
+    ranked = sorted(range(len(rows)), key=lambda i: keys[i], reverse=True)
+    mix = mix[ranked]
     mix.flags.writeable = False  # shared by every caller through the cache
     return mix
 

@@ -11,6 +11,7 @@ band, if any, it lands in.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -19,12 +20,15 @@ from .stages import Filter, Mixer
 from .stages.mixer import spur_label
 from .units import ratio_db, vpeak_to_dbm
 
+if TYPE_CHECKING:  # annotations only
+    from .lineup import Lineup
+
 PASSBAND_DB = 3.0
 
 
 @dataclass(frozen=True)
 class SpurChart:
-    lineup: object
+    lineup: Lineup
     mixer: Mixer
     rows: dict
     filter_name: str | None
@@ -68,7 +72,7 @@ def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
         if flt
         else None
     )
-    cols = {
+    cols: dict[str, list] = {
         c: []
         for c in (
             "m",

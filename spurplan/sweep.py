@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -18,6 +19,9 @@ from .check import bands_at, check, evaluate, require_mask
 from .errors import LineupError, SweepError, UnitError  # re-exported (lives in errors.py)
 from .fields import CARRIER_FREQ, CARRIER_POWER, MAX_CHANNEL_FILE_BYTES, read_text_file
 from .spectrum import labels
+
+if TYPE_CHECKING:  # annotations only (the sweeps take a loaded lineup)
+    from .lineup import Lineup
 
 # Points evaluated per engine batch: bounds memory, and paces a progress bar.
 CHUNK_POINTS = 2000
@@ -159,7 +163,7 @@ class DriveSweep:
         "limited", "compliant throughout" or "fails throughout".
     """
 
-    lineup: object
+    lineup: Lineup
     input_dbm: np.ndarray
     output_dbm: np.ndarray
     freq_hz: np.ndarray
@@ -388,7 +392,7 @@ class TuneSweep:
         by bisection: ``start_hz, stop_hz, label, rule, band, worst_margin_db``.
     """
 
-    lineup: object
+    lineup: Lineup
     carrier_hz: np.ndarray
     freq_hz: np.ndarray
     margin_db: np.ndarray
@@ -474,7 +478,9 @@ def tune_sweep(
     label = np.where(sign > 0, np.asarray(plus, dtype=object)[rep], np.asarray(minus, dtype=object)[rep])
     rules = evaluate(lineup, result0, result0.levels(None, combine)).rules
 
-    rows = {c: [] for c in ("carrier_hz", "freq_hz", "label", "band", "rule", "margin_db", "pass")}
+    rows: dict[str, list] = {
+        c: [] for c in ("carrier_hz", "freq_hz", "label", "band", "rule", "margin_db", "pass")
+    }
     failing_mask = np.where(np.isnan(margin), False, margin < 0)
     in_band = np.zeros(freq.shape, dtype=bool)
     for b in mask.bands:

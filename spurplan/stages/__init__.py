@@ -21,11 +21,11 @@ from __future__ import annotations
 
 from .amplifier import Amplifier
 from .attenuator import Attenuator
-from .base import LoadContext, Stage
+from .base import LoadContext, Stage, StageKind
 from .filter import Filter
 from .mixer import Mixer
 
-KINDS: dict[str, type] = {
+KINDS: dict[str, StageKind] = {
     "amplifier": Amplifier,
     "attenuator": Attenuator,
     "filter": Filter,

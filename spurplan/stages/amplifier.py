@@ -178,7 +178,7 @@ class AmplifierModel:
         Every large-signal figure beside what the model gives at its point.
     """
 
-    transfer: object
+    transfer: Polynomial | Saturating
     zone_weights_db: dict[int, float]
     checks: tuple[FigureCheck, ...]
 
@@ -191,7 +191,7 @@ def build_model(fig: AmplifierFigures, r_ohm: float) -> AmplifierModel:
     """Fit the whole model to every figure (module docstring)."""
     poly = polynomial_from_figures(fig, r_ohm)
     checks: list[FigureCheck] = []
-    transfer = poly
+    transfer: Polynomial | Saturating = poly
     if fig.psat_dbm is not None or fig.p1db_dbm is not None:
         base = saturating_base(poly, fig, r_ohm)
         has_cubic = fig.states_order(3)
@@ -300,7 +300,7 @@ class Amplifier:
 
     name: str
     figures: AmplifierFigures
-    transfer: object
+    transfer: Polynomial | Saturating
     zone_weights_db: dict = field(default_factory=dict)
     checks: tuple[FigureCheck, ...] = ()
     notes: tuple[str, ...] = ()
@@ -425,7 +425,7 @@ class Amplifier:
         return replace(amp, shape=table, notes=amp.notes + tuple(notes))
 
 
-def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[object, dict]:
+def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[Polynomial | Saturating, dict]:
     """The amplifier's model with its figures moved per Monte Carlo sample.
 
     Parameters
@@ -466,6 +466,7 @@ def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[object, d
     poly = polynomial_from_figures(sample, r_ohm)
     nominal = amp.transfer
     carried = set(range(2, len(poly.coeffs) + 1))
+    transfer: Polynomial | Saturating
     if isinstance(nominal, Saturating):
         base = saturating_base(poly, sample, r_ohm)
         carried = {2, 3} | {n for n, _ in base.even}

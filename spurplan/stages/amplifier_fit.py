@@ -281,7 +281,9 @@ def _sharpest_needed(models, target_dbm: float | None, r_ohm: float):
             continue
         if target_dbm is None:
             return model
-        miss = abs(oip3_check(model, target_dbm, r_ohm).miss_db)
+        miss_db = oip3_check(model, target_dbm, r_ohm).miss_db
+        assert miss_db is not None  # oip3_check always has a model value (a two-tone reading)
+        miss = abs(miss_db)
         if miss <= INTERCEPT_TOL_DB / 2:
             return model
         if miss < best_miss:
@@ -324,6 +326,7 @@ def fit_compression(
 
     def with_rail_for_psat(model: Saturating) -> Saturating | None:
         """``model`` with the rail that gives ``psat_dbm``; None if out of reach."""
+        assert psat_dbm is not None  # called only in the branches where Psat is stated
         target = float(dbm_to_vpeak(psat_dbm, r_ohm))
         unbounded = model_psat_dbm(replace(model, rail_v=math.inf), r_ohm)
         if unbounded is not None and unbounded <= psat_dbm:

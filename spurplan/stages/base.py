@@ -4,9 +4,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Protocol
+from typing import TYPE_CHECKING, Protocol
 
 import numpy as np
+
+if TYPE_CHECKING:  # annotations only: the stage modules import this one
+    from ..fields import Fields
+    from ..nonlinear import Clipper, Polynomial, Saturating
+    from .mixer import MixerModel
 
 
 @dataclass(frozen=True)
@@ -35,16 +40,42 @@ class LoadContext:
 
 
 class Stage(Protocol):
-    """The interface the engine relies on."""
-
-    name: str
+    """The interface the engine relies on (read-only members: stages are frozen)."""
 
     @property
-    def transfer(self):
-        """Memoryless model (``None`` for a linear stage)."""
+    def name(self) -> str:
+        """The stage's name in the lineup file."""
+        ...
+
+    @property
+    def transfer(self) -> Polynomial | Saturating | Clipper | MixerModel | None:
+        """Memoryless model, a converter's model (``convert``), or ``None`` for a linear stage."""
+        ...
+
+    @property
+    def data_range_hz(self) -> tuple[float, float] | None:
+        """``(start, stop)`` (Hz) where a data file defines the response, or ``None``."""
+        ...
 
     def response(self, freq_hz: np.ndarray) -> np.ndarray:
         """Small-signal complex response at ``freq_hz`` (>= 0, Hz)."""
+        ...
+
+
+class LinearStage(Stage, Protocol):
+    """A linear stage that can be cascaded with full S-parameters (:mod:`spurplan.sections`)."""
+
+    def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Full 2x2 S-matrix at ``freq_hz`` (Hz, any shape), shape ``freq_hz.shape + (2, 2)``."""
+        ...
+
+
+class StageKind(Protocol):
+    """What :data:`spurplan.stages.KINDS` holds: a stage class built from its lineup table."""
+
+    def from_fields(self, fields: Fields, context: LoadContext) -> Stage:
+        """The stage read from its table (the class's ``from_fields`` classmethod)."""
+        ...
 
 
 def flat_response(gain_db: float):

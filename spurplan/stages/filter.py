@@ -25,6 +25,7 @@ from __future__ import annotations
 import math
 import warnings
 from dataclasses import dataclass, field, replace
+from typing import Literal, cast
 
 import numpy as np
 
@@ -39,7 +40,9 @@ from ..filters import (
     MAX_FILTER_ORDER,
     RESPONSES,
     S_FLOOR_DB,
+    Family,
     Prototype,
+    Response,
     SParameterTable,
     floor_amplitude,
     ladder_elements,
@@ -71,7 +74,7 @@ class Filter:
     r_ohm: float
     prototype: Prototype | None = None
     table: SParameterTable | None = None
-    s_table: object = None
+    s_table: _SMatrixTable | None = None
     source: str | None = None
     notes: tuple[str, ...] = ()
     _cache: dict = field(default_factory=dict, compare=False, repr=False)
@@ -103,6 +106,9 @@ class Filter:
             if self.prototype is not None:
                 s = ladder_network(self.prototype, uniq, self.r_ohm).s
             else:
+                # Exactly one of prototype and table is set, and a table always comes
+                # with its S lookup (read_touchstone returns both).
+                assert self.s_table is not None
                 s = self.s_table(uniq)
             self._cache.clear()
             self._cache[key] = s
@@ -127,7 +133,7 @@ class Filter:
         number, ``"lossless"``, or ``None`` where the arm has no such part).
         """
         keys = ("position", "branch", "part", "g", "l_h", "c_f", "q_l", "q_c")
-        cols = {k: [] for k in keys}
+        cols: dict[str, list] = {k: [] for k in keys}
         if self.prototype is None:
             return cols
         p = self.prototype
@@ -234,15 +240,16 @@ def read_prototype(fields: Fields) -> Prototype:
     first = sub.text("first", default="shunt", choices=("shunt", "series"))
     sub.finish()
     return Prototype(
-        family=family,
-        response=response,
+        # Both were checked against FAMILIES and RESPONSES (the Literal's values) by text().
+        family=cast(Family, family),
+        response=cast(Response, response),
         order=order,
         edge_hz=edge,
         bandwidth_hz=bandwidth,
         ripple_db=ripple,
         q_inductor=q_l,
         q_capacitor=q_c,
-        first=first,
+        first=cast(Literal["shunt", "series"], first),  # checked against these choices
         floor_db=floor,
     )
 

@@ -209,7 +209,7 @@ class MixerModel:
         The stage's name, for errors.
     """
 
-    terms: tuple[tuple[int, int, float], ...]
+    terms: tuple[tuple[int, int, float | np.ndarray], ...]
     lo_index: int
     knee_v: float | None = None
     smoothness: int = SMOOTHNESS
