@@ -67,10 +67,10 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     k = mix.shape[1]
     axes = tuple(range(1, k + 1))
     grid = np.zeros((batch,) + (n,) * k, dtype=complex)
-    pos = tuple(mix[:, i] % n for i in range(k))
-    neg = tuple((-mix[:, i]) % n for i in range(k))
-    grid[(slice(None), *pos)] = 0.5 * x_phasors
-    grid[(slice(None), *neg)] += 0.5 * np.conj(x_phasors)
+    pos: tuple[slice | np.ndarray, ...] = (slice(None), *(mix[:, i] % n for i in range(k)))
+    neg: tuple[slice | np.ndarray, ...] = (slice(None), *((-mix[:, i]) % n for i in range(k)))
+    grid[pos] = 0.5 * x_phasors
+    grid[neg] += 0.5 * np.conj(x_phasors)
     samples = sfft.ifftn(grid, axes=axes, norm="forward").real
     flat = samples.reshape(batch, -1)
     # Absurd figures can overflow the model; propagate() turns that into an error.
@@ -106,8 +106,8 @@ def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray,
     positive = freqs_hz >= 0
     for sign, take in ((1, positive), (-1, ~positive)):
         vals = np.where(take, x_phasors if sign > 0 else np.conj(x_phasors), 0.0)
-        idx = tuple((sign * mix[:, i]) % n for i in range(k))
-        grid[(slice(None), *idx)] += vals
+        idx: tuple[slice | np.ndarray, ...] = (slice(None), *((sign * mix[:, i]) % n for i in range(k)))
+        grid[idx] += vals
     return sfft.ifftn(grid, axes=tuple(range(1, k + 1)), norm="forward")
 
 

@@ -90,12 +90,14 @@ class FilterView:
 
     def save_touchstone(self, path: str | Path) -> Path:
         """Write the network as a 2-port Touchstone file (its data grid, or a dense one)."""
-        rng = self.stage.data_range_hz
-        if rng is not None:
-            f = self.stage.table.freq_hz
+        table, proto = self.stage.table, self.stage.prototype
+        if table is not None:
+            f = table.freq_hz
         else:
+            # A Filter holds exactly one of a table and a prototype (stages/filter.py).
+            assert proto is not None
             top = max(self.response["freq_hz"], default=0.0)
-            edge = self.stage.prototype.edge_hz + (self.stage.prototype.bandwidth_hz or 0.0)
+            edge = proto.edge_hz + (proto.bandwidth_hz or 0.0)
             stop = 1.15 * max(top, 3.0 * edge)
             f = np.linspace(stop / TOUCHSTONE_POINTS, stop, TOUCHSTONE_POINTS)
         net = self.stage.network(f)

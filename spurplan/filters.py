@@ -79,7 +79,7 @@ points close to the null.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Literal
 
 import numpy as np
@@ -173,6 +173,8 @@ class Prototype:
     def g_values(self) -> np.ndarray:
         if self.family == "butterworth":
             return butterworth_g(self.order)
+        # The loader refuses a Chebyshev prototype without a ripple (stages/filter.py).
+        assert self.ripple_db is not None
         return chebyshev_g(self.order, self.ripple_db)
 
 
@@ -211,6 +213,8 @@ def ladder_elements(proto: Prototype, r_ohm: float) -> list[Element]:
             wc = 2 * math.pi * proto.edge_hz
             l_h, c_f = (None, 1.0 / (gk * r_ohm * wc)) if series else (r_ohm / (gk * wc), None)
         else:
+            # The loader refuses a band-pass prototype without a bandwidth (stages/filter.py).
+            assert proto.bandwidth_hz is not None
             w0 = 2 * math.pi * proto.edge_hz
             frac = proto.bandwidth_hz / proto.edge_hz
             if series:
@@ -296,20 +300,43 @@ def apply_floor_s(s: np.ndarray, floor_db: float | None) -> np.ndarray:
     return out
 
 
-def _arm_impedance(el: Element, w: np.ndarray, proto: Prototype) -> np.ndarray:
-    """Impedance (ohm) of one arm at angular frequencies ``w``, with finite Q."""
-    z_l = z_c = None
-    if el.l_h is not None:
-        r = 0.0 if proto.q_inductor is None else w * el.l_h / proto.q_inductor
-        z_l = r + 1j * w * el.l_h
-    if el.c_f is not None:
-        r = 0.0 if proto.q_capacitor is None else 1.0 / (w * el.c_f * proto.q_capacitor)
-        z_c = r + 1.0 / (1j * w * el.c_f)
+def _arm_impedance(
+    branch: str,
+    l_h: float | np.ndarray | None,
+    c_f: float | np.ndarray | None,
+    w: np.ndarray,
+    q_inductor: float | np.ndarray | None,
+    q_capacitor: float | np.ndarray | None,
+) -> np.ndarray:
+    """Impedance (ohm) of one arm at angular frequencies ``w`` (rad/s), with finite Q.
+
+    Parameters
+    ----------
+    branch : {"series", "shunt"}
+        How the arm's L and C combine when both are set (module docstring).
+    l_h, c_f : float, ndarray or None
+        The arm's inductance (H) and capacitance (F); arrays (B, 1) when Monte Carlo
+        gives every sample its own parts (:func:`ladder_s21`).
+    w : ndarray
+        Angular frequencies (rad/s).
+    q_inductor, q_capacitor : float, ndarray or None
+        Unloaded Qs (arrays (B, 1) for Monte Carlo); ``None`` for lossless parts.
+    """
+    z_l: np.ndarray | None = None
+    z_c: np.ndarray | None = None
+    if l_h is not None:
+        r = 0.0 if q_inductor is None else w * l_h / q_inductor
+        z_l = r + 1j * w * l_h
+    if c_f is not None:
+        r = 0.0 if q_capacitor is None else 1.0 / (w * c_f * q_capacitor)
+        z_c = r + 1.0 / (1j * w * c_f)
     if z_l is None:
+        # Every arm of ladder_elements() has an L, a C or both.
+        assert z_c is not None
         return z_c
     if z_c is None:
         return z_l
-    if el.branch == "series":
+    if branch == "series":
         return z_l + z_c
     # A lossless parallel resonator is an open circuit at resonance, where the two
     # admittances cancel exactly; a conductance far below any real part (1e-15 S)
@@ -334,13 +361,8 @@ def ladder_s21(
     f = np.maximum(np.asarray(freq_hz, dtype=float), _MIN_EVAL_HZ)
     w = 2 * math.pi * f
     k = 1.0 if scale is None else np.reshape(scale, (-1, 1))
-    q = replace(
-        proto,
-        q_inductor=None if proto.q_inductor is None else proto.q_inductor * np.reshape(q_scale[0], (-1, 1)),
-        q_capacitor=None
-        if proto.q_capacitor is None
-        else proto.q_capacitor * np.reshape(q_scale[1], (-1, 1)),
-    )
+    q_l = None if proto.q_inductor is None else proto.q_inductor * np.reshape(q_scale[0], (-1, 1))
+    q_c = None if proto.q_capacitor is None else proto.q_capacitor * np.reshape(q_scale[1], (-1, 1))
     a, b, c, d = (
         np.ones(f.shape, complex),
         np.zeros(f.shape, complex),
@@ -349,12 +371,9 @@ def ladder_s21(
     )
     for i, el in enumerate(ladder_elements(proto, r_ohm)):
         p = 1.0 if part_scale is None else np.reshape(np.asarray(part_scale)[:, i], (-1, 1))
-        moved = replace(
-            el,
-            l_h=None if el.l_h is None else el.l_h * p / k,
-            c_f=None if el.c_f is None else el.c_f * p / k,
-        )
-        z = _arm_impedance(moved, w, q)
+        l_h = None if el.l_h is None else el.l_h * p / k
+        c_f = None if el.c_f is None else el.c_f * p / k
+        z = _arm_impedance(el.branch, l_h, c_f, w, q_l, q_c)
         if el.branch == "series":
             a, b, c, d = a, a * z + b, c, c * z + d
         else:
@@ -377,10 +396,12 @@ def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):
     w = 2 * math.pi * freq_hz
     net = None
     for el in ladder_elements(proto, r_ohm):
-        arm = med.resistor(_arm_impedance(el, w, proto))
+        arm = med.resistor(_arm_impedance(el.branch, el.l_h, el.c_f, w, proto.q_inductor, proto.q_capacitor))
         if el.branch == "shunt":
             arm = med.shunt(arm ** med.short())
         net = arm if net is None else net**arm
+    # A prototype has order >= 1 (the loader's range), so the loop ran at least once.
+    assert net is not None
     if proto.floor_db is not None:
         net.s = apply_floor_s(net.s, proto.floor_db)
     net.name = f"{proto.family} {proto.response} N={proto.order}"

@@ -125,7 +125,7 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
         read_rule(Fields(t, file, f"rule {i}"), origin=name, default_source=source)
         for i, t in enumerate(_tables(doc, "rule", file), start=1)
     )
-    delegated = ()
+    delegated: tuple[Rule, ...] = ()
     if limits_from:
         other = (
             resolve(limits_from) if resolve else load_ruleset(shipped_path(limits_from, head, "limits_from"))
@@ -274,10 +274,12 @@ def read_limit(f: Fields, *, required: bool = False):
     if parsed is None:
         return None
     kind, value, distance, per_khz = parsed
-    within = {"absolute": ABSOLUTE_LIMIT, "relative": RELATIVE_LIMIT}.get(kind)
+    # parse_limit() returns one of these three kinds.
     if kind == "field":
         within = FIELD_NUMERATOR if per_khz else FIELD_LIMIT
         f.require_within("limit", distance, DISTANCE)
+    else:
+        within = ABSOLUTE_LIMIT if kind == "absolute" else RELATIVE_LIMIT
     f.require_within("limit", value, within)
     return parsed
 
@@ -339,7 +341,7 @@ def read_band(
         raise f.error("rbw", "applies together with a 'limit': expected both or neither")
     f.raw("limit"), f.raw("rbw")
     f.finish()
-    rules = ()
+    rules: tuple[Rule, ...] = ()
     if own is not None:
         kind, value, distance, per_khz, rbw = own
         rules = (
@@ -389,17 +391,24 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
         raise f.error("files", f"{files!r}: expected a list of file names")
     for rel in files:
         sets.append(load_ruleset(existing_file(base_dir, rel, f, "files")))
-    inline_rules, inline_bands = (
-        tuple(
-            reader(
-                Fields(t, file, f"[[mask.{key}]] {i}"),
-                origin="lineup",
-                default_source="lineup file",
-                status_required=False,
-            )
-            for i, t in enumerate(_list(f, key), start=1)
+    # Rules before bands: a file with errors in both reports the rule's first.
+    inline_rules = tuple(
+        read_rule(
+            Fields(t, file, f"[[mask.rule]] {i}"),
+            origin="lineup",
+            default_source="lineup file",
+            status_required=False,
         )
-        for key, reader in (("rule", read_rule), ("band", read_band))
+        for i, t in enumerate(_list(f, "rule"), start=1)
+    )
+    inline_bands = tuple(
+        read_band(
+            Fields(t, file, f"[[mask.band]] {i}"),
+            origin="lineup",
+            default_source="lineup file",
+            status_required=False,
+        )
+        for i, t in enumerate(_list(f, "band"), start=1)
     )
     if inline_rules or inline_bands:
         sets.append(

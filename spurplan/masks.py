@@ -130,6 +130,9 @@ class Rule:
             if self.per_khz
             else np.full(f.shape, self.value)
         )
+        # A field limit always carries its distance: parse_limit() returns one with every
+        # "field" kind (mask_files.py), the only way a file makes such a rule.
+        assert self.distance_m is not None
         eirp = field_to_eirp_dbm(e_dbuv, self.distance_m)
         return np.broadcast_to(eirp - antenna_gain_dbi, shape).copy()
 

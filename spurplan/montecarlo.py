@@ -104,7 +104,9 @@ def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
     if not 1 <= samples <= MAX_SAMPLES:
         raise YieldError(f"--samples {samples}: expected a whole number from 1 to {MAX_SAMPLES}")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed <= MAX_SEED:
-        shown = f"{seed}" if isinstance(seed, (int, np.integer)) and abs(seed) < 10**30 else f"{seed!r}"[:40]
+        shown = (
+            f"{seed}" if isinstance(seed, (int, np.integer)) and abs(int(seed)) < 10**30 else f"{seed!r}"[:40]
+        )
         raise YieldError(
             f"--seed {shown}: expected a whole number from 0 to 2^64 - 1 (numpy seeds are non-negative)"
         )

@@ -123,7 +123,8 @@ class Remedy:
             "before": {"pass": self.before.passed, "worst_margin_db": self.before.worst_margin_db},
             "tried": self.tried,
         }
-        if self.outcome is not None:
+        # remedy() sets filter and outcome together, with the snippet, when it finds a filter.
+        if self.filter is not None and self.outcome is not None:
             out["after"] = {"pass": self.outcome.passed, "worst_margin_db": self.outcome.worst_margin_db}
             out["elements"] = self.filter.elements()
         return {**out, **provenance(self.lineup)}
@@ -346,7 +347,7 @@ def write_fixed(lineup, found: Remedy, path):
     from .outputs import write_atomic
 
     target = Path(path)
-    if not found.found:
+    if found.snippet is None:  # found.found, spelled so that the type narrows
         raise LineupError("no filter was found: nothing to write", file=str(target), field="--write")
     if lineup.source is None:
         raise LineupError(
@@ -379,7 +380,11 @@ def write_fixed(lineup, found: Remedy, path):
 def _same_as_checked(written, outcome: CheckResult, found: Remedy, target: Path) -> None:
     """Refuse unless ``written`` (the file to be written, as loaded) is what remedy checked."""
     pos = found.position
-    checked = (*found.lineup.stages[:pos], found.filter, *found.lineup.stages[pos:])
+    flt, expected = found.filter, found.outcome
+    # The caller refused a Remedy that found nothing, and remedy() sets the snippet, the
+    # filter and the outcome together when it finds one.
+    assert flt is not None and expected is not None
+    checked = (*found.lineup.stages[:pos], flt, *found.lineup.stages[pos:])
 
     def stages(lu_stages) -> list:
         return [(s.name, type(s).__name__.lower()) for s in lu_stages]
@@ -390,12 +395,12 @@ def _same_as_checked(written, outcome: CheckResult, found: Remedy, target: Path)
     if stages(written.stages) != stages(checked):
         names = ", ".join(f"{n!r}" for n, _ in stages(written.stages))
         raise refuse(f"the file would hold the stages {names}, not the lineup that was checked")
-    if getattr(written.stages[pos], "prototype", None) != found.filter.prototype:
+    if getattr(written.stages[pos], "prototype", None) != flt.prototype:
         raise refuse(f"stage {pos + 1} would not be the filter that was checked")
-    if not _same_numbers(outcome, found.outcome):
+    if not _same_numbers(outcome, expected):
         raise refuse(
             f"the file re-checks to a worst margin of {outcome.worst_margin_db} dB, not the "
-            f"{found.outcome.worst_margin_db} dB of the lineup that was checked"
+            f"{expected.worst_margin_db} dB of the lineup that was checked"
         )
 
 

@@ -303,6 +303,10 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
     sec = Section(f"Drive sweep, {start:+g} to {stop:+g} dBm input in {step:g} dB steps")
     if sw.status == "limited":
         lim = sw.limiting
+        # drive_sweep() sets limiting with the edge it bisects to.  A sweep whose lowest
+        # drive already fails but a higher one passes is also "limited", with neither
+        # (sweep.py); that case stops here, as the format of the missing drive did before.
+        assert lim is not None
         sec.parts.append(
             (
                 "text",

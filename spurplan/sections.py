@@ -32,6 +32,8 @@ def cascade_s21(stages, freq_hz: np.ndarray, r_ohm: float) -> np.ndarray:
     for stage in stages:
         part = _network(stage.s_matrix(freq_hz), freq_hz, r_ohm)
         net = part if net is None else net**part
+    # Both callers (SectionStage.response) pass at least one stage.
+    assert net is not None
     return net.s[:, 1, 0]
 
 

@@ -107,7 +107,7 @@ def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
             cols["model_dbm"].append(level)
             cols["model_dbc"].append(None if level is None else level - wanted_dbm)
             in_pass = False
-            if flt is not None and f > 0:
+            if flt is not None and ref_db is not None and f > 0:  # ref_db is set with flt
                 in_pass = bool(float(ratio_db(flt.response(np.array([f])))[0]) >= ref_db - PASSBAND_DB)
             cols["in_passband"].append(in_pass)
             from .check import bands_at
