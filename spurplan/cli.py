@@ -486,6 +486,12 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
             )
         elif sw.status == "fails throughout":
             click.echo("HIGHEST COMPLIANT DRIVE: none in the range (the mask is violated at every drive)")
+        elif sw.status == "fails at the lowest drive":
+            click.echo(
+                "HIGHEST COMPLIANT DRIVE: none from the bottom of the range (the mask is violated at the "
+                f"lowest drive, {sw.input_dbm[0]:+.2f} dBm in; some higher drives pass, which is no compliant "
+                "range to sign)"
+            )
         else:
             click.echo(
                 f"HIGHEST COMPLIANT DRIVE: the mask is met over the whole range (up to {sw.max_compliant_input_dbm:+.2f} dBm in)"

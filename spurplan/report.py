@@ -303,9 +303,7 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
     sec = Section(f"Drive sweep, {start:+g} to {stop:+g} dBm input in {step:g} dB steps")
     if sw.status == "limited":
         lim = sw.limiting
-        # drive_sweep() sets limiting with the edge it bisects to.  A sweep whose lowest
-        # drive already fails but a higher one passes is also "limited", with neither
-        # (sweep.py); that case stops here, as the format of the missing drive did before.
+        # drive_sweep() sets limiting with the edge it bisects to whenever it says "limited".
         assert lim is not None
         sec.parts.append(
             (
@@ -317,6 +315,14 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
         )
     elif sw.status == "fails throughout":
         sec.parts.append(("text", "The mask is violated at every drive of the sweep."))
+    elif sw.status == "fails at the lowest drive":
+        sec.parts.append(
+            (
+                "text",
+                "The mask is violated at the lowest drive of the sweep; some higher drives pass, which "
+                "is no compliant range to sign.",
+            )
+        )
     else:
         sec.parts.append(("text", "The mask is met over the whole sweep."))
     sec.parts.append(

@@ -160,7 +160,8 @@ class DriveSweep:
     limiting : dict or None
         The product and rule that set it.
     status : str
-        "limited", "compliant throughout" or "fails throughout".
+        "limited", "compliant throughout", "fails throughout" or "fails at the lowest
+        drive" (some higher drive passes, but no stretch from the low end does).
     """
 
     lineup: Lineup
@@ -282,9 +283,11 @@ def drive_sweep(
     ok = worst >= 0
     status, x_in, x_out, limiting = "compliant throughout", None, None, None
     if valid.any() and not ok[valid][0]:
-        status = "fails throughout" if not ok[valid].any() else "limited"
+        # The lowest drive already fails: there is no compliant stretch from the low end to
+        # sign, even where a higher drive passes (a power-dependent rule, say).
+        status = "fails throughout" if not ok[valid].any() else "fails at the lowest drive"
     first_bad = np.nonzero(valid & ~ok)[0]
-    if first_bad.size and first_bad[0] > 0 and ok[first_bad[0] - 1]:
+    if status != "fails at the lowest drive" and first_bad.size and first_bad[0] > 0 and ok[first_bad[0] - 1]:
         status = "limited"
         lo, hi = offsets[first_bad[0] - 1], offsets[first_bad[0]]
         edge = _bisect(lambda x: _worst_at(lineup, x, combine) >= 0, lo, hi, DRIVE_TOL_DB)

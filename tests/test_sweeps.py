@@ -241,3 +241,42 @@ def test_remedy_filter_loses_little_at_the_carrier(tmp_path):
     assert found.before.carrier_dbm - found.outcome.carrier_dbm <= 0.3 + 1e-9
     h = found.filter.response(np.array([150e6]))
     assert -20 * math.log10(abs(h[0])) <= 0.3 + 1e-9
+
+
+def test_a_sweep_that_fails_at_its_lowest_drive_has_no_compliant_drive_to_sign(tmp_path):
+    # A rule held only at low carrier power (when_power at_most +10 dBm, an invented planning
+    # rule) fails the 2nd harmonic at the low end; above +10 dBm out no rule covers it. The
+    # drive up to which everything passes (DEVELOPERS.md: the top of the first passing stretch
+    # from the low end) does not exist, whatever passes higher up: the sweep must say so
+    # instead of naming a drive (arithmetic on the rule's condition: out = in + 20 dB).
+    mask = {
+        "rule": [
+            {
+                "name": "low-power test rule",
+                "start": "150 MHz",
+                "stop": "250 MHz",
+                "limit": "-150 dBm",
+                "when_power": {"at_most": "+10 dBm"},
+                "status": "derived",
+            }
+        ]
+    }
+    stages = [amp(gain="20 dB", ohip2="+40 dBm")]
+    lu = _lineup(stages, [{"freq": "100 MHz", "power": "-30 dBm"}], mask)
+    sweep = drive_sweep(lu, -30.0, 0.0, 1.0)
+    assert sweep.status == "fails at the lowest drive"
+    assert sweep.max_compliant_input_dbm is None and sweep.limiting is None
+    passing = sweep.worst_margin_db >= 0
+    assert not passing[0] and passing[-1]  # precondition: some higher drive passes
+    path = tmp_path / "low.toml"
+    path.write_text(
+        '[[carrier]]\nfreq = "100 MHz"\npower = "-30 dBm"\n'
+        '[[stage]]\nkind = "amplifier"\nname = "amp"\ngain = "20 dB"\nohip2 = "+40 dBm"\n'
+        '[[mask.rule]]\nname = "low-power test rule"\nstart = "150 MHz"\nstop = "250 MHz"\n'
+        'limit = "-150 dBm"\nwhen_power = { at_most = "+10 dBm" }\nstatus = "derived"\n',
+        encoding="utf-8",
+    )
+    args = ["drive", str(path), "--start", "-30 dBm", "--stop", "0 dBm", "--step", "1 dB"]
+    out = CliRunner().invoke(main, args)
+    assert out.exit_code == 0, out.output
+    assert "none from the bottom of the range" in out.output
