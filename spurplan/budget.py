@@ -72,6 +72,19 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     higher frequency: :func:`spurplan.lineup.reference_carrier_index`); levels are as
     modelled (compression included); gains are small-signal at the carrier
     frequency (for a filter, its |S21| there).
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup (:meth:`spurplan.lineup.Lineup.run`).
+    batch : int
+        Index along the run's batch axis (one drive or tuning point) to tabulate.
+
+    Returns
+    -------
+    dict of str to list
+        One list per name in :data:`BUDGET_COLUMNS`, one entry per stage; levels in dBm,
+        gains and headroom in dB.
     """
     lineup = result.lineup
     stages = lineup.stages

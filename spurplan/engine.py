@@ -80,7 +80,21 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
 
 
 def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
-    """Peak phasors (B, P) of the canonical products in real torus samples (B, N, ..., N)."""
+    """Peak phasors (B, P) of the canonical products in real torus samples (B, N, ..., N).
+
+    Parameters
+    ----------
+    samples : ndarray, real, shape (B, N, ..., N)
+        The signal (V) sampled on a K-dimensional torus grid of N points per axis, one axis
+        per base tone.
+    mix : ndarray of int, shape (P, K)
+        Canonical mixing vectors to read.
+
+    Returns
+    -------
+    ndarray, complex, shape (B, P)
+        Peak phasor (V) of each product: twice the forward-normalised DFT coefficient.
+    """
     k = mix.shape[1]
     n = samples.shape[1]
     out = sfft.rfftn(samples, axes=tuple(range(1, k + 1)), norm="forward")
@@ -99,6 +113,22 @@ def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray,
     Each product enters once, at its positive frequency (the conjugate phasor at
     ``-m`` where ``m . f < 0``), so the real part is the signal and the imaginary part
     its Hilbert transform.  Returns complex samples (B, N, ..., N).
+
+    Parameters
+    ----------
+    x_phasors : ndarray, complex, shape (B, P)
+        Peak phasors (V) of the canonical products ``mix``.
+    mix : ndarray of int, shape (P, K)
+        Canonical mixing vectors.
+    freqs_hz : ndarray, shape (B, P)
+        Signed product frequencies (Hz); only their signs are used.
+    n : int
+        Grid points per torus axis.
+
+    Returns
+    -------
+    ndarray, complex, shape (B, N, ..., N)
+        The analytic signal (V) on the grid.
     """
     batch = x_phasors.shape[0]
     k = mix.shape[1]
@@ -112,6 +142,22 @@ def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray,
 
 
 def alias_free_grid(degree: int, m_in: int, m_keep: int) -> int:
+    """Smallest fast FFT length that keeps the kept products free of aliases.
+
+    Parameters
+    ----------
+    degree : int
+        Polynomial degree D of the transfer (an assumed degree for other models).
+    m_in : int
+        Largest ``|m_k|`` of any mixing vector present at the input.
+    m_keep : int
+        Largest ``|m_k|`` of the mixing vectors kept at the output.
+
+    Returns
+    -------
+    int
+        Grid points per torus axis, at least ``max(D m_in + m_keep + 1, 2 m_keep + 1)``.
+    """
     # D m_in + m_keep + 1 keeps kept indices alias-free; 2 m_keep + 1 keeps +m and -m
     # apart, so every kept index can be read from the half-spectrum of rfftn.
     return sfft.next_fast_len(max(degree * m_in + m_keep + 1, 2 * m_keep + 1))
@@ -194,6 +240,18 @@ def response_at(response, freqs_hz: np.ndarray) -> np.ndarray:
 
     ``response(f)`` is called with ``f >= 0`` only; negative frequencies take the
     complex conjugate, as for any real-valued system.
+
+    Parameters
+    ----------
+    response : callable
+        ``response(freq_hz) -> complex`` for frequencies >= 0 (Hz), dimensionless.
+    freqs_hz : array_like
+        Signed product frequencies (Hz), any shape.
+
+    Returns
+    -------
+    ndarray, complex
+        The response, the shape of ``freqs_hz``.
     """
     freqs_hz = np.asarray(freqs_hz, dtype=float)
     h = np.asarray(response(np.abs(freqs_hz)), dtype=complex)
@@ -233,7 +291,12 @@ class Propagation:
     def contributions(self, node: int, rows=slice(None)) -> np.ndarray:
         """Per-source phasors at ``node``, carried linearly from where they arose.
 
-        ``rows`` selects batch elements (default all).
+        Parameters
+        ----------
+        node : int
+            Node index: 0 is the input, k the output of stage k.
+        rows : slice or index array
+            Batch elements to return (default all).
 
         Returns
         -------
@@ -261,6 +324,17 @@ def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
     The tolerance scales with ``sum |m_k f_k|`` (the size of the terms that cancel), so a
     1 Hz beat of two 100 MHz carriers is a product, and ``2 f1 - f2`` with ``f2 = 2 f1``
     is DC.  The base-tone frequencies are read from the unit mixing vectors.
+
+    Parameters
+    ----------
+    mix : ndarray of int, shape (P, K)
+        Canonical mixing vectors, the unit vectors of the K base tones among them.
+    freqs_hz : ndarray, shape (B, P)
+        Signed product frequencies (Hz).
+
+    Returns
+    -------
+    ndarray of bool, shape (B, P)
     """
     freqs_hz = np.asarray(freqs_hz, dtype=float)
     k = mix.shape[1]
@@ -288,11 +362,17 @@ def propagate(
     x_in : ndarray, complex, (B, P)
         Input phasors (V).
     mix : ndarray of int, (P, K)
+        Canonical mixing vectors.
     freqs_hz : ndarray, (B, P)
         Signed product frequencies (Hz).
     ref_hz : ndarray (S, B), optional
         The reference carrier's frequency at each stage's input (Hz), where harmonic
         zones are centred; default each stage's own.
+
+    Returns
+    -------
+    Propagation
+        Node phasors (V), what each stage added, responses and flags.
     """
     dc = at_zero_hz(mix, freqs_hz)
     x = np.where(dc, 0.0, x_in)

@@ -73,6 +73,10 @@ def terminal(text, *, keep_newlines: bool = False) -> str:
     keep_newlines : bool
         Keep LF, for whole output lines whose line breaks are the program's own.
         Single values (table cells, names) are always passed without it.
+
+    Returns
+    -------
+    str
     """
     return (_CANDIDATE_KEEP_LF if keep_newlines else _CANDIDATE).sub(_fix, str(text))
 
@@ -241,6 +245,11 @@ def plot_text(text, max_chars: int | None = PLOT_NAME_CHARS) -> str:
     max_chars : int or None
         Names longer than this (after making controls visible) are cut and end in
         an ellipsis; ``None`` keeps them whole.
+
+    Returns
+    -------
+    str
+        The text with ``$`` escaped, at most ``max_chars`` characters.
     """
     text = terminal(text)
     if max_chars is not None and len(text) > max_chars:

@@ -110,7 +110,26 @@ class FilterView:
 
 
 def stage_view(lineup, name: str) -> FilterView:
-    """The view of filter stage ``name`` of ``lineup`` at its input products."""
+    """The view of filter stage ``name`` of ``lineup`` at its input products.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup, run once at its nominal drive.
+    name : str
+        Name of the filter stage.
+
+    Returns
+    -------
+    FilterView
+        The stage with :meth:`spurplan.result.Result.stage_response` at its input
+        (frequencies in Hz, levels in dBm, S21 in dB and degrees).
+
+    Raises
+    ------
+    LineupError
+        When no stage has that name or it is not a filter.
+    """
     stage = lineup.stage_of_kind(name, Filter)
     result = lineup.run()
     what = stage.source or f"synthesized ladder; {describe_parts(stage.prototype)}"
@@ -124,7 +143,28 @@ def stage_view(lineup, name: str) -> FilterView:
 
 
 def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterView:
-    """A prototype given as strings (command line), optionally at a carrier's harmonics."""
+    """A prototype given as strings (command line), optionally at a carrier's harmonics.
+
+    Parameters
+    ----------
+    spec : dict
+        The prototype table as a lineup file would give it (``family``, ``order``,
+        ``cutoff`` or ``center`` and ``bandwidth`` ... as strings with units).
+    impedance : str
+        System impedance with its unit, e.g. ``"50 ohm"``.
+    carrier : str or None
+        Carrier frequency with its unit, e.g. ``"455 MHz"``; the response is then listed at
+        its first :data:`PROTOTYPE_HARMONICS` harmonics.
+
+    Returns
+    -------
+    FilterView
+
+    Raises
+    ------
+    LineupError
+        Naming the command line as the file, for a value that cannot be read.
+    """
     where = "command line"
     try:
         r_ohm = parse_impedance_ohm(impedance)

@@ -45,6 +45,11 @@ def text_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]
     Cells are escaped with :func:`spurplan.escaping.terminal` before the widths are
     measured, so a name with control characters can neither act on the terminal nor
     break the alignment.
+
+    Returns
+    -------
+    str
+        The header line, a rule and one line per row, each ending in a newline.
     """
     header = [terminal(h) for _, h, _ in spec]
     n = len(next(iter(columns.values()), []))
@@ -105,6 +110,20 @@ def to_json(summary: dict, rows_key: str, columns: dict[str, list]) -> str:
 
     ``ensure_ascii`` writes every control, format (bidi) and non-ASCII character of a
     name as a ``\\uXXXX`` escape, so the JSON text itself holds printable ASCII only.
+
+    Parameters
+    ----------
+    summary : dict
+        The run's summary (notices, provenance, verdict ...), written as given.
+    rows_key : str
+        Key of the row list, e.g. ``"products"``.
+    columns : dict of str -> list
+        Data by column name, turned into one object per row.
+
+    Returns
+    -------
+    str
+        The JSON text, indented, ending in a newline.
     """
     doc = {"summary": summary, rows_key: rows_of(columns)}
     return json.dumps(_finite(doc), indent=2, ensure_ascii=True) + "\n"
@@ -124,6 +143,19 @@ def html_table(columns: dict[str, list], spec: list[tuple[str, str, str | None]]
     """An HTML ``<table>`` of the same columns as :func:`text_table` (values escaped).
 
     ``row_class(i)`` may return a CSS class for row i (for example "fail").
+
+    Parameters
+    ----------
+    columns : dict of str -> list
+        Data by column name.
+    spec : list of (column, header, format)
+        Which columns to show, their headers (with units) and number formats.
+    row_class : callable, optional
+        ``row_class(i)`` gives a CSS class for row i, or ``None`` for none.
+
+    Returns
+    -------
+    str
     """
     import html
 
@@ -143,6 +175,18 @@ def markdown_table(columns: dict[str, list], spec: list[tuple[str, str, str | No
 
     Every cell is literal text (:func:`spurplan.escaping.markdown`): no markup, link,
     image or ``|`` from a name reaches the table's structure.
+
+    Parameters
+    ----------
+    columns : dict of str -> list
+        Data by column name.
+    spec : list of (column, header, format)
+        Which columns to show, their headers (with units) and number formats.
+
+    Returns
+    -------
+    str
+        The table's lines, each ending in a newline.
     """
     header = [markdown(h) for _, h, _ in spec]
     n = len(next(iter(columns.values()), []))

@@ -229,7 +229,25 @@ class Lineup:
 
     def stage_index(self, name: str, option: str = "--stage") -> int:
         """1-based position of the stage called ``name`` (node number); ``option`` names
-        the command-line option that gave it, for the error."""
+        the command-line option that gave it, for the error.
+
+        Parameters
+        ----------
+        name : str
+            The stage's name as in the lineup file.
+        option : str
+            The command-line option that gave the name, named as the error's field.
+
+        Returns
+        -------
+        int
+            1-based stage position, which is also the node number of the stage's output.
+
+        Raises
+        ------
+        LineupError
+            When no stage has that name.
+        """
         for i, stage in enumerate(self.stages, start=1):
             if stage.name == name:
                 return i
@@ -241,7 +259,27 @@ class Lineup:
         )
 
     def stage_of_kind(self, name: str, kind: type, option: str = "--stage"):
-        """The stage called ``name``, which must be a ``kind`` (one-line error otherwise)."""
+        """The stage called ``name``, which must be a ``kind`` (one-line error otherwise).
+
+        Parameters
+        ----------
+        name : str
+            The stage's name as in the lineup file.
+        kind : type
+            The stage class required (e.g. ``Mixer``).
+        option : str
+            The command-line option that gave the name, named as the error's field.
+
+        Returns
+        -------
+        stage
+            The stage, an instance of ``kind``.
+
+        Raises
+        ------
+        LineupError
+            When no stage has that name or it is of another kind.
+        """
         stage = self.stages[self.stage_index(name, option) - 1]
         if not isinstance(stage, kind):
             have, want = type(stage).__name__.lower(), kind.__name__.lower()
@@ -256,6 +294,18 @@ class Lineup:
         """Input peak phasors (V), shape (B, P), for carrier powers offset by ``drive_offset_db``.
 
         ``drive_offset_db`` may be an array (B,): a drive sweep in one batch.
+
+        Parameters
+        ----------
+        mix : ndarray of int, shape (P, K)
+            Canonical mixing vectors; the carriers are placed at their base-tone rows.
+        drive_offset_db : float or ndarray, shape (B,)
+            Added to every carrier's power (dB).
+
+        Returns
+        -------
+        ndarray, complex, shape (B, P)
+            Peak phasors (V) across the system impedance; zero except at the carriers.
         """
         offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
         x = np.zeros((offset.size, len(mix)), dtype=complex)

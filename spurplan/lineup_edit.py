@@ -71,6 +71,11 @@ def insert_stage(source: str | Path, target: str | Path, position: int, snippet:
     snippet : str
         TOML text holding one ``[[stage]]`` table.
 
+    Returns
+    -------
+    EditedLineup
+        The new file's bytes, its parsed document and the data paths rewritten.
+
     Raises
     ------
     LineupError

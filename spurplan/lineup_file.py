@@ -91,7 +91,28 @@ def load(path: str | Path) -> Lineup:
 def from_dict(
     doc: dict, *, name: str = "<lineup>", base_dir: Path = Path("."), source: Path | None = None
 ) -> Lineup:
-    """Validate an already-parsed lineup document (same rules as :func:`load`)."""
+    """Validate an already-parsed lineup document (same rules as :func:`load`).
+
+    Parameters
+    ----------
+    doc : dict
+        The parsed TOML document.
+    name : str
+        File name for messages.
+    base_dir : Path
+        Folder that relative paths in the document start from.
+    source : Path, optional
+        The file the document came from, kept on the lineup.
+
+    Returns
+    -------
+    Lineup
+
+    Raises
+    ------
+    LineupError
+        On any problem, with a one-line message naming file, stage and field.
+    """
     top = Fields(doc, name, "")
     for key in TOP_LEVEL_KEYS:
         top.raw(key)
@@ -303,6 +324,21 @@ def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
     A lower bound on the work of one evaluation: non-polynomial models start there and
     refine (DEVELOPERS.md, "Torus engine").  Sweeps and yield runs multiply it by their
     points to bound their work before they start.
+
+    Parameters
+    ----------
+    stages : sequence of stage
+        The lineup's stages; linear ones (``transfer`` None) add nothing.
+    n_tones : int
+        Number of base tones K (carriers and LOs), the torus dimension.
+    max_order : int
+        The analysis order: largest ``|m_k|`` at the input and kept.
+
+    Returns
+    -------
+    tuple of (int, int)
+        Grid points ``N ** K`` and the largest model degree (8 assumed for a non-polynomial
+        model; ``m + |n|`` of a mixer's terms).
     """
     degrees = [s.transfer.degree or 8 for s in stages if s.transfer is not None]
     degrees += [

@@ -93,7 +93,21 @@ class Rule:
     origin: str = "lineup"
 
     def holds_for(self, carrier_hz, carrier_dbm):
-        """Whether the rule's carrier conditions hold (arrays broadcast: one per batch element)."""
+        """Whether the rule's carrier conditions hold (arrays broadcast: one per batch element).
+
+        Parameters
+        ----------
+        carrier_hz : float or array_like
+            Carrier frequency (Hz), one per batch element.
+        carrier_dbm : float or array_like
+            Mean carrier power (dBm), one per batch element.
+
+        Returns
+        -------
+        bool or ndarray of bool
+            True where the frequency lies in ``when_carrier_hz`` (ends included) and the power in
+            ``when_power_dbm`` (lower end excluded); a bool for scalar arguments.
+        """
         ok = np.ones(np.broadcast_shapes(np.shape(carrier_hz), np.shape(carrier_dbm)), dtype=bool)
         if self.when_carrier_hz is not None:
             lo, hi = self.when_carrier_hz
@@ -107,6 +121,20 @@ class Rule:
         """Conducted limit (dBm in ``rbw_hz``) at ``freq_hz`` for mean carrier power ``carrier_dbm``.
 
         All arguments broadcast (for example ``(B, G)`` frequencies with ``(B, 1)`` powers).
+
+        Parameters
+        ----------
+        freq_hz : float or array_like
+            Frequency of the product (Hz); used by field limits that fall with frequency.
+        carrier_dbm : float or array_like
+            Mean carrier power (dBm), for relative and attenuation limits.
+        antenna_gain_dbi : float or array_like
+            Antenna gain (dBi), subtracted from the EIRP of a field-strength limit.
+
+        Returns
+        -------
+        ndarray
+            The limit (dBm in ``rbw_hz``), the broadcast shape of the arguments.
         """
         f = np.asarray(freq_hz, dtype=float)
         p = np.asarray(carrier_dbm, dtype=float)
@@ -155,6 +183,18 @@ def field_to_eirp_dbm(field_dbuv_m, distance_m: float):
     """EIRP (dBm) that gives ``field_dbuv_m`` at ``distance_m`` in free space.
 
     ``E = EIRP + 104.77 - 20 log10(d)`` (ITU-R P.525-2 eq. (1), e = sqrt(30 p) / d, in dB).
+
+    Parameters
+    ----------
+    field_dbuv_m : float or array_like
+        Field strength (dBuV/m).
+    distance_m : float
+        Measurement distance (m).
+
+    Returns
+    -------
+    ndarray
+        EIRP (dBm).
     """
     return np.asarray(field_dbuv_m, dtype=float) - FIELD_CONSTANT_DB + 20.0 * math.log10(distance_m)
 

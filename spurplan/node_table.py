@@ -72,6 +72,25 @@ def node_levels(result, node: int, combine: str, rows=slice(None), carrier_colum
 
     ``carrier_columns`` are the product indices of the carriers at the node (after a
     mixer, the wanted products); default the base tones.
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    node : int
+        Node index: 0 is the lineup input, k the output of stage k.
+    combine : {"phase", "worst", "power"}
+        How the stage contributions to one frequency combine: phase-true, magnitudes added
+        (worst case), or as a power sum (any other value is taken as the power sum).
+    rows : slice or index array
+        The batch elements to evaluate.
+    carrier_columns : sequence of int, optional
+        Canonical product indices of the carriers at the node; default the base tones.
+
+    Returns
+    -------
+    NodeLevels
+        Levels in dBm and frequencies in Hz, ``(B, G)`` per selected batch element.
     """
     prop = result.propagation
     mix = result.mix

@@ -40,7 +40,20 @@ _VALID_GAIN_DEVIATION_DB = 1.0
 
 def per_sample(value, x):
     """Broadcast a parameter that is a scalar or one value per batch element (B,)
-    against samples ``x`` of shape (B, ...)."""
+    against samples ``x`` of shape (B, ...).
+
+    Parameters
+    ----------
+    value : float or ndarray, shape (B,)
+        The parameter (in its own unit, e.g. V^(1-n) for a polynomial coefficient).
+    x : ndarray, shape (B, ...)
+        Samples the parameter is applied to (V).
+
+    Returns
+    -------
+    float or ndarray
+        ``value`` unchanged if scalar, else reshaped to ``(B, 1, ...)`` to broadcast with ``x``.
+    """
     if np.ndim(value) == 0:
         return value
     return np.reshape(value, (-1,) + (1,) * (np.ndim(x) - 1))

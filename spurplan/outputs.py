@@ -234,7 +234,25 @@ def _stage(folder: Path, label: str, payload: bytes, target: Path) -> _Staged:
 
 
 def write_atomic(path: str | Path, data: bytes | str) -> Path:
-    """Write ``data`` to ``path`` (checked by :func:`check_target`) without a partial file ever showing."""
+    """Write ``data`` to ``path`` (checked by :func:`check_target`) without a partial file ever showing.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to write: a new name or a regular file, in an existing folder.
+    data : bytes or str
+        The content; text is written as UTF-8.
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    OutputError
+        One line naming the path, when it cannot be written.
+    """
     target = check_target(path)
     payload = data.encode("utf-8") if isinstance(data, str) else data
     folder = target.parent if str(target.parent) else Path(".")
@@ -270,6 +288,11 @@ def write_with_folder(path: str | Path, text: str, folder_name: str, files: dict
     only in the microseconds between those renames.  A folder name that is a file,
     a link, a read-only folder or one that holds other files is an
     :class:`OutputError` before anything is written.
+
+    Returns
+    -------
+    Path
+        The document written.
     """
     target = check_target(path)
     parent = target.parent if str(target.parent) else Path(".")
@@ -313,7 +336,20 @@ def write_with_folder(path: str | Path, text: str, folder_name: str, files: dict
 
 
 def check_folder(folder: Path, owned: re.Pattern) -> None:
-    """Refuse a folder target that cannot be replaced as a whole (see :func:`write_with_folder`)."""
+    """Refuse a folder target that cannot be replaced as a whole (see :func:`write_with_folder`).
+
+    Parameters
+    ----------
+    folder : Path
+        The folder a document's files would go to; a missing one is fine.
+    owned : re.Pattern
+        Names of the files an earlier run wrote there.
+
+    Raises
+    ------
+    OutputError
+        When it is not a folder, is read-only, cannot be read or holds anything else.
+    """
     try:
         st = os.lstat(folder)
     except FileNotFoundError:
@@ -352,7 +388,22 @@ def _umask() -> int:
 
 
 def save_figure(fig, path: str | Path, dpi: int = 120) -> Path:
-    """Save a matplotlib figure atomically; the format follows the file's suffix."""
+    """Save a matplotlib figure atomically; the format follows the file's suffix.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : str or Path
+        The file; its suffix chooses the format (PNG without one).
+    dpi : int
+        Resolution of raster formats (dots per inch).
+
+    Returns
+    -------
+    Path
+        The file written.
+    """
     import io
 
     path = check_target(path)

@@ -131,7 +131,22 @@ class Remedy:
 
 
 def rejection_needed(outcome: CheckResult, margin_db: float) -> dict[str, list]:
-    """Products whose margin is below ``margin_db``, and how much more rejection each needs."""
+    """Products whose margin is below ``margin_db``, and how much more rejection each needs.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        A compliance check, with ``margin_db`` per product row (dB; ``None`` where no rule
+        applies).
+    margin_db : float
+        Margin target (dB).
+
+    Returns
+    -------
+    dict of str to list
+        ``freq_hz`` (Hz), ``label``, ``margin_db`` (dB), ``rejection_needed_db`` (dB: the
+        target minus the margin), ``rule`` and ``band`` of each product short of the target.
+    """
     rows = outcome.rows
     out: dict[str, list] = {
         c: [] for c in ("freq_hz", "label", "margin_db", "rejection_needed_db", "rule", "band")
@@ -176,6 +191,11 @@ def remedy(
         Unloaded Q of the proposed filter's parts (``None``: lossless).
     floor_db : float or None
         The proposed filter's stopband floor (dB; ``None``: the ideal ladder).
+
+    Returns
+    -------
+    Remedy
+        The filter found (or why none was), its table to paste and the re-check.
     """
     if margin_db not in MARGIN_TARGET:
         raise LineupError(f"{margin_db:g} dB: {MARGIN_TARGET.expected()}", field="--margin")
@@ -336,6 +356,15 @@ def write_fixed(lineup, found: Remedy, path):
     rewritten when the file goes to another folder.  Any mismatch is a one-line
     :class:`~spurplan.errors.LineupError` and nothing is written; over the input
     itself the write is atomic, so the input is intact on any failure.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup that was checked, loaded from a file.
+    found : Remedy
+        What :func:`remedy` found; it must hold a filter.
+    path : str or Path
+        The file to write (may be the lineup's own file).
 
     Returns
     -------

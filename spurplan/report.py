@@ -133,6 +133,18 @@ class Report:
         from users' files cannot add HTML, links, images or table cells; the only
         markup is the report's own, and the only images are its figures, by relative
         percent-encoded paths.
+
+        Parameters
+        ----------
+        made_at : str
+            When the report was made, as printed (e.g. ``"2026-01-31 12:00:00 UTC"``).
+        figure_dir : str
+            Name of the folder beside the report that holds the figures, as linked.
+
+        Returns
+        -------
+        tuple of (str, dict of str to bytes)
+            The Markdown text and the figures by file name.
         """
         from urllib.parse import quote
 
@@ -457,7 +469,30 @@ def _cautions_section(outcome) -> Section:
 
 
 def write_report(lineup, path, now: datetime | None = None) -> Path:
-    """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it."""
+    """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup to report on (with a mask for the compliance sections).
+    path : str or Path
+        The report file; its suffix (``.html``, ``.htm`` or ``.md``) chooses the format.
+    now : datetime, optional
+        The time printed as made (default the current time, UTC).
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    LineupError
+        For an unknown suffix (field ``-o``), before anything is built.
+    OutputError
+        For a target (or, for Markdown, a figure folder) that cannot be written, also
+        before anything is built.
+    """
     from .errors import LineupError
 
     # Every refusal of the target comes before the (slow) build, and nothing is written then.

@@ -95,7 +95,20 @@ class Result:
         return np.abs(self.tone_freqs_hz @ vecs.T)
 
     def carrier_levels_dbm(self, stage: str | None = None, batch: int = 0) -> np.ndarray:
-        """Modelled level (dBm) of each carrier at a node; shape (K_c,)."""
+        """Modelled level (dBm) of each carrier at a node; shape (K_c,).
+
+        Parameters
+        ----------
+        stage : str or None
+            Stage whose output to read; ``None`` for the lineup output.
+        batch : int
+            Batch element (drive or tuning point).
+
+        Returns
+        -------
+        ndarray, shape (K_c,)
+            Level of each carrier (dBm), in the lineup's carrier order.
+        """
         return self.carrier_levels_dbm_batch(stage)[batch]
 
     def carrier_levels_dbm_batch(self, stage: str | None = None) -> np.ndarray:
@@ -104,7 +117,19 @@ class Result:
         return vpeak_to_dbm(self.propagation.nodes[node][:, self.carrier_columns(node)], self.lineup.r_ohm)
 
     def slot_labels(self, levels, row: int = 0) -> list[str]:
-        """Label of every slot of a :meth:`levels` row ("" for unused slots)."""
+        """Label of every slot of a :meth:`levels` row ("" for unused slots).
+
+        Parameters
+        ----------
+        levels : NodeLevels
+            What :meth:`levels` returned.
+        row : int
+            Row of ``levels`` (position within the batch rows it was made for).
+
+        Returns
+        -------
+        list of str
+        """
         plus, minus = labels(self.mix, self.lineup.tone_names)
         return [
             (plus[r] if s > 0 else minus[r]) if ok else ""
@@ -136,6 +161,20 @@ class Result:
         """Merged, combined product levels of a node for the batch ``rows`` (arrays).
 
         See :class:`spurplan.node_table.NodeLevels`.
+
+        Parameters
+        ----------
+        stage : str or None
+            Stage whose output to read; ``None`` for the lineup output.
+        combine : {"worst", "power", "phase"} or None
+            ``None`` uses the lineup's analysis setting.
+        rows : slice or index array
+            Batch elements to evaluate (default all).
+
+        Returns
+        -------
+        NodeLevels
+            Levels (dBm) and frequencies (Hz), ``(B, G)`` for the selected rows.
         """
         node = self.node_index(stage)
         return node_levels(
@@ -143,7 +182,24 @@ class Result:
         )
 
     def product_rows(self, stage: str | None = None, combine: str | None = None, batch: int = 0):
-        """The rows of :meth:`products` as a dict of columns (lists), without pandas."""
+        """The rows of :meth:`products` as a dict of columns (lists), without pandas.
+
+        Parameters
+        ----------
+        stage : str or None
+            Stage whose output to report; ``None`` for the lineup output.
+        combine : {"worst", "power", "phase"} or None
+            ``None`` uses the lineup's analysis setting.
+        batch : int
+            Batch element (drive or tuning point) to report.
+
+        Returns
+        -------
+        dict of str to list
+            Columns ``freq_hz`` (Hz), ``level_dbm`` (dBm), ``dbc`` (dB relative to the
+            strongest carrier), ``order``, ``mix``, ``label``, ``also``, ``kind``, ``stage``
+            and the flags, sorted by frequency; products below the report floor are left out.
+        """
         node = self.node_index(stage)
         lv = self.levels(stage, combine, rows=slice(batch, batch + 1))
         prop = self.propagation
@@ -210,7 +266,23 @@ class Result:
         return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]
 
     def summary(self, stage: str | None = None, combine: str | None = None, batch: int = 0) -> dict:
-        """Headline figures of a node: carriers, strongest product, flags, provenance."""
+        """Headline figures of a node: carriers, strongest product, flags, provenance.
+
+        Parameters
+        ----------
+        stage : str or None
+            Stage whose output to summarise; ``None`` for the lineup output.
+        combine : {"worst", "power", "phase"} or None
+            ``None`` uses the lineup's analysis setting.
+        batch : int
+            Batch element (drive or tuning point).
+
+        Returns
+        -------
+        dict
+            Lineup name, node, combining mode, carrier levels (dBm), product count, the
+            strongest product (Hz, dBm, dBc), flagged stages, notes and provenance.
+        """
         from .provenance import provenance
 
         rows = self.product_rows(stage, combine, batch)
@@ -237,6 +309,18 @@ class Result:
         Returns columns ``freq_hz``, ``label``, ``order``, ``level_in_dbm``, ``s21_db``,
         ``s21_deg`` and ``beyond_data``, sorted by frequency; products more than
         200 dB below the strongest one at the input are left out.
+
+        Parameters
+        ----------
+        stage : str
+            Name of the linear stage.
+        batch : int
+            Batch element (drive or tuning point).
+
+        Returns
+        -------
+        dict of str to list
+            Frequencies in Hz, input levels in dBm, ``s21_db`` in dB and ``s21_deg`` in degrees.
         """
         i = self.node_index(stage)
         prop = self.propagation

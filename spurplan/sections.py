@@ -27,7 +27,22 @@ def _network(s: np.ndarray, freq_hz: np.ndarray, r_ohm: float):
 
 
 def cascade_s21(stages, freq_hz: np.ndarray, r_ohm: float) -> np.ndarray:
-    """S21 of ``stages`` cascaded with ``**`` at strictly increasing ``freq_hz`` (Hz)."""
+    """S21 of ``stages`` cascaded with ``**`` at strictly increasing ``freq_hz`` (Hz).
+
+    Parameters
+    ----------
+    stages : sequence of LinearStage
+        The stages of the section, in signal order (at least one), each with ``s_matrix``.
+    freq_hz : ndarray, shape (F,)
+        Strictly increasing frequencies (Hz).
+    r_ohm : float
+        System impedance (ohm), the reference impedance of every port.
+
+    Returns
+    -------
+    ndarray, complex, shape (F,)
+        S21 of the cascade.
+    """
     net = None
     for stage in stages:
         part = _network(stage.s_matrix(freq_hz), freq_hz, r_ohm)
@@ -65,7 +80,20 @@ class SectionStage:
 
 
 def with_sections(stages, r_ohm: float) -> list:
-    """Replace each linear stage by its :class:`SectionStage` view (others unchanged)."""
+    """Replace each linear stage by its :class:`SectionStage` view (others unchanged).
+
+    Parameters
+    ----------
+    stages : sequence of stage
+        The lineup's stages in signal order; a stage whose ``transfer`` is ``None`` is linear.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    list
+        The stages, each linear one wrapped with the linear stages before it in its run.
+    """
     out: list = []
     run: list = []
     for stage in stages:

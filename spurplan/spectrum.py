@@ -78,7 +78,25 @@ def product_freqs_hz(mix: np.ndarray, tone_freqs_hz: np.ndarray) -> np.ndarray:
 
 
 def product_index(mix: np.ndarray, vector) -> int:
-    """Row of ``mix`` holding ``vector`` or its negative (the canonical representative)."""
+    """Row of ``mix`` holding ``vector`` or its negative (the canonical representative).
+
+    Parameters
+    ----------
+    mix : ndarray of int, shape (P, K)
+        Canonical mixing vectors.
+    vector : sequence of int, length K
+        The mixing vector to find, either sign.
+
+    Returns
+    -------
+    int
+        Its row in ``mix``.
+
+    Raises
+    ------
+    ValueError
+        When neither ``vector`` nor its negative is in ``mix`` (beyond the analysis order).
+    """
     v = np.asarray(vector)
     hit = np.nonzero((mix == v).all(axis=1) | (mix == -v).all(axis=1))[0]
     if hit.size == 0:
@@ -99,6 +117,18 @@ def label(m, tone_names: list[str]) -> str:
 
     Positive terms come first (in tone order), so ``[-1, 2]`` reads ``"2f2-f1"``.  The
     sign is chosen by the caller (pass the vector whose frequency is positive).
+
+    Parameters
+    ----------
+    m : sequence of int, length K
+        The mixing vector (one integer coefficient per tone).
+    tone_names : list of str, length K
+        Names of the tones, e.g. ``["f1", "f2"]`` or ``["LO", "f1"]``.
+
+    Returns
+    -------
+    str
+        The label; ``"DC"`` for the all-zero vector.
     """
     terms = []
     for coeff, name in zip(m, tone_names, strict=True):
@@ -123,7 +153,20 @@ def _labels_cached(
 
 
 def labels(mix: np.ndarray, tone_names: list[str]) -> tuple[tuple[str, ...], tuple[str, ...]]:
-    """Labels of every mixing vector as given and negated (cached): ``(plus, minus)``."""
+    """Labels of every mixing vector as given and negated (cached): ``(plus, minus)``.
+
+    Parameters
+    ----------
+    mix : ndarray of int, shape (P, K)
+        Mixing vectors.
+    tone_names : list of str, length K
+        Names of the tones.
+
+    Returns
+    -------
+    tuple of (tuple of str, tuple of str)
+        ``(plus, minus)``: the label of each row of ``mix`` and of its negative, P each.
+    """
     mix = np.ascontiguousarray(mix, dtype=np.int64)
     return _labels_cached(mix.tobytes(), mix.shape, tuple(tone_names))
 

@@ -54,7 +54,28 @@ class SpurChart:
 
 
 def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:
-    """Build the chart of mixer ``stage`` (the reference carrier, the strongest, is the IF)."""
+    """Build the chart of mixer ``stage`` (the reference carrier, the strongest, is the IF).
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup, run once at its nominal drive.
+    stage : str
+        Name of the mixer stage.
+    max_order : int
+        Largest ``m + |n|`` charted.
+
+    Returns
+    -------
+    SpurChart
+        One row per ``(m, n)`` with ``m >= 0``: frequency (Hz), table level (dBc), modelled
+        level (dBm and dBc of the wanted product), and the passband and band marks.
+
+    Raises
+    ------
+    LineupError
+        When no stage has that name or it is not a mixer.
+    """
     index = lineup.stage_index(stage)
     mixer = lineup.stage_of_kind(stage, Mixer)
     k = lineup.reference_carrier_index

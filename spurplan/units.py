@@ -93,7 +93,20 @@ def _split(text: object, expected: str) -> tuple[float, str]:
 
 
 def check_value_length(text: str, expected: str) -> None:
-    """Refuse a value string longer than :data:`MAX_VALUE_CHARS`, quoting only its start."""
+    """Refuse a value string longer than :data:`MAX_VALUE_CHARS`, quoting only its start.
+
+    Parameters
+    ----------
+    text : str
+        The value string as read.
+    expected : str
+        What the field expects, for the error message (e.g. ``"a frequency"``).
+
+    Raises
+    ------
+    UnitError
+        When ``text`` has more than :data:`MAX_VALUE_CHARS` characters.
+    """
     if len(text) > MAX_VALUE_CHARS:
         raise UnitError(
             f"{text[:40]}...",
@@ -113,6 +126,18 @@ def unit_hint(unit: str, accepted) -> str:
     the refused SI spellings (``"mHz"``, ``"MW"``), and ``""`` otherwise (an accepted
     unit included).  Only case is forgiven in the suggestion: units one letter apart
     ("rad", "grad") differ in meaning.
+
+    Parameters
+    ----------
+    unit : str
+        The unit as written.
+    accepted : collection of str
+        The units the field accepts (a dict's keys will do).
+
+    Returns
+    -------
+    str
+        The hint, starting with a space, or ``""``.
     """
     if unit in accepted:
         return ""
@@ -276,12 +301,37 @@ def dbm_to_vpeak(level_dbm, r_ohm: float = 50.0):
     """Peak voltage (V) of a sinusoid of power ``level_dbm`` across ``r_ohm``.
 
     ``V = sqrt(2 R P)`` (common practice, no source).
+
+    Parameters
+    ----------
+    level_dbm : float or array_like
+        Power (dBm).
+    r_ohm : float
+        Resistance the power is delivered into (ohm).
+
+    Returns
+    -------
+    ndarray
+        Peak voltage (V), the shape of ``level_dbm``.
     """
     return np.sqrt(2.0 * r_ohm * dbm_to_w(level_dbm))
 
 
 def vpeak_to_dbm(v_peak, r_ohm: float = 50.0):
-    """Power in dBm of a sinusoid of peak amplitude ``v_peak`` (V) across ``r_ohm``."""
+    """Power in dBm of a sinusoid of peak amplitude ``v_peak`` (V) across ``r_ohm``.
+
+    Parameters
+    ----------
+    v_peak : float, complex or array_like
+        Peak amplitude (V); a complex phasor counts by its magnitude.
+    r_ohm : float
+        Resistance across which it is measured (ohm).
+
+    Returns
+    -------
+    ndarray
+        Power (dBm); zero amplitude gives ``-inf``.
+    """
     v = np.abs(np.asarray(v_peak))
     return w_to_dbm(v * v / (2.0 * r_ohm))
 

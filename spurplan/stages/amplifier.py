@@ -114,6 +114,18 @@ def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
 
     The figures may be arrays (one value per Monte Carlo sample); the coefficients
     are then arrays too.
+
+    Parameters
+    ----------
+    fig : AmplifierFigures
+        Datasheet figures: gain (dB), output intercepts and harmonic levels (dBm, dBc).
+    r_ohm : float
+        System impedance (ohm), for dBm <-> V peak.
+
+    Returns
+    -------
+    Polynomial
+        Coefficients ``a_n`` in V^(1-n).
     """
     a1 = 10.0 ** (np.asarray(fig.gain_db, dtype=float) / 20.0)
     coeffs = {1: a1}
@@ -140,6 +152,19 @@ def saturating_base(poly: Polynomial, fig: AmplifierFigures, r_ohm: float) -> Sa
     polynomial's; rail and knee are left to :func:`amplifier_fit.fit_compression`.
     Odd terms above the cubic are not carried: their harmonics are set by the zone
     weights, their in-band products by the saturation.
+
+    Parameters
+    ----------
+    poly : Polynomial
+        The small-signal polynomial (:func:`polynomial_from_figures`).
+    fig : AmplifierFigures
+        The same figures, for which orders are stated.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    Saturating
     """
     c = [np.asarray(a, dtype=float) for a in poly.coeffs] + [np.zeros(())] * 3
     a1, a3 = c[0], c[2]
@@ -188,7 +213,20 @@ class AmplifierModel:
 
 
 def build_model(fig: AmplifierFigures, r_ohm: float) -> AmplifierModel:
-    """Fit the whole model to every figure (module docstring)."""
+    """Fit the whole model to every figure (module docstring).
+
+    Parameters
+    ----------
+    fig : AmplifierFigures
+        Datasheet figures, checked at the boundary.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    AmplifierModel
+        Transfer, harmonic-zone weights (dB) and the check of each large-signal figure.
+    """
     poly = polynomial_from_figures(fig, r_ohm)
     checks: list[FigureCheck] = []
     transfer: Polynomial | Saturating = poly
@@ -234,7 +272,20 @@ def _harmonic_points(fig: AmplifierFigures, transfer, r_ohm: float) -> dict[int,
 
 
 def output_p1db_dbm(transfer, r_ohm: float) -> float | None:
-    """Output 1 dB compression point (dBm) of a model (``None`` if it never compresses 1 dB)."""
+    """Output 1 dB compression point (dBm) of a model (``None`` if it never compresses 1 dB).
+
+    Parameters
+    ----------
+    transfer : Polynomial or Saturating
+        The model (V in, V out).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float or None
+        Output P1dB (dBm).
+    """
     return amplifier_fit.model_p1db_dbm(transfer, r_ohm)
 
 
@@ -341,10 +392,17 @@ class Amplifier:
         Parameters
         ----------
         freq_hz : ndarray (B, P)
+            Product frequencies (Hz), >= 0.
         ref_hz : ndarray (B,) or None
-            Carrier at the stage input per batch element (default ``ref_freq_hz``).
+            Carrier frequency (Hz) at the stage input per batch element (default
+            ``ref_freq_hz``).
         weights_db : dict of int -> float or ndarray (B,), optional
             Per-sample weights (Monte Carlo); default the fitted ones.
+
+        Returns
+        -------
+        ndarray, complex
+            Dimensionless weight, the shape of ``freq_hz``.
         """
         weights_db = self.zone_weights_db if weights_db is None else weights_db
         band = self._band_ratio(freq_hz)
@@ -390,7 +448,26 @@ class Amplifier:
         band: PassBand | None = None,
         ref_freq_hz: float = 0.0,
     ) -> Amplifier:
-        """Build and fit the model from figures already checked at the boundary."""
+        """Build and fit the model from figures already checked at the boundary.
+
+        Parameters
+        ----------
+        name : str
+            The stage's name.
+        figures : AmplifierFigures
+            Datasheet figures (dB, dBm, dBc).
+        r_ohm : float
+            System impedance (ohm).
+        band : PassBand, optional
+            Small-signal pass band (corners in Hz); ``None`` for a flat response.
+        ref_freq_hz : float
+            Reference carrier's frequency (Hz), where the figures are referred and harmonic
+            zones are centred.
+
+        Returns
+        -------
+        Amplifier
+        """
         model = build_model(figures, r_ohm)
         return cls(
             name=name,
@@ -405,6 +482,26 @@ class Amplifier:
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Amplifier:
+        """The amplifier read from its lineup table (figures, pass band, optional Touchstone shape).
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Amplifier
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value, or of a
+            Touchstone file that does not cover the carrier.
+        """
         figures = read_figures(fields)
         band = read_band(fields, context)
         amp = cls.from_figures(fields.raw("name"), figures, context.r_ohm, band, context.ref_freq_hz)
@@ -430,9 +527,13 @@ def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[Polynomia
 
     Parameters
     ----------
+    amp : Amplifier
+        The nominal stage.
     deltas : dict of str -> ndarray (B,)
         Shifts in dB of ``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db`` and ``ohip2``
         .. ``ohip9`` (output-referred intercepts, dBm).
+    r_ohm : float
+        System impedance (ohm).
 
     Returns
     -------
@@ -557,7 +658,21 @@ def read_figures(fields: Fields) -> AmplifierFigures:
 
 
 def read_band(fields: Fields, context: LoadContext) -> PassBand | None:
-    """``band = { low = "...", high = "...", order = 1 }``: an optional pass band."""
+    """``band = { low = "...", high = "...", order = 1 }``: an optional pass band.
+
+    Parameters
+    ----------
+    fields : Fields
+        Reader of the stage's table; ``band`` holds ``low`` and ``high`` (frequencies) and
+        ``order``.
+    context : LoadContext
+        Gives the reference carrier's frequency (Hz), which the band must contain.
+
+    Returns
+    -------
+    PassBand or None
+        Corners in Hz; ``None`` when the table has no ``band``.
+    """
     raw = fields.raw("band")
     if raw is None:
         return None

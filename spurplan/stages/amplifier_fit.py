@@ -99,6 +99,15 @@ class FigureCheck:
 def one_tone(transfer, amps_v, n_max: int) -> np.ndarray:
     """Output harmonic phasors (V) for cosine inputs of peak ``amps_v``.
 
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    amps_v : float or array_like
+        Input cosine peak amplitudes (V).
+    n_max : int
+        Highest harmonic returned.
+
     Returns
     -------
     ndarray, complex, shape (len(amps_v), n_max + 1)
@@ -159,6 +168,18 @@ def model_p1db_dbm(transfer, r_ohm: float) -> float | None:
     Returns ``None`` when the model never compresses by 1 dB (linear, or expanding
     without bound).  The first crossing from low drive is taken (an expansive model
     may rise before it falls).
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float or None
+        Output P1dB (dBm).
     """
     if transfer.degree == 1:
         return None
@@ -182,6 +203,18 @@ def model_psat_dbm(transfer, r_ohm: float) -> float | None:
     For :class:`~spurplan.nonlinear.Saturating` the two-level limit (its docstring);
     for a polynomial the highest fundamental before it turns over; ``None`` where the
     output grows without bound.
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float or None
+        Saturated output power (dBm).
     """
     if isinstance(transfer, Saturating):
         lo, hi = transfer.saturated_levels_v()
@@ -201,6 +234,20 @@ def input_for_output_v(transfer, out_dbm: float, r_ohm: float) -> float | None:
 
     Searched from low drive up to where the fundamental stops rising; ``None`` when
     it never gets there.
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    out_dbm : float
+        Target fundamental output power (dBm).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float or None
+        Input peak amplitude (V).
     """
     target = float(dbm_to_vpeak(out_dbm, r_ohm))
     scale = knee_scale_v(transfer)
@@ -222,7 +269,22 @@ def input_for_output_v(transfer, out_dbm: float, r_ohm: float) -> float | None:
 
 
 def harmonic_dbc(transfer, amp_v: float, n: int) -> float:
-    """Level of harmonic ``n`` relative to the fundamental (dBc) at input peak ``amp_v``."""
+    """Level of harmonic ``n`` relative to the fundamental (dBc) at input peak ``amp_v``.
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    amp_v : float
+        Input cosine peak amplitude (V).
+    n : int
+        Harmonic number (>= 2).
+
+    Returns
+    -------
+    float
+        Harmonic n over the fundamental (dBc); ``-inf`` where the harmonic is zero.
+    """
     spec = one_tone(transfer, np.array([amp_v]), n)[0]
     with np.errstate(divide="ignore"):
         return float(20.0 * np.log10(abs(spec[n]) / abs(spec[1])))
@@ -244,6 +306,20 @@ def two_tone_oip3_dbm(transfer, out_per_tone_dbm: float, r_ohm: float) -> tuple[
     The tones sit on bins 40 and 41 of one period (so IM3 ``2 f1 - f2`` is bin 39);
     their input is set for ``out_per_tone_dbm`` at small-signal gain.  Returns the
     apparent OIP3 and the output per tone actually reached (dBm).
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    out_per_tone_dbm : float
+        Output power per tone aimed at, at small-signal gain (dBm).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    tuple of (float, float)
+        Apparent OIP3 (dBm) and the output per tone reached (dBm).
     """
     a = float(dbm_to_vpeak(out_per_tone_dbm, r_ohm)) / abs(float(transfer.gain))
     k1, k2 = _TWO_TONE_BINS
@@ -266,7 +342,22 @@ def _implied_oip3_dbm(base: Saturating, r_ohm: float) -> float | None:
 
 def oip3_check(transfer, oip3_dbm: float, r_ohm: float) -> FigureCheck:
     """The stated OIP3 beside the model's, read with each tone :data:`OIP3_BACKOFF_DB`
-    below the model's P1dB (or its Psat without one)."""
+    below the model's P1dB (or its Psat without one).
+
+    Parameters
+    ----------
+    transfer : callable
+        A model from :mod:`spurplan.nonlinear` (V in, V out).
+    oip3_dbm : float
+        The stated OIP3 (dBm).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    FigureCheck
+        Stated and apparent OIP3 (dBm), with the output per tone (dBm) it was read at.
+    """
     top = model_p1db_dbm(transfer, r_ohm) or model_psat_dbm(transfer, r_ohm) or oip3_dbm - 10.0
     apparent, at = two_tone_oip3_dbm(transfer, top - OIP3_BACKOFF_DB, r_ohm)
     return FigureCheck("oip3", oip3_dbm, apparent, "dBm", at)
@@ -320,6 +411,26 @@ def fit_compression(
     test level stays within 0.8 of its tolerance (:func:`oip3_check`): a P1dB miss is
     reported rather than intermodulation read optimistically.  With one compression
     figure the knee is the softest of :data:`_KNEE_LADDER` that keeps that intercept.
+
+    Parameters
+    ----------
+    base : Saturating
+        The model with its small-signal terms set (:func:`spurplan.stages.amplifier.saturating_base`).
+    p1db_dbm : float or None
+        Stated output P1dB (dBm).
+    psat_dbm : float or None
+        Stated saturated output power (dBm).
+    has_cubic : bool
+        Whether a third-order figure (OIP3) fixes the cubic term.
+    r_ohm : float
+        System impedance (ohm).
+    oip3_dbm : float, optional
+        Stated OIP3 (dBm), which the knee may not spoil.
+
+    Returns
+    -------
+    CompressionFit
+        The fitted model and the check of each compression figure.
     """
 
     a1 = float(base.a1)
@@ -474,8 +585,12 @@ def fit_zone_weights(
 
     Parameters
     ----------
+    transfer : callable
+        The fitted model from :mod:`spurplan.nonlinear` (V in, V out).
     points : dict of n -> (level_dbc, at_output_dbm)
-        The stated point of each harmonic figure.
+        The stated point of each harmonic figure (dBc, at an output power in dBm).
+    r_ohm : float
+        System impedance (ohm).
 
     Returns
     -------

@@ -41,6 +41,25 @@ class Attenuator:
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Attenuator:
+        """The attenuator (pad) read from its lineup table.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Attenuator
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value.
+        """
         loss = fields.quantity("loss", parse_gain_db, required=True)
         if loss < 0:
             raise fields.error(

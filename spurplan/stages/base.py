@@ -74,7 +74,20 @@ class StageKind(Protocol):
     """What :data:`spurplan.stages.KINDS` holds: a stage class built from its lineup table."""
 
     def from_fields(self, fields: Fields, context: LoadContext) -> Stage:
-        """The stage read from its table (the class's ``from_fields`` classmethod)."""
+        """The stage read from its table (the class's ``from_fields`` classmethod).
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Stage
+        """
         ...
 
 

@@ -169,6 +169,25 @@ class Filter:
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Filter:
+        """The filter stage read from its lineup table.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Filter
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value.
+        """
         name = fields.raw("name")
         has_ts, has_proto = fields.has("touchstone"), fields.has("prototype")
         if has_ts == has_proto:
@@ -330,7 +349,29 @@ def assumed_notes(spec: object) -> tuple[str, ...]:
 
 
 def read_touchstone(fields: Fields, context: LoadContext):
-    """Read a 2-port Touchstone file for a stage; returns (S21 table, S lookup, notes)."""
+    """Read a 2-port Touchstone file for a stage; returns (S21 table, S lookup, notes).
+
+    Parameters
+    ----------
+    fields : Fields
+        Reader of the stage's table: ``touchstone`` (file name, relative to the lineup's
+        folder), ``input_port`` (1 or 2) and ``kind``.
+    context : LoadContext
+        Gives the lineup's folder, the system impedance (ohm) the file must be referred
+        to, and the policy beyond the file's frequency range.
+
+    Returns
+    -------
+    tuple of (SParameterTable, S-matrix table, list of str)
+        The S21 lookup, the full 2-port S lookup (frequencies in Hz), and notes to show
+        (scikit-rf's warnings, noise floor, gain above a passive filter's).
+
+    Raises
+    ------
+    LineupError
+        Naming the file and field when the file is missing, unreadable, not a 2-port, at
+        another impedance, or holds non-finite or unordered data.
+    """
     rel = fields.raw("touchstone")
     if not isinstance(rel, str) or not rel.strip():
         raise fields.error("touchstone", f"{rel!r}: expected a file name such as 'filter.s2p'")

@@ -168,6 +168,20 @@ def knee_from_p1db_v(p1db_dbm: float, r_ohm: float, smoothness: int = SMOOTHNESS
 
     One tone has a constant envelope ``A``, so the wanted output is compressed by
     ``g(A)`` exactly: ``(A / r_c)^(2 s) = 10^(s / 10) - 1`` (from the Rapp form).
+
+    Parameters
+    ----------
+    p1db_dbm : float
+        Input-referred 1 dB compression point (dBm).
+    r_ohm : float
+        System impedance (ohm).
+    smoothness : int
+        Rapp smoothness ``s``.
+
+    Returns
+    -------
+    float
+        The knee ``r_c`` (V peak).
     """
     a_1db = float(dbm_to_vpeak(p1db_dbm, r_ohm))
     return a_1db / (10 ** (smoothness / 10) - 1.0) ** (1.0 / (2 * smoothness))
@@ -175,12 +189,40 @@ def knee_from_p1db_v(p1db_dbm: float, r_ohm: float, smoothness: int = SMOOTHNESS
 
 def knee_from_iip3_v(iip3_dbm: float, r_ohm: float) -> float:
     """Envelope knee ``r_c`` (peak V) for an input-referred IIP3: ``r_c = A_IIP3 / sqrt(2)``
-    (``s = 1``; derivation in the module docstring)."""
+    (``s = 1``; derivation in the module docstring).
+
+    Parameters
+    ----------
+    iip3_dbm : float
+        Input-referred third-order intercept (dBm).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float
+        The knee ``r_c`` (V peak).
+    """
     return float(dbm_to_vpeak(iip3_dbm, r_ohm)) / math.sqrt(2.0)
 
 
 def envelope_gain(r2, knee_v: float, smoothness: int = SMOOTHNESS):
-    """Rapp-form envelope gain ``g = (1 + (r / r_c)^(2 s))^(-1 / (2 s))`` from ``r2 = r^2`` (V^2)."""
+    """Rapp-form envelope gain ``g = (1 + (r / r_c)^(2 s))^(-1 / (2 s))`` from ``r2 = r^2`` (V^2).
+
+    Parameters
+    ----------
+    r2 : float or array_like
+        Squared envelope ``r^2`` (V^2).
+    knee_v : float
+        Knee ``r_c`` (V peak).
+    smoothness : int
+        Rapp smoothness ``s``.
+
+    Returns
+    -------
+    ndarray
+        Dimensionless gain ``g`` in (0, 1], the shape of ``r2``.
+    """
     u = np.asarray(r2) / knee_v**2
     return (1.0 + u**smoothness) ** (-1.0 / (2 * smoothness))
 
@@ -226,6 +268,20 @@ class MixerModel:
         the output is a polynomial in ``z``, ``conj z`` and the LO, computed exactly on an
         alias-free grid.  Otherwise the grid doubles, for the batch elements that have not
         settled, until successive grids agree as in :func:`spurplan.engine.apply_memoryless`.
+
+        Parameters
+        ----------
+        x_phasors : ndarray, complex, shape (B, P)
+            Input peak phasors (V) of the canonical products ``mix``.
+        mix : ndarray of int, shape (P, K)
+            Canonical mixing vectors, the LO among the base tones.
+        freqs_hz : ndarray, shape (B, P)
+            Signed product frequencies (Hz).
+
+        Returns
+        -------
+        ndarray, complex, shape (B, P)
+            Output peak phasors (V).
         """
 
         active = np.any(x_phasors != 0, axis=0)
@@ -384,6 +440,25 @@ class Mixer:
 
     @classmethod
     def from_fields(cls, fields: Fields, context: LoadContext) -> Mixer:
+        """The mixer stage read from its lineup table.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Mixer
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value.
+        """
         name = fields.raw("name")
         lo_raw = fields.raw("lo")
         if not isinstance(lo_raw, dict):
@@ -501,7 +576,20 @@ def _compression(fields: Fields, r_ohm: float) -> tuple[float | None, float | No
 
 
 def spur_label(m: int, n: int) -> str:
-    """``(2, -1)`` -> ``"2LO-IF"``; the trade's names for mixer products."""
+    """``(2, -1)`` -> ``"2LO-IF"``; the trade's names for mixer products.
+
+    Parameters
+    ----------
+    m : int
+        LO harmonic (>= 0).
+    n : int
+        IF (input) harmonic, signed.
+
+    Returns
+    -------
+    str
+        The label; ``""`` for ``(0, 0)``.
+    """
     lo = "" if m == 0 else ("LO" if m == 1 else f"{m}LO")
     if n == 0:
         return lo

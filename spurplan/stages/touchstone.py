@@ -396,6 +396,11 @@ def check_text(text: str, ports: int, input_port: int = 1) -> Layout:
     input_port : {1, 2}
         The port facing the source: the forward transmission is S21 (1) or S12 (2).
 
+    Returns
+    -------
+    Layout
+        The network data as read (frequencies in Hz, forward transmission in dB).
+
     Raises
     ------
     TouchstoneFault
