@@ -197,7 +197,17 @@ class CheckResult:
 def model_gaps(missing, missed) -> str:
     """What the model does not know, in words: missing figures by stage, then misses.
 
-    ``missing`` is ``(stage, figure)`` pairs, ``missed`` ``(stage, FigureCheck)`` pairs.
+    Parameters
+    ----------
+    missing : iterable of (str, str)
+        ``(stage name, figure)`` pairs of figures a stage does not give.
+    missed : iterable of (str, FigureCheck)
+        ``(stage name, check)`` pairs where the model misses a stated figure.
+
+    Returns
+    -------
+    str
+        ``"not modelled: ...; model misses: ..."``, empty when there is nothing to say.
     """
     parts = []
     by_stage: dict[str, list[str]] = {}
@@ -293,7 +303,18 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     result : Result
         The run (its tone frequencies per batch element follow a tuning sweep).
     levels : NodeLevels
-        Output-node levels of that run (:meth:`Result.levels`).
+        Output-node levels of that run (:meth:`Result.levels`), shape (B, G).
+
+    Returns
+    -------
+    MaskEvaluation
+        Margin (dB), limit (dBm), level in the rule's RBW (dBm), bandwidth (Hz), rule
+        and domain of every slot, arrays (B, G).
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
     """
     mask = require_mask(lineup)
     freq, level = levels.freq_hz, levels.level_dbm
@@ -367,6 +388,17 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         Override of the analysis combining mode.
     batch : int
         Batch element of ``result`` to report.
+
+    Returns
+    -------
+    CheckResult
+        One row per product above the report floor (level dBm, limit dBm, margin dB
+        ...), worst margin first, and the coverage notes.
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
     """
     mask = require_mask(lineup)
     result = result if result is not None else lineup.run()
@@ -438,18 +470,57 @@ class _Rows:
 
 def output_carrier_hz(result, batch: int = 0) -> float:
     """Frequency (Hz) of the reference carrier at the lineup output (after mixers, its wanted
-    product); see :func:`spurplan.lineup.reference_carrier_index`.  What rule conditions test."""
+    product); see :func:`spurplan.lineup.reference_carrier_index`.  What rule conditions test.
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    batch : int, optional
+        Batch element of ``result``.
+
+    Returns
+    -------
+    float
+        The frequency (Hz).
+    """
     return float(result.carrier_freqs_hz()[batch, result.lineup.reference_carrier_index])
 
 
 def highest_output_carrier_hz(result, batch: int = 0) -> float:
     """Highest carrier frequency (Hz) at the lineup output: what examined ranges follow
-    (47 CFR 2.1057(a)(1), the 10th harmonic of the highest fundamental; from memory)."""
+    (47 CFR 2.1057(a)(1), the 10th harmonic of the highest fundamental; from memory).
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    batch : int, optional
+        Batch element of ``result``.
+
+    Returns
+    -------
+    float
+        The frequency (Hz).
+    """
     return float(result.carrier_freqs_hz()[batch].max())
 
 
 def bands_at(mask, freq_hz: float) -> str | None:
-    """Names of the protected bands that contain ``freq_hz``, or None."""
+    """Names of the protected bands that contain ``freq_hz``, or None.
+
+    Parameters
+    ----------
+    mask : Mask
+        The lineup's mask.
+    freq_hz : float
+        Frequency (Hz); band edges count as inside.
+
+    Returns
+    -------
+    str or None
+        The names joined by ", ", or None when no band contains it.
+    """
     names = [b.name for b in mask.bands if b.start_hz <= freq_hz <= b.stop_hz]
     return ", ".join(names) or None
 
@@ -464,7 +535,21 @@ def _covers(rule, examined, freq: np.ndarray, f_highest) -> np.ndarray:
 
 
 def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
-    """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none."""
+    """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        A check of batch element 0 of a run; its carrier power (dBm) and carrier
+        frequencies select the rules that hold.
+    freq_hz : ndarray
+        Frequencies (Hz), any shape.
+
+    Returns
+    -------
+    ndarray, same shape as ``freq_hz``
+        The lowest limit of the rules covering each frequency (dBm), NaN where none does.
+    """
     mask = outcome.result.lineup.mask
     assert mask is not None  # check() made the outcome, and it refuses a lineup without one
     f_carrier = output_carrier_hz(outcome.result)

@@ -49,6 +49,20 @@ def read_text_file(path, what: str, max_bytes: int) -> str:
     * the bytes must be UTF-8 (a byte-order mark is dropped) without NUL characters,
       which no text format spurplan reads contains.
 
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file to read.
+    what : str
+        What the file was expected to be, for the message (e.g. "a lineup file (TOML)").
+    max_bytes : int
+        Largest size accepted (bytes); a larger file is refused.
+
+    Returns
+    -------
+    str
+        The decoded text, without a byte-order mark.
+
     Raises
     ------
     LineupError
@@ -109,6 +123,23 @@ def read_toml(path, what: str) -> dict:
     ``what`` names the kind of file for the message, e.g. "a lineup file".  The file is
     read by :func:`read_text_file` (a regular file of at most :data:`MAX_TOML_BYTES`);
     a document nested deeper than :data:`MAX_TOML_DEPTH` is refused.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The TOML file.
+    what : str
+        The kind of file, for the message.
+
+    Returns
+    -------
+    dict
+        The parsed document.
+
+    Raises
+    ------
+    LineupError
+        The file cannot be read, is not valid TOML or nests too deeply.
     """
     import tomllib
 
@@ -219,7 +250,29 @@ CARRIER_POWER = Within("a carrier power", -150.0, 90.0, "dBm")
 
 
 def existing_file(base_dir, rel: str, fields: Fields, key: str):
-    """``base_dir / rel`` as an existing file, or a located error (bad names included)."""
+    """``base_dir / rel`` as an existing file, or a located error (bad names included).
+
+    Parameters
+    ----------
+    base_dir : str or os.PathLike
+        Folder that ``rel`` is relative to (the folder of the file that names it).
+    rel : str
+        The file name as written in the table.
+    fields : Fields
+        The table the name was read from, to locate the error.
+    key : str
+        The key that holds the name, to locate the error.
+
+    Returns
+    -------
+    pathlib.Path
+        The resolved path of an existing regular file.
+
+    Raises
+    ------
+    LineupError
+        The name is unusable, names something other than a regular file, or nothing.
+    """
     from pathlib import Path
 
     try:
@@ -257,13 +310,40 @@ class Fields:
         self._seen: set[str] = set()
 
     def error(self, field: str | None, message: str) -> LineupError:
-        """A LineupError located at this table and ``field``."""
+        """A LineupError located at this table and ``field``.
+
+        Parameters
+        ----------
+        field : str or None
+            The key the error is about; ``None`` for the table as a whole.
+        message : str
+            What is wrong (the value and what was expected).
+
+        Returns
+        -------
+        LineupError
+            The error, to be raised by the caller.
+        """
         return LineupError(message, file=self.file, stage=self.where, field=field)
 
     def has(self, key: str) -> bool:
         return key in self.table
 
     def raw(self, key: str, default: Any = None) -> Any:
+        """The value of ``key`` as parsed from TOML, unchecked; marks the key as read.
+
+        Parameters
+        ----------
+        key : str
+            The key to read.
+        default : object, optional
+            Returned when the key is absent.
+
+        Returns
+        -------
+        object
+            The TOML value, or ``default``.
+        """
         self._seen.add(key)
         return self.table.get(key, default)
 
@@ -279,6 +359,28 @@ class Fields:
 
         ``within`` is the key's physical-sense range (:class:`Within`); for a parser that
         returns a tuple (``"-28 dBc @ +20 dBm"``), one range (or ``None``) per element.
+
+        Parameters
+        ----------
+        key : str
+            The key to read.
+        parse : callable
+            Parser from :mod:`spurplan.units`; returns the value in its base unit (Hz,
+            dBm, dB ...) and raises :class:`~spurplan.errors.UnitError` on bad input.
+        required : bool, optional
+            Raise a located error (with a did-you-mean) when the key is absent.
+        within : Within or tuple of (Within or None), optional
+            Plausible range of the parsed value, in the parser's unit; ``None`` for none.
+
+        Returns
+        -------
+        object or None
+            What ``parse`` returns, or ``None`` when the key is absent and not required.
+
+        Raises
+        ------
+        LineupError
+            The value does not parse, is outside ``within``, or is required and absent.
         """
         self._seen.add(key)
         if key not in self.table:
@@ -302,7 +404,22 @@ class Fields:
         return value
 
     def require_within(self, key: str, value: float, within: Within) -> None:
-        """Raise a located error quoting ``key`` as written unless ``value`` is ``within``."""
+        """Raise a located error quoting ``key`` as written unless ``value`` is ``within``.
+
+        Parameters
+        ----------
+        key : str
+            The key the value was read or derived from.
+        value : float
+            The value, in the unit of ``within`` (dBm, dB, Hz ...).
+        within : Within
+            The plausible range (bounds inclusive).
+
+        Raises
+        ------
+        LineupError
+            ``value`` is outside the range.
+        """
         if value not in within:
             raise self.error(key, f"{self.table.get(key, value)!r}: {within.expected()}")
 
@@ -312,7 +429,28 @@ class Fields:
     def text(self, key: str, *, default: None = None, choices: tuple[str, ...] = ()) -> str | None: ...
 
     def text(self, key: str, *, default: str | None = None, choices: tuple[str, ...] = ()) -> str | None:
-        """A string field, optionally one of ``choices``."""
+        """A string field, optionally one of ``choices``.
+
+        Parameters
+        ----------
+        key : str
+            The key to read.
+        default : str or None, optional
+            Returned when the key is absent.
+        choices : tuple of str, optional
+            The allowed values; empty allows any one-line string.
+
+        Returns
+        -------
+        str or None
+            The string, or ``default``.
+
+        Raises
+        ------
+        LineupError
+            The value is not a string, holds a line break, tab or NUL, or is not one of
+            ``choices``.
+        """
         self._seen.add(key)
         if key not in self.table:
             return default
@@ -327,7 +465,27 @@ class Fields:
         return value
 
     def integer(self, key: str, *, default: int, low: int, high: int) -> int:
-        """An integer field within ``[low, high]``."""
+        """An integer field within ``[low, high]``.
+
+        Parameters
+        ----------
+        key : str
+            The key to read.
+        default : int
+            Returned when the key is absent (not checked against the bounds).
+        low, high : int
+            Inclusive bounds.  A float with an integral value is accepted.
+
+        Returns
+        -------
+        int
+            The value, or ``default``.
+
+        Raises
+        ------
+        LineupError
+            The value is not a whole number (booleans included) or is outside the bounds.
+        """
         self._seen.add(key)
         if key not in self.table:
             return default

@@ -122,7 +122,20 @@ def butterworth_g(order: int) -> np.ndarray:
 
 
 def chebyshev_g(order: int, ripple_db: float) -> np.ndarray:
-    """Chebyshev low-pass prototype values ``g_1 .. g_(N+1)`` (module docstring)."""
+    """Chebyshev low-pass prototype values ``g_1 .. g_(N+1)`` (module docstring).
+
+    Parameters
+    ----------
+    order : int
+        Filter order N (number of reactive elements).
+    ripple_db : float
+        Passband ripple (dB, > 0).
+
+    Returns
+    -------
+    ndarray, shape (N + 1,)
+        Normalised element values; ``g_(N+1)`` is the load (1 for odd N).
+    """
     # 17.37 in the handbook formula is 40 / ln(10); the exact value is used.
     beta = math.log(1.0 / math.tanh(ripple_db * math.log(10.0) / 40.0))
     gamma = math.sinh(beta / (2 * order))
@@ -200,7 +213,20 @@ class Element:
 
 
 def ladder_elements(proto: Prototype, r_ohm: float) -> list[Element]:
-    """Element values of the ladder (module docstring for the formulas)."""
+    """Element values of the ladder (module docstring for the formulas).
+
+    Parameters
+    ----------
+    proto : Prototype
+        The filter; edge or centre frequency in Hz.
+    r_ohm : float
+        Source and load termination (ohm).
+
+    Returns
+    -------
+    list of Element
+        The N arms in order from the source, L in H and C in F.
+    """
     g = proto.g_values()[: proto.order]
     out = []
     for k, gk in enumerate(g, start=1):
@@ -226,7 +252,20 @@ def ladder_elements(proto: Prototype, r_ohm: float) -> list[Element]:
 
 
 def parts_text(q_inductor: float | None, q_capacitor: float | None, floor_db: float | None) -> str:
-    """Unloaded Qs and stopband floor in words: "Q_L 100, Q_C 500, stopband floor -80 dB"."""
+    """Unloaded Qs and stopband floor in words: "Q_L 100, Q_C 500, stopband floor -80 dB".
+
+    Parameters
+    ----------
+    q_inductor, q_capacitor : float or None
+        Unloaded Q of the inductors and capacitors (dimensionless); ``None`` for lossless.
+    floor_db : float or None
+        Stopband floor (dB, negative); ``None`` for the ideal ladder.
+
+    Returns
+    -------
+    str
+        One line for reports.
+    """
 
     def q(value) -> str:
         return "lossless" if value is None else f"{value:g}"
@@ -269,6 +308,11 @@ def apply_floor(s21: np.ndarray, floor_db: float | None) -> np.ndarray:
         The ladder's transmission.
     floor_db : float or None
         Floor (dB); ``None`` returns ``s21`` unchanged.
+
+    Returns
+    -------
+    complex ndarray, same shape as ``s21``
+        The floored transmission, ``|S21| >= 10^(floor_db/20)``, phases kept.
     """
     if floor_db is None:
         return s21
@@ -281,6 +325,18 @@ def apply_floor_s(s: np.ndarray, floor_db: float | None) -> np.ndarray:
     S21 and S12 as :func:`apply_floor`; ``|S11|`` and ``|S22|`` reduced so that each
     column's power ``|S11|^2 + |S21|^2`` (``|S12|^2 + |S22|^2``) is the ladder's,
     phases kept, never below 0.
+
+    Parameters
+    ----------
+    s : complex ndarray, shape (..., 2, 2)
+        The ladder's S-matrices.
+    floor_db : float or None
+        Floor (dB, negative); ``None`` returns ``s`` unchanged.
+
+    Returns
+    -------
+    complex ndarray, shape (..., 2, 2)
+        The floored S-matrices.
     """
     if floor_db is None:
         return s
@@ -357,6 +413,26 @@ def ladder_s21(
     [1/Z, 1]], and ``S21 = 2 / (A + B/R0 + C R0 + D)`` between R0 terminations (Pozar,
     Microwave Engineering, ABCD parameters; from memory).  The prototype's stopband
     floor is applied last (:func:`apply_floor`).
+
+    Parameters
+    ----------
+    proto : Prototype
+        The filter.
+    freq_hz : ndarray, shape (B, P) or (P,)
+        Frequencies (Hz); values below a small positive minimum are raised to it.
+    r_ohm : float
+        Source and load termination R0 (ohm).
+    scale : ndarray, shape (B,), optional
+        Frequency scale of each sample (dimensionless); ``None`` for 1.
+    q_scale : tuple of (float or ndarray (B,)), optional
+        Multipliers of the inductors' and capacitors' unloaded Q.
+    part_scale : ndarray, shape (B, N), optional
+        Multiplier of each element's L and C; ``None`` for 1.
+
+    Returns
+    -------
+    complex ndarray, shape (B, P) or (P,)
+        S21 (linear, complex) between R0 terminations, broadcast over the inputs.
     """
     f = np.maximum(np.asarray(freq_hz, dtype=float), _MIN_EVAL_HZ)
     w = 2 * math.pi * f
@@ -386,6 +462,15 @@ def ladder_network(proto: Prototype, freq_hz: np.ndarray, r_ohm: float):
     """The ladder as a 2-port ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz).
 
     With the prototype's stopband floor applied to the S-matrix (:func:`apply_floor_s`).
+
+    Parameters
+    ----------
+    proto : Prototype
+        The filter.
+    freq_hz : ndarray, shape (P,)
+        Strictly increasing frequencies (Hz).
+    r_ohm : float
+        Port impedance and termination (ohm).
     """
     import skrf
     from skrf.media import DefinedGammaZ0
@@ -434,6 +519,20 @@ class SParameterTable:
         An exact zero (a perfect match in S11, say) would make the dB table -inf; any
         value under the floor is held at it, so that the table never shows more
         rejection than the floor.
+
+        Parameters
+        ----------
+        freq_hz : array_like, shape (n,)
+            Strictly increasing data frequencies (Hz).
+        s21 : array_like, complex, shape (n,)
+            S21 (linear) at ``freq_hz``.
+        beyond : str, optional
+            What the lookup does outside the data range, one of :data:`BEYOND_POLICIES`.
+
+        Returns
+        -------
+        SParameterTable
+            ``|S21|`` in dB (held at :data:`S_FLOOR_DB` from below) and unwrapped phase (rad).
         """
         s21 = np.asarray(s21, dtype=complex)
         with np.errstate(divide="ignore"):

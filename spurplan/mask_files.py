@@ -90,6 +90,27 @@ def shipped_names() -> list[str]:
 
 
 def shipped_path(name: str, where: Fields | None = None, key: str = "use") -> Path:
+    """The installed file of a shipped rule set or band list.
+
+    Parameters
+    ----------
+    name : str
+        The set's name (its file name without ``.toml``).
+    where : Fields or None, optional
+        The table that names it, to locate the error; ``None`` for an unlocated one.
+    key : str, optional
+        The key in ``where`` that holds the name.
+
+    Returns
+    -------
+    pathlib.Path
+        ``bands/<name>.toml`` in spurplan's data folder.
+
+    Raises
+    ------
+    LineupError
+        No shipped set has that name (with a did-you-mean and the list of names).
+    """
     names = shipped_names()
     if name not in names:
         msg = f"{name!r}: no such shipped rule set or band list{_did_you_mean(name, names)}; expected one of {', '.join(names)}"
@@ -103,6 +124,25 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
     """Read one rule set or band list file.
 
     ``resolve(name)`` returns another set for ``limits_from`` (default: shipped sets).
+
+    Parameters
+    ----------
+    path : str or pathlib.Path
+        The rule set or band list file (TOML).
+    resolve : callable, optional
+        ``resolve(name) -> RuleSet`` for the set named by ``limits_from``; ``None``
+        loads the shipped set of that name.
+
+    Returns
+    -------
+    RuleSet
+        Its rules and bands; a band without a limit of its own takes the delegated
+        rules, clipped to the band.
+
+    Raises
+    ------
+    LineupError
+        One line naming the file, table and field of the first problem.
     """
     path = Path(path)
     file = str(path)
@@ -202,7 +242,30 @@ def parse_limit(text) -> tuple[str, float, float | None, bool]:
 
 
 def read_rule(f: Fields, origin: str, default_source: str, status_required: bool = True) -> Rule:
-    """One ``[[rule]]`` table (a rule file's, or ``[[mask.rule]]`` of a lineup)."""
+    """One ``[[rule]]`` table (a rule file's, or ``[[mask.rule]]`` of a lineup).
+
+    Parameters
+    ----------
+    f : Fields
+        The table.
+    origin : str
+        Name of the set the rule belongs to (``"lineup"`` for a lineup's own rules).
+    default_source : str
+        The source cited when the rule gives none (the set's ``source``).
+    status_required : bool, optional
+        Whether ``status`` must be given; when not, an absent one is ``"user"``.
+
+    Returns
+    -------
+    Rule
+        Frequencies in Hz (an absent ``stop`` is infinite), limits in dBm, dBc, dB or
+        dBuV/m as their kind says, ``rbw`` in Hz.
+
+    Raises
+    ------
+    LineupError
+        A missing, unknown, malformed or implausible key.
+    """
     name = f.text("name", default=f.where)
     start = f.quantity("start", parse_freq_hz, required=True)
     stop = f.quantity("stop", parse_freq_hz)
@@ -267,8 +330,25 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
 def read_limit(f: Fields, *, required: bool = False):
     """``limit`` of a rule, band or ``[mask] use`` entry, within the range of its kind.
 
-    Returns ``(kind, value, distance_m, per_khz)`` as :func:`parse_limit`, or ``None``
-    when the key is absent and not ``required``.
+    Parameters
+    ----------
+    f : Fields
+        The table holding ``limit``.
+    required : bool, optional
+        Raise a located error when ``limit`` is absent.
+
+    Returns
+    -------
+    tuple or None
+        ``(kind, value, distance_m, per_khz)`` as :func:`parse_limit` (value in dBm,
+        dBc or dBuV/m by kind, distance in m), or ``None`` when the key is absent and not
+        ``required``.
+
+    Raises
+    ------
+    LineupError
+        The limit does not parse or its value (or distance) is outside the plausible
+        range of its kind.
     """
     parsed = f.quantity("limit", parse_limit, required=required)
     if parsed is None:
@@ -321,7 +401,35 @@ def _status(f: Fields, required: bool) -> str:
 def read_band(
     f: Fields, origin: str, default_source: str, delegated=(), status_required: bool = True, limit=None
 ) -> Band:
-    """One ``[[band]]`` table; its rules are its own limit, else the delegated rules."""
+    """One ``[[band]]`` table; its rules are its own limit, else the delegated rules.
+
+    Parameters
+    ----------
+    f : Fields
+        The table.
+    origin : str
+        Name of the set the band belongs to.
+    default_source : str
+        The source cited when the band gives none.
+    delegated : tuple of Rule, optional
+        The rules of the ``limits_from`` set; those overlapping the band are clipped to
+        it when the band has no limit of its own.
+    status_required : bool, optional
+        Whether ``status`` must be given; when not, an absent one is ``"user"``.
+    limit : tuple or None, optional
+        A limit ``(kind, value, distance_m, per_khz, rbw_hz)`` to use when the table
+        gives none (units as :func:`read_limit`, ``rbw_hz`` in Hz or ``None``).
+
+    Returns
+    -------
+    Band
+        Start and stop in Hz (an absent ``stop`` is infinite) and its rules.
+
+    Raises
+    ------
+    LineupError
+        A missing, unknown, malformed or implausible key.
+    """
     name = f.text("name")
     if not name:
         raise f.error("name", "is required: expected the band's name")
@@ -378,7 +486,29 @@ def _clip(rule: Rule, start: float, stop: float, band: str) -> Rule:
 
 
 def read_mask(table, file: str, base_dir: Path) -> Mask:
-    """The lineup's ``[mask]`` table."""
+    """The lineup's ``[mask]`` table.
+
+    Parameters
+    ----------
+    table : dict
+        The parsed ``[mask]`` table.
+    file : str
+        The lineup file's name, for messages.
+    base_dir : pathlib.Path
+        Folder that the names in ``files`` are relative to.
+
+    Returns
+    -------
+    Mask
+        The rule sets in order (``use``, then ``files``, then the inline rules and
+        bands), the antenna gain as (frequency Hz, gain dBi) pairs, and the spurious boundary (in
+        necessary bandwidths).
+
+    Raises
+    ------
+    LineupError
+        A bad entry, or field-strength limits without an ``antenna_gain``.
+    """
     f = Fields(table, file, "[mask]")
     sets: list[RuleSet] = []
     uses = f.raw("use", [])

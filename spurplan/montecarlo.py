@@ -93,6 +93,11 @@ def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
     n_channels, n_corners : int
         Channels and corners each sample is evaluated at (1 for none given).
 
+    Returns
+    -------
+    int
+        samples x channels x corners, the number of evaluated points.
+
     Raises
     ------
     YieldError
@@ -191,7 +196,33 @@ def _amount(text, f: Fields, key: str, percent: bool) -> float:
 
 
 def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Tolerance, ...]:
-    """A stage's ``tolerance = {...}`` table."""
+    """A stage's ``tolerance = {...}`` table.
+
+    Parameters
+    ----------
+    raw : dict
+        The parsed table: figure name to an amount, ``{ normal = ... }`` or
+        ``{ uniform = ... }``.
+    file : str
+        The lineup file's name, for messages.
+    where : str
+        The stage, for messages (``"stage 2 'pa'"``).
+    index : int
+        Position of the stage in the lineup (from 0).
+    stage : Stage
+        The stage, which says what figures can spread.
+
+    Returns
+    -------
+    tuple of Tolerance
+        One per figure: in dB for level figures, a fraction (from "2 %") for filter
+        figures; a bare amount is a normal sigma.
+
+    Raises
+    ------
+    LineupError
+        A figure that cannot spread, a malformed amount or a negative one.
+    """
     names, percent = _figures_of(stage)
     f = Fields(raw, file, f"{where} tolerance")
     out = []
@@ -220,7 +251,29 @@ def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Toler
 
 
 def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
-    """The lineup's ``[[corner]]`` tables."""
+    """The lineup's ``[[corner]]`` tables.
+
+    Parameters
+    ----------
+    raw : list of dict
+        The parsed ``[[corner]]`` tables.
+    file : str
+        The lineup file's name, for messages.
+    stages : sequence of Stage
+        The lineup's stages, which ``"stage.figure"`` keys name.
+
+    Returns
+    -------
+    tuple of Corner
+        Each with its shifts ``(stage index, figure, amount)``, the amount in dB or as
+        a fraction as :func:`read_tolerance`.
+
+    Raises
+    ------
+    LineupError
+        Not an array of tables, or a shift naming an unknown stage or figure or with
+        a malformed amount.
+    """
     if not isinstance(raw, list):
         raise LineupError("'corner' must be an array of tables ([[corner]])", file=file)
     names = {s.name: i for i, s in enumerate(stages)}
@@ -251,7 +304,25 @@ def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
 def draw(tolerances: Tolerances, n: int, seed: int, batch: int) -> dict:
     """Deltas per (stage, figure) for ``n`` samples of batch ``batch``; (n,) arrays.
 
-    ``elements`` draws one column per ladder element and is (n, N).
+    ``elements`` draws 64 columns, (n, 64), of which a ladder of order N uses the first N.
+
+    Parameters
+    ----------
+    tolerances : Tolerances
+        The distributions (sigma or half-width in dB, or as a fraction).
+    n : int
+        Samples in the batch.
+    seed : int
+        Seed of the run (>= 0).
+    batch : int
+        Batch index; each (seed, batch) pair has its own numpy generator, so a batch
+        draws the same on any worker.
+
+    Returns
+    -------
+    dict
+        ``(stage index, figure)`` to the deltas, (n,) or (n, 64) for ``elements``; in the
+        figure's unit (dB or fraction).
     """
     rng = np.random.default_rng([seed, batch])
     out = {}
@@ -266,7 +337,25 @@ def draw(tolerances: Tolerances, n: int, seed: int, batch: int) -> dict:
 
 
 def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
-    """The lineup's stages with every sample's figures (per-sample model parameters)."""
+    """The lineup's stages with every sample's figures (per-sample model parameters).
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The nominal lineup.
+    deltas : dict
+        ``(stage index, figure)`` to (n,) deltas, as :func:`draw` returns (dB or fraction).
+    corner : Corner or None
+        A corner whose shifts are added to every sample; ``None`` for none.
+    n : int
+        Samples in the batch.
+
+    Returns
+    -------
+    list
+        One stage per lineup stage, with (n,) figures ((n, N) for ``elements``) where a
+        delta or shift applies.
+    """
     shift = {(i, fig): v for i, fig, v in (corner.shifts if corner else ())}
     out = []
     for i, stage in enumerate(lineup.stages):
@@ -343,6 +432,30 @@ def evaluate_batch(
     Returns ``worst_margin_db`` (n,), the label and rule of each sample's worst product,
     and ``passed`` (n,).  Every corner and channel is one more copy of the batch through
     the same engine pass.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        Must have a mask.
+    tolerances : Tolerances
+        What spreads, and the corners.
+    seed : int
+        Seed of the run (>= 0).
+    batch : int
+        Batch index (selects the generator with ``seed``).
+    n : int
+        Samples in the batch.
+    channels_hz : ndarray, shape (C,), optional
+        Swept frequencies (Hz) to evaluate every sample at (as
+        :func:`spurplan.sweep.tune_sweep`); ``None`` for the lineup's own tones.
+    combine : str, optional
+        Override of the analysis combining mode.
+
+    Returns
+    -------
+    dict
+        ``worst_margin_db`` ndarray (n,) in dB over every corner and channel, ``label``
+        and ``rule`` lists of str (n), ``passed`` ndarray of bool (n,).
     """
     deltas = draw(tolerances, n, seed, batch)
     corners = tolerances.corners or (None,)
@@ -405,7 +518,22 @@ def _channel_tones(lineup, channels_hz) -> np.ndarray:
 
 
 def wilson_interval(passed: int, n: int, z: float = Z_95) -> tuple[float, float]:
-    """Wilson score interval for a binomial proportion (Wilson 1927; from memory)."""
+    """Wilson score interval for a binomial proportion (Wilson 1927; from memory).
+
+    Parameters
+    ----------
+    passed : int
+        Successes.
+    n : int
+        Trials; 0 gives (0, 1).
+    z : float, optional
+        Standard normal quantile of the confidence level (default: 95 %).
+
+    Returns
+    -------
+    tuple of float
+        Lower and upper bound of the proportion, within [0, 1].
+    """
     if n == 0:
         return 0.0, 1.0
     p = passed / n
@@ -473,10 +601,39 @@ def run_yield(
 
     Parameters
     ----------
+    lineup : Lineup
+        Must have a mask; its tolerances and corners say what spreads.
+    samples : int
+        Monte Carlo samples, 1 to :data:`MAX_SAMPLES`.
+    seed : int, optional
+        Seed, 0 to :data:`MAX_SEED`; the same seed gives the same samples.
+    channels_hz : ndarray, shape (C,), optional
+        Swept frequencies (Hz): a sample passes only when it passes at every channel.
     scheduler : str, optional
         Address of a running ``dask.distributed`` scheduler.
     workers : int, optional
         Start a local Dask cluster with this many worker processes.
+    batch_samples : int, optional
+        Samples per batch (one engine pass, one job for Dask).
+    combine : str, optional
+        Override of the analysis combining mode.
+    progress : callable, optional
+        Called with the number of samples done after each batch.
+
+    Returns
+    -------
+    YieldResult
+        Samples passed, each sample's worst margin (dB) and the failing products by count.
+
+    Raises
+    ------
+    YieldError
+        An argument out of range or more work than one run may do.
+    LineupError
+        The lineup has no mask.
+    OutOfDataRange
+        The nominal run puts a product outside a stage's data under the default
+        beyond-data policy.
     """
     from .sweep import work_refusal
 

@@ -38,6 +38,8 @@ def filter_response(stage, marks: dict[str, list], *, points: int = 2000, size_i
         Products to mark (for example those present at the filter's input).
     points : int
         Frequencies evaluated across the plotted span.
+    size_in : tuple of float
+        Figure size (width, height) in inches.
     """
     plt = _pyplot()
     marked = np.asarray(marks.get("freq_hz", []), dtype=float)
@@ -92,6 +94,20 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     Protected bands are shaded and labelled, failing products annotated; stems are
     the level in the applicable rule's reference bandwidth (the whole product level
     where no rule applies).
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.check.check` found (levels dBm, limits dBm).
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
     """
     from .check import limit_line
 
@@ -163,7 +179,22 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
 
 
 def save_check_plot(outcome, path, size_px=(1200, 700)):
-    """Draw :func:`check_figure` to ``path`` atomically, at exactly ``size_px`` pixels."""
+    """Draw :func:`check_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.check.check` found.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.outputs.save_figure`).
+    """
     return _save(check_figure(outcome, size_px), path)
 
 
@@ -189,7 +220,24 @@ def _closest_slots(margin: np.ndarray, n: int) -> np.ndarray:
 
 
 def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8):
-    """Products (solid) and their limits (dashed) against drive, carrier output, compliant limit."""
+    """Products (solid) and their limits (dashed) against drive, carrier output, compliant limit.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.sweep.drive_sweep` found (drive, levels and limits in dBm).
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+    n_products : int, optional
+        How many products to draw: those whose margin comes lowest anywhere.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
+    """
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     x = sweep.input_dbm
@@ -229,11 +277,44 @@ def drive_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 8
 
 
 def save_drive_plot(sweep, path, size_px=(1200, 700)):
+    """Draw :func:`drive_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.sweep.drive_sweep` found.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.outputs.save_figure`).
+    """
     return _save(drive_figure(sweep, size_px), path)
 
 
 def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10):
-    """Product frequency against carrier frequency; protected bands shaded, failures marked."""
+    """Product frequency against carrier frequency; protected bands shaded, failures marked.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.sweep.tune_sweep` found (frequencies in Hz, margins in dB).
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+    n_products : int, optional
+        How many products to draw: those whose margin comes lowest anywhere.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
+    """
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     xc = sweep.carrier_hz
@@ -280,11 +361,44 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
 
 
 def save_tune_plot(sweep, path, size_px=(1200, 700)):
+    """Draw :func:`tune_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.sweep.tune_sweep` found.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.outputs.save_figure`).
+    """
     return _save(tune_figure(sweep, size_px), path)
 
 
 def spectrum_figure(result, stage=None, size_px=(1200, 600), dpi: int = 100):
-    """The products at a node as stems (dBm against frequency)."""
+    """The products at a node as stems (dBm against frequency).
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    stage : str, optional
+        The stage whose output node to show; ``None`` for the lineup output.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
+    """
     plt = _pyplot()
     rows = result.product_rows(stage)
     freq = np.asarray(rows["freq_hz"], dtype=float)
@@ -307,7 +421,27 @@ def spectrum_figure(result, stage=None, size_px=(1200, 600), dpi: int = 100):
 
 
 def spur_figure(chart, lo_span_hz, size_px=(1200, 700), dpi: int = 100, points: int = 400):
-    """Mixer products against LO frequency; the following filter's passband and protected bands shaded."""
+    """Mixer products against LO frequency; the following filter's passband and protected bands shaded.
+
+    Parameters
+    ----------
+    chart : SpurChart
+        What :func:`spurplan.spur_chart.spur_chart` found for one mixer: its mixer,
+        lineup and product rows.
+    lo_span_hz : tuple of float
+        First and last LO frequency (Hz) of the plot.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+    points : int, optional
+        LO frequencies evaluated across the span.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
+    """
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     mixer = chart.mixer
@@ -372,11 +506,44 @@ def _runs(x: np.ndarray, flags: np.ndarray):
 
 
 def save_spur_plot(chart, lo_span_hz, path, size_px=(1200, 700)):
+    """Draw :func:`spur_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
+
+    Parameters
+    ----------
+    chart : SpurChart
+        As :func:`spur_figure`.
+    lo_span_hz : tuple of float
+        First and last LO frequency (Hz) of the plot.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.outputs.save_figure`).
+    """
     return _save(spur_figure(chart, lo_span_hz, size_px), path)
 
 
 def yield_figure(result, size_px=(1000, 600), dpi: int = 100):
-    """Histogram of every sample's worst margin, the failing side marked."""
+    """Histogram of every sample's worst margin, the failing side marked.
+
+    Parameters
+    ----------
+    result : YieldResult
+        What :func:`spurplan.montecarlo.run_yield` found (worst margins in dB).
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+    dpi : int, optional
+        Dots per inch: the figure is ``size_px / dpi`` inches.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure; release it with :func:`close`.
+    """
     plt = _pyplot()
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     m = result.worst_margin_db[np.isfinite(result.worst_margin_db)]
@@ -398,4 +565,20 @@ def yield_figure(result, size_px=(1000, 600), dpi: int = 100):
 
 
 def save_yield_plot(result, path, size_px=(1000, 600)):
+    """Draw :func:`yield_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
+
+    Parameters
+    ----------
+    result : YieldResult
+        What :func:`spurplan.montecarlo.run_yield` found.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+    size_px : tuple of int, optional
+        Figure size (width, height) in pixels.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.outputs.save_figure`).
+    """
     return _save(yield_figure(result, size_px), path)

@@ -39,7 +39,33 @@ MAX_WORK_GRID_POINTS = 10**10
 def sweep_points(
     start: float, stop: float, step: float, what: str, unit: str, step_unit: str | None = None
 ) -> np.ndarray:
-    """``start, start + step, ... <= stop``; errors name the argument and the value."""
+    """``start, start + step, ... <= stop``; errors name the argument and the value.
+
+    Parameters
+    ----------
+    start, stop : float
+        First point and upper end, in ``unit`` (dBm for drive, Hz for tuning).
+    step : float
+        Spacing (> 0), in ``step_unit`` (dB for drive, Hz for tuning).
+    what : str
+        What the points are, for messages ("drive", "channel" ...).
+    unit : str
+        Unit of ``start`` and ``stop`` in messages.
+    step_unit : str or None, optional
+        Unit of ``step`` in messages; ``None`` for ``unit``.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        The points (unit of ``start``); ``stop`` is included when it lies on the grid
+        (to a relative 1e-12).
+
+    Raises
+    ------
+    SweepError
+        A non-finite value, a step <= 0, stop below start, or more than
+        :data:`MAX_POINTS` points.
+    """
     step_unit = step_unit or unit
     if not (math.isfinite(start) and math.isfinite(stop) and math.isfinite(step)):
         raise SweepError(f"--start/--stop/--step: expected finite {what}s")
@@ -60,7 +86,20 @@ def sweep_points(
 def work_refusal(lineup, n_points: int, what: str) -> str | None:
     """Why evaluating ``n_points`` points of ``lineup`` is beyond :data:`MAX_WORK_GRID_POINTS`, or None.
 
-    ``what`` names the points in the message ("drive points", "channels", "evaluated points").
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup to be evaluated.
+    n_points : int
+        Number of evaluations (drive points, channels ...).
+    what : str
+        Names the points in the message ("drive points", "channels", "evaluated points").
+
+    Returns
+    -------
+    str or None
+        The refusal message, or None when ``n_points`` times the engine grid points of
+        one evaluation is within the budget.
     """
     from .lineup_file import grid_points
 
@@ -77,7 +116,24 @@ def work_refusal(lineup, n_points: int, what: str) -> str | None:
 
 def check_within(value: float, within, option: str, unit: str) -> None:
     """Raise a :class:`SweepError` naming ``option`` unless ``value`` is ``within``
-    (a :class:`~spurplan.fields.Within`, in the unit the option was read in)."""
+    (a :class:`~spurplan.fields.Within`, in the unit the option was read in).
+
+    Parameters
+    ----------
+    value : float
+        The option's value, in ``unit``.
+    within : Within
+        The plausible range, in the same unit.
+    option : str
+        The command-line option, for the message (``"--start"``).
+    unit : str
+        The unit shown in the message (dBm, Hz ...).
+
+    Raises
+    ------
+    SweepError
+        ``value`` is outside the range.
+    """
     if value not in within:
         raise SweepError(f"{option} {value:g} {unit}: {within.expected()}")
 
@@ -247,9 +303,31 @@ def drive_sweep(
 
     Parameters
     ----------
+    lineup : Lineup
+        Must have a mask.
     start_dbm, stop_dbm, step_db : float
         Input power of the strongest carrier (dBm), or with ``target_output`` its
         output power: the inputs are then found by inverting the modelled transfer.
+        The step is in dB.
+    target_output : bool, optional
+        Sweep the output power of the reference carrier instead of its input power.
+    combine : str, optional
+        Override of the analysis combining mode.
+    progress : callable, optional
+        Called with the number of points evaluated after each chunk.
+
+    Returns
+    -------
+    DriveSweep
+        Levels (dBm) and margins (dB) at every drive, shape (B, G), and the highest
+        compliant input and output drive (dBm), refined to 0.001 dB.
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
+    SweepError
+        A bad range, too many points, or more work than one run may do.
     """
     require_mask(lineup)
     k = lineup.reference_carrier_index
@@ -446,6 +524,33 @@ def tune_sweep(
     Without a mixer the swept frequency is the strongest carrier's (every carrier moves
     with it); with mixers it is the first mixer's LO (IF and other LOs fixed), which is
     how an upconverting transmitter tunes.  ``carrier_hz`` holds the swept frequency.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        Must have a mask.
+    carrier_hz : ndarray, shape (B,)
+        The swept frequency of each channel (Hz).
+    combine : str, optional
+        Override of the analysis combining mode.
+    refine : bool, optional
+        Refine the edges of failing channel ranges by bisection.
+    progress : callable, optional
+        Called with the number of channels evaluated after each chunk.
+
+    Returns
+    -------
+    TuneSweep
+        Margins (dB) of every product slot per channel, shape (B, G), the rows that
+        fail or land in a protected band, and the failing ranges (Hz).
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
+    SweepError
+        No channels, a tone at or below 0 Hz, a channel out of range, or more work than
+        one run may do.
     """
     mask = require_mask(lineup)
     base = lineup.tone_freqs_hz
