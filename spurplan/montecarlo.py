@@ -743,12 +743,48 @@ def _on_dask(jobs, scheduler, workers, progress):
                 parts.append(fut.result())
                 if progress:
                     progress(job[4])
+        except KeyboardInterrupt:
+            _close_now(client, cluster)
+            client = cluster = None
+            raise
         finally:
             if client is not None:
                 client.close()
             if cluster is not None:
                 cluster.close()
     return parts, where
+
+
+# After Ctrl-C the cluster gets this long (s) to close; workers still busy with a batch
+# are then terminated, so that the interrupt ends the run within seconds.
+_INTERRUPT_CLOSE_S = 2.0
+
+
+def _close_now(client, cluster) -> None:
+    """Close ``client`` and ``cluster`` after an interrupt, without waiting for work in flight.
+
+    Parameters
+    ----------
+    client : dask.distributed.Client or None
+    cluster : dask.distributed.LocalCluster or None
+        Only a local cluster's worker processes are children of this process; they are
+        terminated (SIGTERM, then SIGKILL) if they outlive the short close.
+    """
+    import contextlib
+    import multiprocessing
+
+    with contextlib.suppress(Exception):
+        if client is not None:
+            client.close(timeout=_INTERRUPT_CLOSE_S)
+    with contextlib.suppress(Exception):
+        if cluster is not None:
+            cluster.close(timeout=_INTERRUPT_CLOSE_S)
+    if cluster is not None:
+        for child in multiprocessing.active_children():
+            child.terminate()
+            child.join(1.0)
+            if child.is_alive():
+                child.kill()
 
 
 # Above CRITICAL: no dask log record reaches stderr while spurplan runs a cluster.
