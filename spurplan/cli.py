@@ -159,12 +159,15 @@ def _load(path):
     return load(path if path is not None else example_path())
 
 
-def _warn(result) -> None:
+def _warn_model(lineup) -> None:
+    """The lineup's model notes and, where figures are missing, the incomplete-model warning:
+    every command that reports a result prints them, so that no answer rests silently on a
+    figure nobody gave."""
     from .check import model_gaps
 
-    for note in result.lineup.notes:
+    for note in lineup.notes:
         click.echo(f"spurplan: note: {note}", err=True)
-    missing = result.lineup.missing_figures()
+    missing = lineup.missing_figures()
     if missing:
         click.echo(
             f"spurplan: warning: model incomplete, {model_gaps(missing, ())}: the products those figures "
@@ -172,6 +175,10 @@ def _warn(result) -> None:
             "check with --strict to treat this as a failure.",
             err=True,
         )
+
+
+def _warn(result) -> None:
+    _warn_model(result.lineup)
     problems = (
         (
             result.extrapolated_stages,
@@ -464,6 +471,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
             combine=combine,
             progress=None if bar is None else bar.update,
         )
+    _warn_model(lu)
     if plot_file:
         from .plots import save_drive_plot
 
@@ -533,6 +541,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
     lu = _load(lineup)
     with _progress(len(freqs), "tuning sweep") as bar:
         sw = tune_sweep(lu, freqs, combine=combine, progress=None if bar is None else bar.update)
+    _warn_model(lu)
     if plot_file:
         from .plots import save_tune_plot
 
@@ -629,6 +638,7 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
     # Written before anything is printed: a refusal is one error line and nothing else.
     edited = write_fixed(lu, found, write_file) if write_file and found.found else None
+    _warn_model(lu)
     if fmt == "json":
         click.echo(to_json(found.summary(), "needed", found.needed), nl=False)
         sys.exit(0 if found.found or not found.needed["freq_hz"] else 1)
@@ -804,6 +814,7 @@ def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot
             workers=workers,
             progress=None if bar is None else bar.update,
         )
+    _warn_model(lu)
     if plot_file:
         from .plots import save_yield_plot
 

@@ -324,3 +324,32 @@ def test_pass_band_shapes_difference_products_and_passing_harmonics():
     assert lv["banded"]["f2-f1"] - lv["flat"]["f2-f1"] == pytest.approx(hp + ref, abs=0.01)
     lp_2f = -10 * math.log10(1 + (1000e6 / 1e9) ** 2) - 10 * math.log10(1 + (10e6 / 1000e6) ** 2)
     assert lv["banded"]["2f1"] - lv["flat"]["2f1"] == pytest.approx(lp_2f + ref, abs=0.01)
+
+
+@pytest.mark.parametrize(
+    "args",
+    [
+        ["drive", "--start", "-30 dBm", "--stop", "-20 dBm", "--step", "5 dB"],
+        ["tune", "--start", "99 MHz", "--stop", "101 MHz", "--step", "1 MHz"],
+        ["yield", "--samples", "200"],
+        ["remedy"],
+    ],
+    ids=["drive", "tune", "yield", "remedy"],
+)
+def test_every_answer_of_an_incomplete_model_says_so(tmp_path, args):
+    # A sweep, a yield or a remedy that passes on a model without a 2nd-order figure must
+    # say the model is incomplete, as check's verdict does (common practice, no source: an
+    # unstated figure is unknown, not zero).
+    from helpers import run_in_process
+
+    path = tmp_path / "incomplete.toml"
+    path.write_text(
+        '[[carrier]]\nfreq = "100 MHz"\npower = "-30 dBm"\n'
+        '[[stage]]\nkind = "amplifier"\nname = "pa"\ngain = "20 dB"\noip3 = "+30 dBm"\npsat = "+20 dBm"\n'
+        '[mask]\nuse = ["itu-sm329-cat-a"]\n',
+        encoding="utf-8",
+    )
+    code, _out, err, detail, _ = run_in_process([args[0], str(path), *args[1:]])
+    assert detail == "", detail
+    assert code in (0, 1)
+    assert "model incomplete" in err and "2nd-order figure" in err
