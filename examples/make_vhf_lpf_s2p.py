@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from spurplan.filters import Prototype, ladder_network
+from spurplan.model.ladders import Prototype, ladder_network
 
 OUT = Path(__file__).resolve().parent / "data" / "vhf_lpf.s2p"
 

@@ -16,25 +16,18 @@ pandas, scipy, matplotlib or scikit-rf): the errors are imported at once (they n
 only the standard library), every other name is imported from its module on first
 use by the module-level ``__getattr__`` (PEP 562) and then kept.
 
-Three functions share their name with the module that holds them (``check``,
-``remedy``, ``spur_chart``).  Python's import system binds a submodule as an
-attribute of its package when the submodule is first imported, which would replace
-``spurplan.check`` the function by ``spurplan.check`` the module, depending on what
-was imported first.  The package's module class (:class:`_Package`, assigned to
-``__class__`` as the Python reference allows, "Customizing module attribute access")
-keeps the function in that case, so ``spurplan.check`` is always the function;
-``from spurplan.check import CheckResult`` still reads the module.  (``import
-spurplan.check as m`` looks the attribute up first, so it too gives the function;
-``importlib.import_module("spurplan.check")`` gives the module.)
+The implementation lives in five wings, laid out as the data flows (DEVELOPERS.md,
+"Layout"): ``model`` (what a lineup is), ``io`` (every reader), ``engine`` (every
+product at every stage), ``analyses`` (questions asked of a lineup) and ``output``
+(tables, figures, reports, files).  No public function shares its name with a
+top-level module, so ``spurplan.check`` is always the function.
 """
 
 from __future__ import annotations
 
 import importlib
-import sys
-import types
 
-from .errors import (
+from spurplan.errors import (
     LineupError,
     OutOfDataRange,
     OutputError,
@@ -50,26 +43,26 @@ __version__ = "0.1.0"
 
 # Public name -> module that defines it (imported on first use).
 _LAZY = {
-    "Lineup": "lineup",
-    "Carrier": "lineup",
-    "Analysis": "lineup",
-    "Result": "result",
-    "check": "check",
-    "CheckResult": "check",
-    "drive_sweep": "sweep",
-    "DriveSweep": "sweep",
-    "tune_sweep": "sweep",
-    "TuneSweep": "sweep",
-    "remedy": "remedy",
-    "Remedy": "remedy",
-    "run_yield": "montecarlo",
-    "YieldResult": "montecarlo",
-    "budget_rows": "budget",
-    "cascade_iip3_dbm": "budget",
-    "spur_chart": "spur_chart",
-    "SpurChart": "spur_chart",
-    "build_report": "report",
-    "write_report": "report",
+    "Lineup": "model.lineup",
+    "Carrier": "model.lineup",
+    "Analysis": "model.lineup",
+    "Result": "engine.result",
+    "check": "analyses.check",
+    "CheckResult": "analyses.check",
+    "drive_sweep": "analyses.sweep",
+    "DriveSweep": "analyses.sweep",
+    "tune_sweep": "analyses.sweep",
+    "TuneSweep": "analyses.sweep",
+    "remedy": "analyses.remedy",
+    "Remedy": "analyses.remedy",
+    "run_yield": "analyses.montecarlo",
+    "YieldResult": "analyses.montecarlo",
+    "budget_rows": "analyses.budget",
+    "cascade_iip3_dbm": "analyses.budget",
+    "spur_chart": "analyses.spur_chart",
+    "SpurChart": "analyses.spur_chart",
+    "build_report": "output.report",
+    "write_report": "output.report",
 }
 
 __all__ = [
@@ -97,7 +90,7 @@ def load(path):
 
     Returns
     -------
-    spurplan.lineup.Lineup
+    spurplan.model.lineup.Lineup
         The validated lineup.
 
     Raises
@@ -105,7 +98,7 @@ def load(path):
     LineupError, UnitError
         One line naming the file, stage, field, value and what was expected.
     """
-    from .lineup_file import load as _load
+    from spurplan.io.lineup_file import load as _load
 
     return _load(path)
 
@@ -122,17 +115,3 @@ def __getattr__(name: str):
 
 def __dir__():
     return sorted(set(globals()) | set(__all__))
-
-
-class _Package(types.ModuleType):
-    """The package's module type: a submodule never replaces a same-named public function."""
-
-    def __setattr__(self, name: str, value) -> None:
-        if isinstance(value, types.ModuleType) and _LAZY.get(name) == name:
-            # The import system binding spurplan.<name> to the submodule: fetch the
-            # function from it instead (the submodule is in sys.modules already).
-            value = getattr(value, name)
-        super().__setattr__(name, value)
-
-
-sys.modules[__name__].__class__ = _Package

@@ -10,9 +10,9 @@ import sys
 
 import click
 
-from . import __version__
-from .notices import PLANNING_NOTICE, POWER_NOTICE
-from .tables import (
+from spurplan import __version__
+from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
+from spurplan.output.tables import (
     BANDS_TABLE,
     BUDGET_TABLE,
     CHECK_TABLE,
@@ -41,7 +41,7 @@ class _Group(click.Group):
     """Maps every input error to one line on stderr and exit status 2."""
 
     def main(self, *args, **kwargs):
-        from .escaping import terminal_streams
+        from spurplan.output.escaping import terminal_streams
 
         # Everything printed (tables, verdicts, notes, errors) passes the terminal escaping
         # here, once: names from users' files cannot act on the terminal or hide text.
@@ -49,7 +49,7 @@ class _Group(click.Group):
             return self._main(*args, **kwargs)
 
     def _main(self, *args, **kwargs):
-        from .errors import SpurplanError
+        from spurplan.errors import SpurplanError
 
         try:
             return super().main(*args, standalone_mode=False, **kwargs)
@@ -100,7 +100,7 @@ def main():
 
 def _machine_output(fmt: str, summary: dict, rows_key: str, rows: dict) -> bool:
     """Print JSON or CSV for ``--format json|csv``; False when the caller prints a table."""
-    from .formatting import to_csv, to_json
+    from spurplan.output.formatting import to_csv, to_json
 
     if fmt == "json":
         click.echo(to_json(summary, rows_key, rows), nl=False)
@@ -122,7 +122,7 @@ class _OutputFile(click.Path):
         super().__init__(dir_okay=False)
 
     def convert(self, value, param, ctx):
-        from .outputs import OutputError, check_target
+        from spurplan.output.files import OutputError, check_target
 
         value = super().convert(value, param, ctx)
         try:
@@ -153,8 +153,8 @@ def _plot_size_option(f):
 
 
 def _load(path):
-    from .lineup_file import load
-    from .resources import example_path
+    from spurplan.io.lineup_file import load
+    from spurplan.io.resources import example_path
 
     return load(path if path is not None else example_path())
 
@@ -163,7 +163,7 @@ def _warn_model(lineup) -> None:
     """The lineup's model notes and, where figures are missing, the incomplete-model warning:
     every command that reports a result prints them, so that no answer rests silently on a
     figure nobody gave."""
-    from .check import model_gaps
+    from spurplan.analyses.check import model_gaps
 
     for note in lineup.notes:
         click.echo(f"spurplan: note: {note}", err=True)
@@ -201,7 +201,7 @@ def _warn(result) -> None:
 @_combine_option
 def spectrum(lineup, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
-    from .formatting import text_table
+    from spurplan.output.formatting import text_table
 
     result = _load(lineup).run()
     if stage is not None:
@@ -221,9 +221,9 @@ def spectrum(lineup, stage, fmt, combine):
 @_format_option
 def budget(lineup, fmt):
     """Print the cascade budget of LINEUP: levels, gains, cascaded IP3, P1dB headroom."""
-    from .budget import budget_rows
-    from .formatting import text_table, to_csv, to_json
-    from .provenance import provenance
+    from spurplan.analyses.budget import budget_rows
+    from spurplan.output.formatting import text_table, to_csv, to_json
+    from spurplan.output.provenance import provenance
 
     result = _load(lineup).run()
     rows = budget_rows(result)
@@ -281,8 +281,8 @@ def filter_cmd(
     Either a filter stage of LINEUP (--stage NAME), or a prototype given on the
     command line (--family, --order, --cutoff ...).
     """
-    from .filter_view import prototype_view, stage_view
-    from .formatting import text_table, to_json
+    from spurplan.analyses.filter_view import prototype_view, stage_view
+    from spurplan.output.formatting import text_table, to_json
 
     if family is not None:
         spec = {
@@ -297,7 +297,7 @@ def filter_cmd(
             "q_capacitor": q_capacitor,
         }
         if carrier is not None:
-            from .fields import CARRIER_FREQ
+            from spurplan.fields import CARRIER_FREQ
 
             _parse("freq", carrier, "--carrier", CARRIER_FREQ)  # "0 Hz" would show nothing
         view = prototype_view({k: v for k, v in spec.items() if v is not None}, impedance, carrier)
@@ -315,7 +315,7 @@ def filter_cmd(
         click.echo(to_json(view.summary(), "products", view.response), nl=False)
         return
     if fmt == "csv":
-        from .formatting import to_csv
+        from spurplan.output.formatting import to_csv
 
         click.echo(to_csv(view.response), nl=False)
         return
@@ -362,8 +362,8 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
     violated (with --strict or [analysis] strict = true: also INCOMPLETE and
     UNCERTAIN), 2 bad input.
     """
-    from .check import check as run_check
-    from .formatting import text_table
+    from spurplan.analyses.check import check as run_check
+    from spurplan.output.formatting import text_table
 
     size = _size(plot_size)
     outcome = run_check(_load(lineup), combine=combine)
@@ -371,7 +371,7 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
     for note in outcome.notes:
         click.echo(f"spurplan: note: {note}", err=True)
     if plot_file:
-        from .plots import save_check_plot
+        from spurplan.output.plots import save_check_plot
 
         save_check_plot(outcome, plot_file, size)
     rows = outcome.rows
@@ -394,8 +394,8 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
 @_format_option
 def bands(name, fmt):
     """List the shipped rule sets and band lists, or show NAME with its sources."""
-    from .bands_view import band_rows, catalogue_rows, describe
-    from .formatting import text_table
+    from spurplan.analyses.bands_view import band_rows, catalogue_rows, describe
+    from spurplan.output.formatting import text_table
 
     if name is None:
         rows = catalogue_rows()
@@ -419,7 +419,7 @@ def _progress(total: int, label: str):
 
     if total < 4 * 2000 or not sys.stderr.isatty():
         return contextlib.nullcontext(None)
-    from .escaping import raw_stream
+    from spurplan.output.escaping import raw_stream
 
     # The bar's own carriage returns and cursor codes go to the real stream.
     return click.progressbar(length=total, label=label, file=raw_stream(sys.stderr))
@@ -427,8 +427,8 @@ def _progress(total: int, label: str):
 
 def _parse(kind, text, option, within=None):
     """``text`` read as a ``kind`` quantity, within ``within`` (a ``fields.Within``) if given."""
-    from .errors import UnitError
-    from .units import parse_freq_hz, parse_gain_db, parse_power_dbm
+    from spurplan.errors import UnitError
+    from spurplan.units import parse_freq_hz, parse_gain_db, parse_power_dbm
 
     parse = {"power": parse_power_dbm, "freq": parse_freq_hz, "db": parse_gain_db}[kind]
     try:
@@ -452,9 +452,9 @@ def _parse(kind, text, option, within=None):
 @_plot_size_option
 def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
-    from .formatting import text_table
-    from .provenance import provenance
-    from .sweep import drive_sweep, sweep_points
+    from spurplan.analyses.sweep import drive_sweep, sweep_points
+    from spurplan.output.formatting import text_table
+    from spurplan.output.provenance import provenance
 
     lo, hi = _parse("power", start, "--start"), _parse("power", stop, "--stop")
     dstep = _parse("db", step, "--step")
@@ -473,7 +473,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
         )
     _warn_model(lu)
     if plot_file:
-        from .plots import save_drive_plot
+        from spurplan.output.plots import save_drive_plot
 
         save_drive_plot(sw, plot_file, size)
     rows = sw.rows
@@ -524,9 +524,9 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 @_plot_size_option
 def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
-    from .formatting import text_table
-    from .provenance import provenance
-    from .sweep import read_channels, sweep_points, tune_sweep
+    from spurplan.analyses.sweep import read_channels, sweep_points, tune_sweep
+    from spurplan.output.formatting import text_table
+    from spurplan.output.provenance import provenance
 
     size = _size(plot_size)
     if channel_file:
@@ -543,7 +543,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
         sw = tune_sweep(lu, freqs, combine=combine, progress=None if bar is None else bar.update)
     _warn_model(lu)
     if plot_file:
-        from .plots import save_tune_plot
+        from spurplan.output.plots import save_tune_plot
 
         save_tune_plot(sw, plot_file, size)
     summary = {**sw.summary(), **provenance(lu)}
@@ -606,11 +606,11 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
     filter up to the highest order is enough, 2 bad input.
     """
-    from .filters import parts_text
-    from .formatting import text_table, to_json
-    from .remedy import MARGIN_TARGET, write_fixed
-    from .remedy import remedy as find_remedy
-    from .stages.filter import parse_floor_db, parse_q
+    from spurplan.analyses.remedy import MARGIN_TARGET, write_fixed
+    from spurplan.analyses.remedy import remedy as find_remedy
+    from spurplan.model.ladders import parts_text
+    from spurplan.model.stages.filter import parse_floor_db, parse_q
+    from spurplan.output.formatting import text_table, to_json
 
     target = _parse("db", margin, "--margin", MARGIN_TARGET)
     parts = {}
@@ -694,7 +694,7 @@ def report(lineup, out_file):
 
     Sweeps are added where the lineup's [report] table asks for them.
     """
-    from .report import write_report
+    from spurplan.output.report import write_report
 
     lu = _load(lineup)
     path = write_report(lu, out_file)
@@ -717,8 +717,8 @@ def report(lineup, out_file):
 @_plot_size_option
 def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
-    from .formatting import text_table
-    from .spur_chart import spur_chart
+    from spurplan.analyses.spur_chart import spur_chart
+    from spurplan.output.formatting import text_table
 
     size = _size(plot_size)
     lu = _load(lineup)
@@ -732,9 +732,9 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
         ]
         rows = {c: [vals[i] for i in keep] for c, vals in rows.items()}
     if plot_file:
-        from .plots import save_spur_plot
-        from .stages.mixer import LO_FREQ
-        from .units import format_freq
+        from spurplan.model.stages.mixer import LO_FREQ
+        from spurplan.output.plots import save_spur_plot
+        from spurplan.units import format_freq
 
         lo = chart.mixer.lo_freq_hz
         span = (
@@ -794,9 +794,9 @@ CAUSE_TABLE = [
 @click.option("--plot", "plot_file", type=_OutputFile(), help="Draw the histogram of worst margins.")
 def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
     """Monte Carlo yield of LINEUP over its part tolerances and corners."""
-    from .formatting import text_table, to_json
-    from .montecarlo import check_scheduler_address, run_yield
-    from .sweep import read_channels
+    from spurplan.analyses.montecarlo import check_scheduler_address, run_yield
+    from spurplan.analyses.sweep import read_channels
+    from spurplan.output.formatting import text_table, to_json
 
     if scheduler is not None and workers is not None:
         raise click.UsageError("give either --scheduler or --workers")
@@ -816,7 +816,7 @@ def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot
         )
     _warn_model(lu)
     if plot_file:
-        from .plots import save_yield_plot
+        from spurplan.output.plots import save_yield_plot
 
         save_yield_plot(res, plot_file)
     causes = {c: [r[c] for r in res.causes] for c in ("label", "rule", "samples", "fraction")}

@@ -11,7 +11,7 @@ dataclass ``__init__`` never sets, so the dataclass errors carry a ``__reduce__`
 that rebuilds them from their fields (:class:`_Fields`).
 
 The modules that raise an error re-export its name where it used to live
-(``spurplan.sweep.SweepError``, ``spurplan.outputs.OutputError``, ...).
+(``spurplan.analyses.sweep.SweepError``, ``spurplan.output.files.OutputError``, ...).
 """
 
 from __future__ import annotations
@@ -102,20 +102,20 @@ class OutOfDataRange(_Fields, SpurplanError, ValueError):
 
 
 class SweepError(SpurplanError, ValueError):
-    """Sweep arguments that do not make a sweep (raised by :mod:`spurplan.sweep`)."""
+    """Sweep arguments that do not make a sweep (raised by :mod:`spurplan.analyses.sweep`)."""
 
 
 class YieldError(SpurplanError, ValueError):
     """Yield arguments that do not make a run: seed, sample budget, workers, scheduler.
 
-    Raised by :mod:`spurplan.montecarlo`.
+    Raised by :mod:`spurplan.analyses.montecarlo`.
     """
 
 
 class TouchstoneFault(SpurplanError, ValueError):
     """A Touchstone file that cannot be read without guessing; the message says where.
 
-    Raised by :mod:`spurplan.stages.touchstone`; the filter stage turns it into a
+    Raised by :mod:`spurplan.io.touchstone`; the filter stage turns it into a
     :class:`LineupError` naming the lineup file, stage and field.
     """
 
@@ -123,12 +123,12 @@ class TouchstoneFault(SpurplanError, ValueError):
 class OutputError(SpurplanError, OSError):
     """An output file could not be written, or its target is not one to write.
 
-    Raised by :mod:`spurplan.outputs`.
+    Raised by :mod:`spurplan.output.files`.
     """
 
 
 class ResourceError(SpurplanError, FileNotFoundError):
     """A folder that ships with spurplan (``examples/``, ``bands/``) is missing.
 
-    Raised by :mod:`spurplan.resources`: the installation is incomplete.
+    Raised by :mod:`spurplan.io.resources`: the installation is incomplete.
     """

@@ -18,8 +18,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any, overload
 
-from .errors import LineupError, UnitError
-from .outputs import file_kind  # what a st_mode is, for messages
+from spurplan.errors import LineupError, UnitError
+from spurplan.output.files import file_kind  # what a st_mode is, for messages
 
 # Limits on what spurplan reads (README, "Limits").  The largest shipped rule file is
 # 8 kB; 1 MiB is over a hundred times that and parses in about a second even when it
@@ -29,7 +29,7 @@ from .outputs import file_kind  # what a st_mode is, for messages
 # document reach the parser's recursion limit or the readers behind it.
 MAX_TOML_BYTES = 1 << 20
 MAX_TOML_DEPTH = 32
-# A channel file of 200,000 channels (spurplan.sweep.MAX_POINTS) with a comment on each
+# A channel file of 200,000 channels (spurplan.analyses.sweep.MAX_POINTS) with a comment on each
 # line fits in 8 MiB.
 MAX_CHANNEL_FILE_BYTES = 8 << 20
 

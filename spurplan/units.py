@@ -28,8 +28,8 @@ import re
 
 import numpy as np
 
-from .errors import UnitError
-from .fields import _did_you_mean
+from spurplan.errors import UnitError
+from spurplan.fields import _did_you_mean
 
 # Matched against the stripped text with fullmatch.  Every quantifier here has one way to
 # match a given text (the digits before a point, the spaces before the unit, the unit to

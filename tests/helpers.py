@@ -23,9 +23,9 @@ import pytest
 from click.testing import CliRunner
 
 from spurplan.cli import main
-from spurplan.engine import apply_memoryless
-from spurplan.lineup_file import from_dict
-from spurplan.spectrum import mixing_vectors
+from spurplan.engine.products import mixing_vectors
+from spurplan.engine.torus import apply_memoryless
+from spurplan.io.lineup_file import from_dict
 
 try:
     import resource

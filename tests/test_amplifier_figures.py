@@ -18,8 +18,8 @@ from helpers import amp, lineup
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from spurplan.check import check
-from spurplan.lineup_file import from_dict
+from spurplan.analyses.check import check
+from spurplan.io.lineup_file import from_dict
 
 F0_HZ = 100e6
 GRID_DB = np.arange(-8.0, 30.0, 0.05)  # drive offsets around the stated point

@@ -68,19 +68,21 @@ def test_lazy_name_loads_heavy_modules_only_when_used():
     assert "numpy" in _fresh(code).split(",")
 
 
-@pytest.mark.parametrize("first", ["import spurplan.check, spurplan.remedy, spurplan.spur_chart", "pass"])
-def test_functions_named_like_their_module_stay_functions(first):
+@pytest.mark.parametrize(
+    "first",
+    ["import spurplan.analyses.check, spurplan.analyses.remedy, spurplan.analyses.spur_chart", "pass"],
+)
+def test_public_functions_are_functions_whatever_was_imported_first(first):
     # Python binds a submodule as an attribute of its package on first import (Python
-    # reference, "The import system", submodules); spurplan keeps the function instead,
-    # whichever was imported first.
+    # reference, "The import system", submodules); no public function shares its name
+    # with a top-level module, so importing the analyses first changes nothing.
     code = (
         f"{first}\n"
         "import spurplan, types\n"
-        "import spurplan.check\n"
-        "from spurplan.check import CheckResult\n"
+        "from spurplan.analyses.check import CheckResult\n"
         "names = ('check', 'remedy', 'spur_chart')\n"
         "print(all(callable(getattr(spurplan, n)) and not isinstance(getattr(spurplan, n), types.ModuleType)"
-        " and getattr(spurplan, n).__module__ == 'spurplan.' + n for n in names), CheckResult.__name__)"
+        " and getattr(spurplan, n).__module__ == 'spurplan.analyses.' + n for n in names), CheckResult.__name__)"
     )
     assert _fresh(code) == "True CheckResult"
 

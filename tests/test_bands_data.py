@@ -25,9 +25,9 @@ import numpy as np
 import pytest
 from helpers import assert_one_error_line, invoke, run_in_process
 
-from spurplan.mask_files import load_ruleset, shipped_names, shipped_path
-from spurplan.masks import STATUSES
-from spurplan.resources import data_dir
+from spurplan.io.mask_files import load_ruleset, shipped_names, shipped_path
+from spurplan.io.resources import data_dir
+from spurplan.model.masks import STATUSES
 
 NAMES = shipped_names()
 

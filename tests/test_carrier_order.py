@@ -14,9 +14,9 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from spurplan.check import check
-from spurplan.lineup import Carrier, reference_carrier_index
-from spurplan.lineup_file import from_dict
+from spurplan.analyses.check import check
+from spurplan.io.lineup_file import from_dict
+from spurplan.model.lineup import Carrier, reference_carrier_index
 
 # When a hypothesis test fails, its pytest plugin imports libcst, which triggers a
 # DeprecationWarning from mypy_extensions; with filterwarnings=error that turns the
@@ -136,7 +136,7 @@ def test_carrier_conditions_test_the_reference_carrier_ties_to_the_higher_freque
 
 
 def test_reference_carrier_is_the_strongest_then_the_higher_frequency():
-    # The definition (spurplan.lineup.reference_carrier_index), checked on every order of
+    # The definition (spurplan.model.lineup.reference_carrier_index), checked on every order of
     # three carriers by brute force over the permutations.
     import itertools
 

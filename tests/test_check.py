@@ -7,9 +7,9 @@ import math
 import pytest
 from helpers import amp
 
-from spurplan.check import check
-from spurplan.lineup_file import from_dict
-from spurplan.masks import Rule, field_to_eirp_dbm
+from spurplan.analyses.check import check
+from spurplan.io.lineup_file import from_dict
+from spurplan.model.masks import Rule, field_to_eirp_dbm
 from spurplan.units import dbm_to_vpeak, vpeak_to_dbm
 
 

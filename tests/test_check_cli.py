@@ -19,8 +19,8 @@ import pytest
 from helpers import as_json, invoke, write
 
 import spurplan
-from spurplan.mask_files import shipped_path
-from spurplan.resources import example_path
+from spurplan.io.mask_files import shipped_path
+from spurplan.io.resources import example_path
 
 # Keys the brief fixes for a product row (and so for summary["worst"]).
 ROW_KEYS = (

@@ -12,9 +12,9 @@ import numpy as np
 import pytest
 from helpers import amp, dbc, levels_by_label, lineup, single_tone
 
-from spurplan.budget import budget_rows, cascade_iip3_dbm
-from spurplan.nonlinear import Clipper, Polynomial
-from spurplan.stages.amplifier import output_p1db_dbm
+from spurplan.analyses.budget import budget_rows, cascade_iip3_dbm
+from spurplan.model.nonlinear import Clipper, Polynomial
+from spurplan.model.stages.amplifier import output_p1db_dbm
 
 
 def power_reduction_harmonics(coeffs, amplitude, n_harm):

@@ -25,7 +25,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from reference import Generating, Spectrum, Tone, dbm_to_vpeak, exact_length, simulate, zone_weight
 
-from spurplan.lineup_file import from_dict
+from spurplan.io.lineup_file import from_dict
 
 R_OHM = 50.0
 DF_HZ = 1e6  # carriers of the polynomial cases sit on whole MHz: bin n is n MHz

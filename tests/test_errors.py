@@ -119,10 +119,10 @@ def test_no_exception_class_lives_outside_errors_py():
 @pytest.mark.parametrize(
     "module, name",
     [
-        ("spurplan.sweep", "SweepError"),
-        ("spurplan.outputs", "OutputError"),
-        ("spurplan.montecarlo", "YieldError"),
-        ("spurplan.stages.touchstone", "TouchstoneFault"),
+        ("spurplan.analyses.sweep", "SweepError"),
+        ("spurplan.output.files", "OutputError"),
+        ("spurplan.analyses.montecarlo", "YieldError"),
+        ("spurplan.io.touchstone", "TouchstoneFault"),
     ],
 )
 def test_old_import_paths_still_work(module, name):
@@ -138,7 +138,7 @@ def test_cli_maps_each_error_to_one_line_and_exit_2(name, monkeypatch, tmp_path)
     def raising(path):
         raise exc
 
-    monkeypatch.setattr("spurplan.lineup_file.load", raising)
+    monkeypatch.setattr("spurplan.io.lineup_file.load", raising)
     code, out, err, detail, _ = run_in_process(["check", str(tmp_path / "any.toml")])
     line = assert_one_error_line(code, out, err, detail=detail)
     assert line == "spurplan: error: " + " ".join(str(exc).split())
@@ -148,14 +148,14 @@ def test_cli_error_with_a_line_break_stays_one_line(monkeypatch, tmp_path):
     def raising(path):
         raise errors.SweepError("first\nsecond")
 
-    monkeypatch.setattr("spurplan.lineup_file.load", raising)
+    monkeypatch.setattr("spurplan.io.lineup_file.load", raising)
     code, out, err, detail, _ = run_in_process(["check", str(tmp_path / "any.toml")])
     assert assert_one_error_line(code, out, err, detail=detail) == "spurplan: error: first second"
 
 
 def test_missing_data_folder_is_a_resource_error(monkeypatch, tmp_path):
     # Nothing at either place resources.data_dir looks: an incomplete installation.
-    import spurplan.resources as resources
+    import spurplan.io.resources as resources
 
     monkeypatch.setattr(resources, "_PACKAGE", tmp_path / "spurplan")
     with pytest.raises(errors.ResourceError, match="bands/ folder is missing"):

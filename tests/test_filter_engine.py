@@ -12,7 +12,7 @@ from helpers import compare_with_reference
 from reference import Linear, Tone, exact_length, simulate
 
 from spurplan.cli import main
-from spurplan.lineup_file import from_dict
+from spurplan.io.lineup_file import from_dict
 
 DF_HZ = 1e6
 

@@ -16,10 +16,10 @@ from skrf.media import DefinedGammaZ0
 from test_sweeps import _failing_lineup_text
 
 import spurplan
-from spurplan.check import check
-from spurplan.filters import Prototype, chebyshev_g, ladder_s21
-from spurplan.lineup_file import from_dict
-from spurplan.remedy import remedy, write_fixed
+from spurplan.analyses.check import check
+from spurplan.analyses.remedy import remedy, write_fixed
+from spurplan.io.lineup_file import from_dict
+from spurplan.model.ladders import Prototype, chebyshev_g, ladder_s21
 
 R0 = 50.0
 LOSSLESS = {"q_inductor": "lossless", "q_capacitor": "lossless"}
@@ -182,7 +182,7 @@ def test_default_q_ladder_equals_a_scikit_rf_ladder_with_resistive_parts():
     # (Pozar, Microwave Engineering, filter scaling; from memory), each inductor in
     # series with w L / Q_L and each capacitor with 1 / (w C Q_C) (unloaded Q, common
     # practice, no source).  S21 to 1e-9.  The g-values are the closed form's
-    # (spurplan.filters.chebyshev_g, checked against the handbook table in
+    # (spurplan.model.ladders.chebyshev_g, checked against the handbook table in
     # test_filters.py): the table's 4 decimals would limit the match to 1e-4.
     fc = 200e6
     f = np.geomspace(5e6, 2e9, 50)

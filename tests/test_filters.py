@@ -13,8 +13,8 @@ from helpers import amp, levels_by_label
 
 from spurplan.cli import main
 from spurplan.errors import OutOfDataRange
-from spurplan.filters import Prototype, butterworth_g, chebyshev_g, ladder_network
-from spurplan.lineup_file import from_dict
+from spurplan.io.lineup_file import from_dict
+from spurplan.model.ladders import Prototype, butterworth_g, chebyshev_g, ladder_network
 
 # Low-pass prototype element values g_1 .. g_(N+1) (Matthaei, Young and Jones 1964,
 # Tables 4.05-1 and 4.05-2(a); from memory).

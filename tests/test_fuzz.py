@@ -32,10 +32,10 @@ from hypothesis import HealthCheck, given, note, settings
 from hypothesis import strategies as st
 
 import spurplan
-from spurplan.check import check
+from spurplan.analyses.check import check
 from spurplan.cli import main
 from spurplan.errors import SpurplanError
-from spurplan.lineup import Lineup
+from spurplan.model.lineup import Lineup
 
 # --- files the generated lineups may refer to (invented data) ---------------------------------------
 

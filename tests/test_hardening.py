@@ -20,7 +20,7 @@ timeout.
 
 The second half interrupts output writes (``check --plot``, ``filter --touchstone``,
 ``remedy --write``, and ``report -o`` when that command exists) and checks that no
-partial file and no stray temporary file is left behind (``spurplan.outputs``: a
+partial file and no stray temporary file is left behind (``spurplan.output.files``: a
 temporary ``.NAME.*.part`` file, then ``os.replace``).
 """
 
@@ -946,7 +946,7 @@ def test_writer_works_when_not_interrupted(writer, tmp_path):
 @pytest.mark.parametrize("writer", WRITERS, indirect=True)
 @pytest.mark.slow
 def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, monkeypatch):
-    import spurplan.outputs
+    import spurplan.output.files
 
     _, args, target = writer
     before = _previous_contents(target, existed)
@@ -959,10 +959,10 @@ def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, mo
             raise KeyboardInterrupt
         return real_replace(src, dst, *a, **k)
 
-    monkeypatch.setattr(spurplan.outputs.os, "replace", replace)
+    monkeypatch.setattr(spurplan.output.files.os, "replace", replace)
     code, _, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
-    assert hit.calls >= 1, "the write did not go through spurplan.outputs (temporary file + os.replace)"
+    assert hit.calls >= 1, "the write did not go through spurplan.output.files (temporary file + os.replace)"
     assert code == 130, err + detail  # click's Abort, mapped by the CLI
     assert "Traceback" not in err
     _assert_as_before(target, before, tmp_path)
@@ -973,15 +973,15 @@ def test_interrupted_rename_leaves_no_partial_file(writer, existed, tmp_path, mo
 @pytest.mark.slow
 def test_interrupted_mid_write_leaves_no_partial_file(writer, existed, tmp_path, monkeypatch):
     # The interruption comes after half the bytes have reached the disk.
-    import spurplan.outputs
+    import spurplan.output.files
 
     _, args, target = writer
     before = _previous_contents(target, existed)
     hit = _Calls()
-    monkeypatch.setattr(spurplan.outputs.os, "fdopen", _half_then_fail_fdopen(hit, KeyboardInterrupt))
+    monkeypatch.setattr(spurplan.output.files.os, "fdopen", _half_then_fail_fdopen(hit, KeyboardInterrupt))
     code, _, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
-    assert hit.calls >= 1, "the write did not go through spurplan.outputs.write_atomic"
+    assert hit.calls >= 1, "the write did not go through spurplan.output.files.write_atomic"
     assert code == 130, err + detail
     _assert_as_before(target, before, tmp_path)
 
@@ -1020,7 +1020,7 @@ def test_full_disk_is_one_line_and_leaves_no_partial_file(writer, tmp_path, monk
     # error, so exit status 2 and one line naming the file, and nothing left behind.
     import errno
 
-    import spurplan.outputs
+    import spurplan.output.files
 
     _, args, target = writer
     hit = _Calls()
@@ -1028,10 +1028,10 @@ def test_full_disk_is_one_line_and_leaves_no_partial_file(writer, tmp_path, monk
     def full_disk():
         return OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
 
-    monkeypatch.setattr(spurplan.outputs.os, "fdopen", _half_then_fail_fdopen(hit, full_disk))
+    monkeypatch.setattr(spurplan.output.files.os, "fdopen", _half_then_fail_fdopen(hit, full_disk))
     code, out, err, detail, _ = run_in_process(args)
     monkeypatch.undo()
-    assert hit.calls >= 1, "the write did not go through spurplan.outputs.write_atomic"
+    assert hit.calls >= 1, "the write did not go through spurplan.output.files.write_atomic"
     assert not target.exists()
     assert _stray(tmp_path) == []
     assert_one_error(code, out, err, (str(target), "No space left on device"), detail=detail)

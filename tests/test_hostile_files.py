@@ -6,14 +6,14 @@ the value and what was expected, and exit status 2"): exit status 2, no tracebac
 one ``spurplan: error:`` line naming the file, the stage and field (or the option),
 the line or frequency and the value; nothing is written, replaced or left behind.
 
-Part 1, Touchstone files (``spurplan.stages.touchstone``): an exact zero, ``-inf`` or
+Part 1, Touchstone files (``spurplan.io.touchstone``): an exact zero, ``-inf`` or
 NaN in the forward transmission is refused; values below -200 dB are held at -200 dB
 with a note; the interpolation never passes below the lower of two neighbouring
 points; Touchstone 2.0 keyword mismatches are refused.  The layouts are those of the
 Touchstone File Format Specification, versions 1.1 and 2.0 (IBIS Open Forum; from
 memory).  Every Touchstone file below is invented for these tests.
 
-Part 2, output targets (``spurplan.outputs``): a device node, a named pipe, a socket,
+Part 2, output targets (``spurplan.output.files``): a device node, a named pipe, a socket,
 a folder, a symbolic link, a name ending in ``/``, a missing folder, a read-only
 folder, a clashing ``_files`` folder of a Markdown report; a SIGKILL while a report is
 written.  The lineups are invented for these tests.
@@ -39,9 +39,9 @@ from helpers import assert_one_error_line, run_in_process
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from spurplan.filters import S_FLOOR_DB, SParameterTable
-from spurplan.lineup_file import load
-from spurplan.outputs import OutputError, check_target, save_figure, write_atomic
+from spurplan.io.lineup_file import load
+from spurplan.model.ladders import S_FLOOR_DB, SParameterTable
+from spurplan.output.files import OutputError, check_target, save_figure, write_atomic
 
 # --- Part 1: Touchstone files -----------------------------------------------------------------------
 
@@ -538,7 +538,7 @@ def test_named_temporary_fallback_works_and_leaves_nothing(how, tmp_path, monkey
     # (EOPNOTSUPP, open(2) man page), the named temporary file is used instead.
     import errno
 
-    import spurplan.outputs as outputs
+    import spurplan.output.files as outputs
 
     if how == "no-flag":
         monkeypatch.delattr(outputs.os, "O_TMPFILE", raising=False)
@@ -712,7 +712,7 @@ def test_markdown_report_replaces_its_own_earlier_folder_whole(tmp_path):
 def test_interrupted_markdown_report_keeps_the_earlier_one(step, tmp_path, monkeypatch):
     # Ctrl-C at the folder's rename or at the text's: the earlier report (text and
     # figures) is as it was, and no hidden folder or file is left.
-    import spurplan.outputs as outputs
+    import spurplan.output.files as outputs
 
     files = tmp_path / "r_files"
     files.mkdir()
@@ -741,7 +741,7 @@ def test_interrupted_markdown_report_keeps_the_earlier_one(step, tmp_path, monke
         ["report", str(tmp_path / "masked.toml"), "-o", str(tmp_path / "r.md")]
     )
     monkeypatch.undo()
-    assert hit, "the report did not go through spurplan.outputs"
+    assert hit, "the report did not go through spurplan.output.files"
     assert code == 130, err + detail
     assert {p: (tmp_path / p).read_bytes() for p in before} == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ["masked.toml", "r.md", "r_files"]
@@ -781,8 +781,8 @@ CHILD = textwrap.dedent(
         handle = real_fdopen(fd, mode, *a, **k)
         return Stall(handle) if "w" in mode else handle
 
-    import spurplan.outputs
-    spurplan.outputs.os.fdopen = fdopen
+    import spurplan.output.files
+    spurplan.output.files.os.fdopen = fdopen
     from spurplan.cli import main
     main(args, prog_name="spurplan")
     """

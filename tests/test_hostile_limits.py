@@ -42,8 +42,8 @@ import numpy as np
 import pytest
 from helpers import assert_one_error_line, run_cli, run_in_process
 
-from spurplan.engine import Propagation
-from spurplan.stages.mixer import parse_spur_label
+from spurplan.engine.torus import Propagation
+from spurplan.model.stages.mixer import parse_spur_label
 from spurplan.units import _QUANTITY, parse_freq_hz
 
 # Each subprocess case must end well before 10 s (the bound); in-process cases
@@ -291,8 +291,8 @@ def test_an_out_of_range_seed_is_one_line_and_writes_nothing(tmp_path, seed):
 
 
 def test_the_library_refuses_a_negative_seed_as_well(tmp_path):
-    from spurplan.lineup_file import load
-    from spurplan.montecarlo import YieldError, run_yield
+    from spurplan.analyses.montecarlo import YieldError, run_yield
+    from spurplan.io.lineup_file import load
 
     lineup = load(_write(tmp_path, "l.toml", YIELD_LINEUP))
     with pytest.raises(YieldError, match="non-negative"):

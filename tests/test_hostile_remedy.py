@@ -25,8 +25,8 @@ import pytest
 from helpers import as_json, assert_one_error_line, invoke, run_in_process
 
 import spurplan
-from spurplan.check import check
-from spurplan.resources import data_dir
+from spurplan.analyses.check import check
+from spurplan.io.resources import data_dir
 
 BOM = b"\xef\xbb\xbf"
 TOLERANCE_DB = 0.01  # remedy prints margins to 0.01 dB
@@ -408,7 +408,7 @@ def test_stage_array_split_by_another_table_is_refused_not_reordered(tmp_path):
 def test_a_misplaced_insertion_is_caught_before_writing(tmp_path, monkeypatch):
     # Break the editor on purpose (the filter put first): the check of the edited text
     # against the lineup plus one stage must refuse, and the input stays as it was.
-    import spurplan.lineup_edit as edit
+    import spurplan.io.lineup_edit as edit
 
     real = edit._insert
     monkeypatch.setattr(edit, "_insert", lambda doc, position, snippet: real(doc, 0, snippet))
@@ -424,7 +424,7 @@ def test_a_file_that_loads_as_another_lineup_is_caught_before_writing(tmp_path, 
     # The last guard re-reads the new document with the project's loader and compares it
     # with the lineup remedy checked: here an editor that returns the filter one place
     # late (after 'out') is refused, with nothing written.
-    import spurplan.lineup_edit as edit
+    import spurplan.io.lineup_edit as edit
 
     real = edit.insert_stage
 
@@ -442,7 +442,7 @@ def test_a_file_that_loads_as_another_lineup_is_caught_before_writing(tmp_path, 
 
 
 def test_failed_write_over_the_input_leaves_it_intact(tmp_path, monkeypatch):
-    import spurplan.outputs
+    import spurplan.output.files
 
     path = write(tmp_path / "l.toml", HEAD + PA + "\n" + pad("out") + "\n" + MASK)
     before = path.read_bytes()
@@ -452,10 +452,10 @@ def test_failed_write_over_the_input_leaves_it_intact(tmp_path, monkeypatch):
         calls.append(dst)
         raise OSError(28, "No space left on device")
 
-    monkeypatch.setattr(spurplan.outputs.os, "replace", full_disk)
+    monkeypatch.setattr(spurplan.output.files.os, "replace", full_disk)
     code, out, err, detail, _ = run_in_process(["remedy", str(path), "--write", str(path)])
     monkeypatch.undo()
-    assert calls, "the write did not go through spurplan.outputs.write_atomic"
+    assert calls, "the write did not go through spurplan.output.files.write_atomic"
     assert_one_error_line(code, out, err, ("No space left",), detail=detail)
     assert path.read_bytes() == before and _no_temporary_files(tmp_path) == []
 

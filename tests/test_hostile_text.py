@@ -275,7 +275,7 @@ def test_budget_csv_neutralises_text_but_not_numbers(tmp_path):
 
 
 def test_csv_cells_by_the_owasp_rule():
-    from spurplan.formatting import to_csv
+    from spurplan.output.formatting import to_csv
 
     cols = {
         "level_dbm": [-13.5, 2.0],
@@ -377,7 +377,7 @@ def test_markdown_report_reads_the_literal_names(tmp_path):
     ["- item", "+ item", "# heading", "###### heading", "1. item", "7) item", "---", "===", "> quote"],
 )
 def test_markdown_line_start_constructs_are_text(text):
-    from spurplan.escaping import markdown
+    from spurplan.output.escaping import markdown
 
     out = markdown(text)
     # CommonMark 0.31: list markers (5.2), ATX headings (4.2), setext underlines and
@@ -458,9 +458,9 @@ def _svg_texts(fig) -> list[str]:
 @pytest.mark.parametrize("name", [r"$\frac{$", "gain $5 and $x^2$ too", "cost $5", r"a\$b \alpha"])
 @pytest.mark.slow
 def test_figure_draws_the_literal_name(tmp_path, name):
-    from spurplan.check import check
-    from spurplan.lineup_file import load
-    from spurplan.plots import check_figure, close
+    from spurplan.analyses.check import check
+    from spurplan.io.lineup_file import load
+    from spurplan.output.plots import check_figure, close
 
     lu = load(write_case(tmp_path, name))
     fig = check_figure(check(lu))

@@ -24,7 +24,7 @@ import pytest
 from helpers import as_json, assert_one_error_line, run_in_process
 
 from spurplan.fields import Within
-from spurplan.lineup_file import from_dict
+from spurplan.io.lineup_file import from_dict
 
 # --- building blocks (TOML text, invented) --------------------------------------------------------
 
@@ -604,8 +604,8 @@ def test_within_states_its_range_as_the_messages_do():
 
 def test_remedy_refuses_a_negative_margin_from_python():
     # The library boundary holds the same range as the option (README, "Plausible values").
+    from spurplan.analyses.remedy import remedy
     from spurplan.errors import SpurplanError
-    from spurplan.remedy import remedy
 
     doc = {
         "carrier": [{"freq": "150 MHz", "power": "+10 dBm"}],

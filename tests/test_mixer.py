@@ -11,12 +11,12 @@ from helpers import compare_with_reference, levels_by_label
 from reference import Linear, Mixing, Tone, simulate
 
 import spurplan
-from spurplan.check import check
+from spurplan.analyses.check import check
+from spurplan.analyses.spur_chart import spur_chart
 from spurplan.cli import main
-from spurplan.lineup_file import from_dict
-from spurplan.resources import example_path
-from spurplan.spur_chart import spur_chart
-from spurplan.stages.mixer import parse_spur_label, spur_label
+from spurplan.io.lineup_file import from_dict
+from spurplan.io.resources import example_path
+from spurplan.model.stages.mixer import parse_spur_label, spur_label
 
 # An invented spur table of IF orders 0 to 3.
 TABLE = {"2LO-IF": "-40 dBc", "LO+2IF": "-55 dBc", "2LO-3IF": "-65 dBc", "3LO": "-30 dBc", "2IF": "-50 dBc"}
@@ -229,7 +229,7 @@ def test_tuning_the_lo_moves_the_products():
     # Sweeping the LO of the low-side example: 2LO-IF = 2 f_LO - 295 MHz stays inside
     # 880-920 MHz from about f_LO = 587.5 to 607.5 MHz (arithmetic, less the filter's
     # skirt), so some failing LO range lies inside that span.
-    from spurplan.sweep import tune_sweep
+    from spurplan.analyses.sweep import tune_sweep
 
     low = spurplan.load(example_path("upconverter_low_side.toml"))
     sweep = tune_sweep(low, np.arange(560e6, 620e6 + 1, 2e6))

@@ -6,7 +6,7 @@ import subprocess
 import sys
 
 import spurplan
-from spurplan.resources import data_dir, example_path
+from spurplan.io.resources import data_dir, example_path
 
 
 def test_cli_import_pulls_in_no_heavy_library():

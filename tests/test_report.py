@@ -13,10 +13,10 @@ import pytest
 from click.testing import CliRunner
 
 import spurplan
-from spurplan.check import check
+from spurplan.analyses.check import check
 from spurplan.cli import main
-from spurplan.report import build_report, write_report
-from spurplan.resources import example_path
+from spurplan.io.resources import example_path
+from spurplan.output.report import build_report, write_report
 
 T0 = datetime(2026, 1, 2, 3, 4, 5, tzinfo=UTC)
 T1 = datetime(2026, 6, 7, 8, 9, 10, tzinfo=UTC)
@@ -162,7 +162,7 @@ def test_notebook_objects_give_frames_and_figures(example):
     assert len(outcome.table()) == len(outcome.rows["freq_hz"])
     for fig in (result.plot(), outcome.plot()):
         assert isinstance(fig, matplotlib.figure.Figure)
-        from spurplan.plots import close
+        from spurplan.output.plots import close
 
         close(fig)
 

@@ -11,11 +11,11 @@ from click.testing import CliRunner
 from helpers import amp
 
 import spurplan
-from spurplan.check import check
+from spurplan.analyses.check import check
+from spurplan.analyses.remedy import FAMILIES_TRIED, remedy, write_fixed
+from spurplan.analyses.sweep import drive_sweep, tune_sweep
 from spurplan.cli import main
-from spurplan.lineup_file import from_dict
-from spurplan.remedy import FAMILIES_TRIED, remedy, write_fixed
-from spurplan.sweep import drive_sweep, tune_sweep
+from spurplan.io.lineup_file import from_dict
 
 FLAT = {"rule": [{"start": "9 kHz", "stop": "20 GHz", "limit": "-60 dBm", "name": "flat"}]}
 

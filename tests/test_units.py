@@ -15,7 +15,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from spurplan.errors import LineupError, SpurplanError, UnitError
-from spurplan.mask_files import parse_limit
+from spurplan.io.mask_files import parse_limit
 from spurplan.units import (
     dbm_to_vpeak,
     dbm_to_w,
@@ -376,7 +376,7 @@ def test_wrong_case_limits_and_field_strengths_are_refused():
 
 
 def test_wrong_case_in_a_mixer_spur_table_and_antenna_gain_is_a_located_error():
-    from spurplan.lineup_file import from_dict
+    from spurplan.io.lineup_file import from_dict
 
     mixer = {"kind": "mixer", "name": "mixer", "lo": {"freq": "1.6 GHz", "power": "+7 dBm"}}
     doc = {

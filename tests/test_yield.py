@@ -8,11 +8,11 @@ import numpy as np
 import pytest
 from click.testing import CliRunner
 
-from spurplan.check import check
+from spurplan.analyses.check import check
+from spurplan.analyses.montecarlo import run_yield, wilson_interval
 from spurplan.cli import main
-from spurplan.filters import Prototype, ladder_network, ladder_s21
-from spurplan.lineup_file import from_dict
-from spurplan.montecarlo import run_yield, wilson_interval
+from spurplan.io.lineup_file import from_dict
+from spurplan.model.ladders import Prototype, ladder_network, ladder_s21
 
 
 def _lineup(tolerance=None, limit="-21 dBm", corners=None, pa_extra=None):

@@ -8,11 +8,11 @@ Prints, measured side by side in this one run on the same 6-stage lineup (invent
 driver, pad, amplifier, pad, saturating PA, 7th-order harmonic low-pass; single
 carrier near 455 MHz, order 10, mask = SM.329 Category A style + RR 5.340 bands):
 
-(a) a 10,000-point drive sweep (spurplan.sweep.drive_sweep: products, margins and
+(a) a 10,000-point drive sweep (spurplan.analyses.sweep.drive_sweep: products, margins and
     the highest compliant drive) against the same work point by point (one run,
     node table and mask evaluation per point), timed on a sample of points and
     scaled to 10,000;
-(b) a 1,000-channel tuning sweep (spurplan.sweep.tune_sweep) against channel by
+(b) a 1,000-channel tuning sweep (spurplan.analyses.sweep.tune_sweep) against channel by
     channel.
 
 Targets (design notes section 9): about 1 s each, and >= 20x against one by one.
@@ -26,9 +26,9 @@ import time
 
 import numpy as np
 
-from spurplan.check import evaluate
-from spurplan.lineup_file import from_dict
-from spurplan.sweep import drive_sweep, tune_sweep
+from spurplan.analyses.check import evaluate
+from spurplan.analyses.sweep import drive_sweep, tune_sweep
+from spurplan.io.lineup_file import from_dict
 
 SAMPLE = 300  # points evaluated one by one, then scaled
 

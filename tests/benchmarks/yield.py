@@ -16,8 +16,8 @@ from __future__ import annotations
 import sys
 import time
 
-from spurplan.lineup_file import from_dict
-from spurplan.montecarlo import run_yield
+from spurplan.analyses.montecarlo import run_yield
+from spurplan.io.lineup_file import from_dict
 
 
 def lineup():

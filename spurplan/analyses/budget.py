@@ -1,0 +1,149 @@
+"""Cascade budget: carrier level, gain, cascaded intercepts and headroom per stage.
+
+Cascaded third-order intercept, input-referred, in linear power units (Pozar,
+Microwave Engineering, section on cascaded intercepts; Razavi, RF Microelectronics
+2e, ch. 2; from memory)::
+
+    1 / IIP3_total = 1 / IIP3_1 + G1 / IIP3_2 + G1 G2 / IIP3_3 + ...
+
+with ``G_k`` the power gains before stage k; stages without an IP3 figure (pads,
+filters) add nothing but their gain.  This assumes the stages' IM3 products add in
+phase: the worst case, which the engine reproduces with in-phase cubic stages.
+"""
+
+from __future__ import annotations
+
+import math
+
+from spurplan.model.stages.amplifier import Amplifier, output_p1db_dbm
+from spurplan.model.stages.amplifier_fit import model_psat_dbm
+from spurplan.units import ratio_db, vpeak_to_dbm
+
+BUDGET_COLUMNS = [
+    "stage",
+    "kind",
+    "gain_db",
+    "cum_gain_db",
+    "carrier_in_dbm",
+    "carrier_out_dbm",
+    "compression_db",
+    "oip3_dbm",
+    "cascade_iip3_dbm",
+    "cascade_oip3_dbm",
+    "p1db_dbm",
+    "p1db_stated_dbm",
+    "headroom_db",
+    "psat_dbm",
+    "figures",
+]
+
+
+def cascade_iip3_dbm(gains_db, oip3_dbm) -> list[float]:
+    """Input-referred cascaded IIP3 (dBm) after each stage.
+
+    Parameters
+    ----------
+    gains_db : sequence of float
+        Small-signal gain of each stage (dB).
+    oip3_dbm : sequence of float or None
+        Output IP3 of each stage (dBm); ``None`` for a stage with no IM3.
+
+    Returns
+    -------
+    list of float
+        ``inf`` while no stage has an IP3.
+    """
+    inv_mw = 0.0
+    gain_before_db = 0.0
+    out = []
+    for g, oip3 in zip(gains_db, oip3_dbm, strict=True):
+        if oip3 is not None:
+            iip3_mw = 10.0 ** ((oip3 - g) / 10.0)
+            inv_mw += 10.0 ** (gain_before_db / 10.0) / iip3_mw
+        gain_before_db += g
+        out.append(math.inf if inv_mw == 0 else -10.0 * math.log10(inv_mw))
+    return out
+
+
+def budget_rows(result, batch: int = 0) -> dict[str, list]:
+    """The cascade budget of a run, as a dict of columns.
+
+    The carrier is the reference carrier (the strongest at the lineup input, ties to the
+    higher frequency: :func:`spurplan.model.lineup.reference_carrier_index`); levels are as
+    modelled (compression included); gains are small-signal at the carrier
+    frequency (for a filter, its |S21| there).
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup (:meth:`spurplan.model.lineup.Lineup.run`).
+    batch : int
+        Index along the run's batch axis (one drive or tuning point) to tabulate.
+
+    Returns
+    -------
+    dict of str to list
+        One list per name in :data:`BUDGET_COLUMNS`, one entry per stage; levels in dBm,
+        gains and headroom in dB.
+    """
+    lineup = result.lineup
+    stages = lineup.stages
+    reference = lineup.reference_carrier_index
+    # The carrier's product index at each node (a mixer moves it to the wanted product).
+    col = [result.carrier_columns(i)[reference] for i in range(len(stages) + 1)]
+    # Small-signal gain at the carrier: the figure for amplifiers and mixers (conversion
+    # gain), |S21| for filters.
+    gains = [
+        float(s.conversion_gain_db)
+        if hasattr(s, "conversion_gain_db")
+        else float(ratio_db(result.propagation.response[i, batch, col[i]]))
+        for i, s in enumerate(stages)
+    ]
+    oip3 = [s.figures.oip3_dbm if isinstance(s, Amplifier) else None for s in stages]
+    iip3 = cascade_iip3_dbm(gains, oip3)
+    cols: dict[str, list] = {c: [] for c in BUDGET_COLUMNS}
+    cum = 0.0
+    for i, stage in enumerate(stages):
+        node_in = result.propagation.nodes[i, batch]
+        node_out = result.propagation.nodes[i + 1, batch]
+        p_in = float(vpeak_to_dbm(node_in[col[i]], lineup.r_ohm))
+        p_out = float(vpeak_to_dbm(node_out[col[i + 1]], lineup.r_ohm))
+        cum += gains[i]
+        p1db = _model_p1db(stage, lineup.r_ohm)
+        cols["stage"].append(stage.name)
+        cols["kind"].append(type(stage).__name__.lower())
+        cols["gain_db"].append(gains[i])
+        cols["cum_gain_db"].append(cum)
+        cols["carrier_in_dbm"].append(p_in)
+        cols["carrier_out_dbm"].append(p_out)
+        cols["compression_db"].append(gains[i] - (p_out - p_in))
+        cols["oip3_dbm"].append(oip3[i])
+        cols["cascade_iip3_dbm"].append(iip3[i])
+        cols["cascade_oip3_dbm"].append(iip3[i] + cum)
+        cols["p1db_dbm"].append(p1db)
+        cols["p1db_stated_dbm"].append(stage.figures.p1db_dbm if isinstance(stage, Amplifier) else None)
+        cols["headroom_db"].append(None if p1db is None else p1db - p_out)
+        cols["psat_dbm"].append(
+            model_psat_dbm(stage.transfer, lineup.r_ohm) if isinstance(stage, Amplifier) else None
+        )
+        cols["figures"].append(_figures_state(stage))
+    return cols
+
+
+def _model_p1db(stage, r_ohm: float) -> float | None:
+    """The model's own output P1dB (dBm) of an amplifier: what headroom is measured from,
+    whatever the datasheet says (a miss is in the ``figures`` column)."""
+    if not isinstance(stage, Amplifier):
+        return None
+    return output_p1db_dbm(stage.transfer, r_ohm)
+
+
+def _figures_state(stage) -> str:
+    """Stated figures the model misses, and missing figure classes, in a few words."""
+    parts = [
+        f"{c.figure} misses by {c.miss_db:+.2f} dB" if c.model is not None else f"{c.figure} not reached"
+        for c in getattr(stage, "checks", ())
+        if not c.met
+    ]
+    parts += [f"no {what.split(' (')[0]}" for what in getattr(stage, "missing_figures", lambda: ())()]
+    return "; ".join(parts) if parts else ("all met" if getattr(stage, "checks", ()) else "")

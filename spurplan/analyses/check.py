@@ -1,0 +1,581 @@
+"""The compliance check: every product at the output against the mask.
+
+For each product at the lineup output this finds the rules that apply (frequency
+range, the rule set's examined range, carrier conditions), reads the product's level
+in each rule's reference bandwidth, and keeps the most stringent rule: the one that
+leaves the least margin.  Products inside a protected band are also held to the
+band's own rules and carry the band's name.  Products within the spurious boundary
+of a carrier with a stated bandwidth are in the out-of-band domain and are listed
+but not judged against spurious limits.
+
+The mean carrier power P used by relative and attenuation rules is the total of the
+carrier rows at the output (all carriers, as modelled).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from spurplan.errors import LineupError
+from spurplan.notices import PLANNING_NOTICE
+
+if TYPE_CHECKING:  # annotations only; the check runs on a Result it is handed
+    from spurplan.engine.result import Result
+
+CHECK_COLUMNS = [
+    "freq_hz",
+    "level_dbm",
+    "level_in_rbw_dbm",
+    "bandwidth_hz",
+    "limit_dbm",
+    "margin_db",
+    "pass",
+    "rule",
+    "limit_form",
+    "rbw_hz",
+    "rule_source",
+    "band",
+    "domain",
+    "stage",
+    "order",
+    "mix",
+    "label",
+    "dbc",
+    "beyond_data",
+    "model_extrapolated",
+]
+
+
+@dataclass(frozen=True)
+class CheckResult:
+    """Outcome of :func:`check`.
+
+    Attributes
+    ----------
+    rows : dict of str -> list
+        ``CHECK_COLUMNS``, one entry per product (carriers excluded), sorted by margin
+        (failing first; products no rule covers last).
+    passed : bool
+    worst : int or None
+        Index of the row with the least margin.
+    carrier_dbm : float
+        Total mean carrier power at the output (dBm).
+    notes : list of str
+    """
+
+    result: Result
+    rows: dict
+    passed: bool
+    worst: int | None
+    carrier_dbm: float
+    notes: tuple[str, ...]
+
+    @property
+    def worst_margin_db(self) -> float | None:
+        return None if self.worst is None else self.rows["margin_db"][self.worst]
+
+    @property
+    def missing_figures(self) -> tuple[tuple[str, str], ...]:
+        """``(stage, figure)`` the model lacks (:meth:`Lineup.missing_figures`)."""
+        return self.result.lineup.missing_figures()
+
+    @property
+    def figures_missed(self) -> tuple:
+        """``(stage, FigureCheck)`` of stated figures the model does not meet."""
+        return self.result.lineup.figures_missed()
+
+    @property
+    def complete(self) -> bool:
+        return not self.missing_figures
+
+    @property
+    def status(self) -> str:
+        """``PASS``, ``FAIL``, ``INCOMPLETE`` (the computed products pass, but figures
+        are missing) or ``UNCERTAIN`` (they pass, but the model misses a stated figure).
+
+        Only a complete model that meets every stated figure can PASS: a missing or
+        doubtful number never turns into one.
+        """
+        if not self.passed:
+            return "FAIL"
+        if self.missing_figures:
+            return "INCOMPLETE"
+        if self.figures_missed:
+            return "UNCERTAIN"
+        return "PASS"
+
+    @property
+    def verdict(self) -> str:
+        """One line: the status, the worst margin, which product, rule, band and stage,
+        and what the model does not know."""
+        if self.worst is None:
+            core = "no product falls under the mask"
+        else:
+            w = {
+                c: self.rows[c][self.worst]
+                for c in ("margin_db", "label", "freq_hz", "rule", "band", "stage")
+            }
+            core = (
+                f"worst margin {w['margin_db']:+.2f} dB: {w['label']} at {w['freq_hz'] / 1e6:.6f} MHz "
+                f"under {w['rule']}"
+                + (f" (in {w['band']})" if w["band"] else "")
+                + f", largest from {w['stage']}"
+            )
+        status = self.status
+        if status == "PASS" and self.worst is None:
+            return f"NO RULE APPLIES: {core}"
+        gaps = model_gaps(self.missing_figures, self.figures_missed)
+        if status == "INCOMPLETE":
+            core += " (products that are modelled)"
+        return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
+
+    def strict_failure(self, strict: bool | None = None) -> bool:
+        """Whether the check fails under strict mode (``--strict`` or ``[analysis] strict``):
+        a violated mask, an incomplete model, or a stated figure the model misses."""
+        strict = self.result.lineup.analysis.strict if strict is None else strict
+        return not self.passed or (strict and self.status != "PASS")
+
+    def summary(self) -> dict:
+        from spurplan.output.provenance import provenance
+
+        lineup = self.result.lineup
+        mask = lineup.mask
+        assert mask is not None  # check() made this result, and it refuses a lineup without one
+        worst = None if self.worst is None else {c: self.rows[c][self.worst] for c in CHECK_COLUMNS}
+        failing = sum(1 for p in self.rows["pass"] if p is False)
+        return {
+            "lineup": lineup.name,
+            "status": self.status,
+            "pass": self.passed,
+            "complete": self.complete,
+            "missing_figures": [{"stage": st, "figure": what} for st, what in self.missing_figures],
+            "figures_met": not self.figures_missed,
+            "figure_checks": figure_check_rows(lineup),
+            "worst_margin_db": self.worst_margin_db,
+            "worst": worst,
+            "failing": failing,
+            "checked": sum(1 for p in self.rows["pass"] if p is not None),
+            "carrier_total_dbm": self.carrier_dbm,
+            "rule_sets": [{"name": s.name, "title": s.title, "source": s.source} for s in mask.sets],
+            "notes": list(self.notes) + list(lineup.notes),
+            "model_extrapolated": self.result.extrapolated_stages,
+            **provenance(lineup),
+            "notice": PLANNING_NOTICE,
+        }
+
+    def _repr_html_(self) -> str:
+        """Jupyter: the verdict, then the product table with failing rows marked."""
+        import html
+
+        from spurplan.output.formatting import html_table
+        from spurplan.output.tables import CHECK_TABLE, check_display
+
+        s = self.summary()
+        verdict = self.verdict
+        failing = [p is False for p in self.rows["pass"]]
+        table = html_table(check_display(self.rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None)
+        style = "<style>tr.fail td {background: #fde2e2; font-weight: bold}</style>"
+        return f"{style}<p><b>{html.escape(s['lineup'])}</b></p><p><b>{html.escape(verdict)}</b></p>{table}"
+
+    def plot(self, size_px=(1200, 700)):
+        """The output spectrum against the mask; returns a matplotlib Figure."""
+        from spurplan.output.plots import check_figure
+
+        return check_figure(self, size_px)
+
+    def table(self):
+        """The rows as a pandas DataFrame."""
+        import pandas as pd
+
+        return pd.DataFrame(self.rows, columns=CHECK_COLUMNS)
+
+
+def model_gaps(missing, missed) -> str:
+    """What the model does not know, in words: missing figures by stage, then misses.
+
+    Parameters
+    ----------
+    missing : iterable of (str, str)
+        ``(stage name, figure)`` pairs of figures a stage does not give.
+    missed : iterable of (str, FigureCheck)
+        ``(stage name, check)`` pairs where the model misses a stated figure.
+
+    Returns
+    -------
+    str
+        ``"not modelled: ...; model misses: ..."``, empty when there is nothing to say.
+    """
+    parts = []
+    by_stage: dict[str, list[str]] = {}
+    for stage, what in missing:
+        by_stage.setdefault(stage, []).append(what)
+    if by_stage:
+        parts.append(
+            "not modelled: "
+            + "; ".join(f"stage '{st}' has no {', no '.join(whats)}" for st, whats in by_stage.items())
+        )
+    if missed:
+        parts.append("model misses: " + "; ".join(f"stage '{st}' {c.describe()}" for st, c in missed))
+    return "; ".join(parts)
+
+
+def figure_check_rows(lineup) -> list[dict]:
+    """Every stated large-signal figure beside the model's value, as plain rows."""
+    return [
+        {
+            "stage": stage,
+            "figure": c.figure,
+            "stated": c.stated,
+            "at_dbm": c.at_dbm,
+            "model": c.model,
+            "unit": c.unit,
+            "miss_db": c.miss_db,
+            "met": c.met,
+        }
+        for stage, c in lineup.figure_checks()
+    ]
+
+
+DOMAINS = ("spurious", "out-of-band", "no rule")
+
+
+@dataclass(frozen=True)
+class MaskEvaluation:
+    """The mask applied to every product slot of a batch (arrays ``(B, G)``).
+
+    Attributes
+    ----------
+    margin_db, limit_dbm, level_in_rbw_dbm, bandwidth_hz : ndarray (B, G)
+        NaN where no rule applies.
+    rule : ndarray of int (B, G)
+        Index into ``rules`` of the rule that holds, -1 where none does.
+    domain : ndarray of int (B, G)
+        Index into :data:`DOMAINS`; carriers and unused slots are -1.
+    rules : list of (Rule, Examined or None)
+    carrier_dbm : ndarray (B,)
+        Total mean carrier power at the output.
+    """
+
+    margin_db: np.ndarray
+    limit_dbm: np.ndarray
+    level_in_rbw_dbm: np.ndarray
+    bandwidth_hz: np.ndarray
+    rule: np.ndarray
+    domain: np.ndarray
+    rules: list
+    carrier_dbm: np.ndarray
+
+    @property
+    def worst_margin_db(self) -> np.ndarray:
+        """Least margin per batch element (inf where nothing is checked)."""
+        return np.where(self.rule >= 0, self.margin_db, np.inf).min(axis=1)
+
+    @property
+    def worst_slot(self) -> np.ndarray:
+        return np.argmin(np.where(self.rule >= 0, self.margin_db, np.inf), axis=1)
+
+    @property
+    def passed(self) -> np.ndarray:
+        return self.worst_margin_db >= 0
+
+
+def require_mask(lineup):
+    """The lineup's mask, or a one-line error when it has none."""
+    mask = lineup.mask
+    if mask is None or not (mask.rules or mask.bands):
+        raise LineupError(
+            "no emission limits: expected a [mask] table with use = [...] or [[mask.rule]]",
+            file=None if lineup.source is None else str(lineup.source),
+        )
+    return mask
+
+
+def evaluate(lineup, result, levels) -> MaskEvaluation:
+    """Apply the lineup's mask to node levels of a run (every batch element at once).
+
+    Parameters
+    ----------
+    lineup : Lineup
+    result : Result
+        The run (its tone frequencies per batch element follow a tuning sweep).
+    levels : NodeLevels
+        Output-node levels of that run (:meth:`Result.levels`), shape (B, G).
+
+    Returns
+    -------
+    MaskEvaluation
+        Margin (dB), limit (dBm), level in the rule's RBW (dBm), bandwidth (Hz), rule
+        and domain of every slot, arrays (B, G).
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
+    """
+    mask = require_mask(lineup)
+    freq, level = levels.freq_hz, levels.level_dbm
+    product = levels.valid & ~levels.is_carrier
+    p_dbm = levels.carrier_total_dbm
+    carriers_hz = result.carrier_freqs_hz()
+    # Rule conditions (when_carrier) test the reference carrier; the examined range
+    # follows the highest carrier at the output, per batch element (47 CFR 2.1057(a)(1):
+    # up to the 10th harmonic of the highest fundamental frequency; from memory).
+    f_carrier = carriers_hz[:, lineup.reference_carrier_index]
+    f_highest = carriers_hz.max(axis=1)
+    # Occupied bandwidth per base tone: the carriers' own, none for an LO.
+    n_lo = len(lineup.mixers)
+    bw_k = np.array([0.0] * n_lo + [c.bandwidth_hz or 0.0 for c in lineup.carriers])
+    bandwidth = np.abs(result.mix[levels.rep]).astype(float) @ bw_k
+
+    domain = np.where(product, 0, -1)
+    for k, c in enumerate(lineup.carriers):
+        if c.bandwidth_hz:
+            near = np.abs(freq - carriers_hz[:, k : k + 1]) < mask.spurious_boundary * c.bandwidth_hz
+            domain = np.where(product & near, 1, domain)
+    spurious = domain == 0
+
+    rules = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
+    gain = mask.antenna_gain_dbi(freq)
+    best_margin = np.full(freq.shape, np.inf)
+    best_rule = np.full(freq.shape, -1)
+    best_limit = np.full(freq.shape, np.nan)
+    best_level = np.full(freq.shape, np.nan)
+    for j, (rule, ex) in enumerate(rules):
+        holds = np.asarray(rule.holds_for(f_carrier, p_dbm))[:, None]
+        covers = holds & spurious & _covers(rule, ex, freq, f_highest[:, None])
+        if not covers.any():
+            continue
+        in_rbw = level
+        if rule.rbw_hz is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                in_rbw = level - np.where(
+                    bandwidth > rule.rbw_hz, 10 * np.log10(bandwidth / rule.rbw_hz), 0.0
+                )
+        limit = rule.limit_dbm(freq, p_dbm[:, None], gain)
+        margin = limit - in_rbw
+        better = covers & (margin < best_margin)
+        best_margin = np.where(better, margin, best_margin)
+        best_rule = np.where(better, j, best_rule)
+        best_limit = np.where(better, limit, best_limit)
+        best_level = np.where(better, in_rbw, best_level)
+    domain = np.where(spurious & (best_rule < 0), 2, domain)
+    return MaskEvaluation(
+        margin_db=np.where(best_rule >= 0, best_margin, np.nan),
+        limit_dbm=best_limit,
+        level_in_rbw_dbm=best_level,
+        bandwidth_hz=bandwidth,
+        rule=best_rule,
+        domain=domain,
+        rules=rules,
+        carrier_dbm=p_dbm,
+    )
+
+
+def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> CheckResult:
+    """Check the lineup's output products against its ``[mask]``.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        Must have a mask.
+    result : Result, optional
+        A run to reuse (else the lineup is run).
+    combine : str, optional
+        Override of the analysis combining mode.
+    batch : int
+        Batch element of ``result`` to report.
+
+    Returns
+    -------
+    CheckResult
+        One row per product above the report floor (level dBm, limit dBm, margin dB
+        ...), worst margin first, and the coverage notes.
+
+    Raises
+    ------
+    LineupError
+        The lineup has no mask.
+    """
+    mask = require_mask(lineup)
+    result = result if result is not None else lineup.run()
+    rows = result.product_rows(None, combine, batch)
+    sel = slice(batch, batch + 1)
+    levels = result.levels(None, combine, rows=sel)
+    ev = evaluate(lineup, _Rows(result, sel), levels)
+    # product_rows lists the slots above the report floor in frequency order; find them.
+    slot_of = {round(f / 1e-3): g for g, f in enumerate(levels.freq_hz[0]) if levels.valid[0, g]}
+    out: dict[str, list] = {c: [] for c in CHECK_COLUMNS}
+    picks = []
+    for i, kind in enumerate(rows["kind"]):
+        if kind == "product":
+            g = slot_of[round(rows["freq_hz"][i] / 1e-3)]
+            picks.append((i, g))
+    picks.sort(
+        key=lambda t: (
+            ev.rule[0, t[1]] < 0,
+            np.nan_to_num(ev.margin_db[0, t[1]], nan=np.inf),
+            rows["freq_hz"][t[0]],
+        )
+    )
+    for i, g in picks:
+        j = int(ev.rule[0, g])
+        rule = ev.rules[j][0] if j >= 0 else None
+        f = rows["freq_hz"][i]
+        out["freq_hz"].append(f)
+        out["level_dbm"].append(rows["level_dbm"][i])
+        out["level_in_rbw_dbm"].append(float(ev.level_in_rbw_dbm[0, g]) if rule else None)
+        out["bandwidth_hz"].append(float(ev.bandwidth_hz[0, g]))
+        out["limit_dbm"].append(float(ev.limit_dbm[0, g]) if rule else None)
+        out["margin_db"].append(float(ev.margin_db[0, g]) if rule else None)
+        out["pass"].append(bool(ev.margin_db[0, g] >= 0) if rule else None)
+        out["rule"].append(f"{rule.origin}: {rule.name}" if rule else None)
+        out["limit_form"].append(rule.describe if rule else None)
+        out["rbw_hz"].append(rule.rbw_hz if rule else None)
+        out["rule_source"].append(f"{rule.source} [{rule.status}]" if rule else None)
+        out["band"].append(bands_at(mask, f))
+        out["domain"].append(DOMAINS[int(ev.domain[0, g])])
+        for key in ("stage", "order", "mix", "label", "dbc", "beyond_data", "model_extrapolated"):
+            out[key].append(rows[key][i])
+    margins = [m for m in out["margin_db"] if m is not None]
+    worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
+    f_highest = highest_output_carrier_hz(result, batch)
+    return CheckResult(
+        result=result,
+        rows=out,
+        passed=all(m >= 0 for m in margins),
+        worst=worst,
+        carrier_dbm=float(ev.carrier_dbm[0]),
+        notes=tuple(_coverage_notes(lineup, mask, f_highest)),
+    )
+
+
+@dataclass(frozen=True)
+class _Rows:
+    """A view of a run restricted to some batch rows (what :func:`evaluate` reads)."""
+
+    result: Result
+    rows: slice
+
+    def carrier_freqs_hz(self):
+        return self.result.carrier_freqs_hz()[self.rows]
+
+    @property
+    def mix(self):
+        return self.result.mix
+
+
+def output_carrier_hz(result, batch: int = 0) -> float:
+    """Frequency (Hz) of the reference carrier at the lineup output (after mixers, its wanted
+    product); see :func:`spurplan.model.lineup.reference_carrier_index`.  What rule conditions test.
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    batch : int, optional
+        Batch element of ``result``.
+
+    Returns
+    -------
+    float
+        The frequency (Hz).
+    """
+    return float(result.carrier_freqs_hz()[batch, result.lineup.reference_carrier_index])
+
+
+def highest_output_carrier_hz(result, batch: int = 0) -> float:
+    """Highest carrier frequency (Hz) at the lineup output: what examined ranges follow
+    (47 CFR 2.1057(a)(1), the 10th harmonic of the highest fundamental; from memory).
+
+    Parameters
+    ----------
+    result : Result
+        A run of the lineup.
+    batch : int, optional
+        Batch element of ``result``.
+
+    Returns
+    -------
+    float
+        The frequency (Hz).
+    """
+    return float(result.carrier_freqs_hz()[batch].max())
+
+
+def bands_at(mask, freq_hz: float) -> str | None:
+    """Names of the protected bands that contain ``freq_hz``, or None.
+
+    Parameters
+    ----------
+    mask : Mask
+        The lineup's mask.
+    freq_hz : float
+        Frequency (Hz); band edges count as inside.
+
+    Returns
+    -------
+    str or None
+        The names joined by ", ", or None when no band contains it.
+    """
+    names = [b.name for b in mask.bands if b.start_hz <= freq_hz <= b.stop_hz]
+    return ", ".join(names) or None
+
+
+def _covers(rule, examined, freq: np.ndarray, f_highest) -> np.ndarray:
+    """Where ``rule`` covers ``freq``: its own range, cut to the examined range of its set
+    for the highest output carrier ``f_highest`` (Hz)."""
+    lo, hi = rule.start_hz, rule.stop_hz
+    if examined is not None:
+        lo, hi = max(lo, examined.start_hz), np.minimum(hi, examined.upper_hz(f_highest))
+    return (freq >= lo) & (freq <= hi)
+
+
+def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
+    """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        A check of batch element 0 of a run; its carrier power (dBm) and carrier
+        frequencies select the rules that hold.
+    freq_hz : ndarray
+        Frequencies (Hz), any shape.
+
+    Returns
+    -------
+    ndarray, same shape as ``freq_hz``
+        The lowest limit of the rules covering each frequency (dBm), NaN where none does.
+    """
+    mask = outcome.result.lineup.mask
+    assert mask is not None  # check() made the outcome, and it refuses a lineup without one
+    f_carrier = output_carrier_hz(outcome.result)
+    f_highest = highest_output_carrier_hz(outcome.result)
+    freq_hz = np.asarray(freq_hz, dtype=float)
+    gain = mask.antenna_gain_dbi(freq_hz)
+    line = np.full(freq_hz.shape, np.inf)
+    pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
+    for rule, ex in pairs:
+        if not rule.holds_for(f_carrier, outcome.carrier_dbm):
+            continue
+        covers = _covers(rule, ex, freq_hz, f_highest)
+        line = np.where(covers, np.minimum(line, rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)), line)
+    return np.where(np.isinf(line), np.nan, line)
+
+
+def _coverage_notes(lineup, mask, f_highest: float) -> list[str]:
+    """Warn where the analysis order does not reach a rule set's examined range (which
+    follows the highest output carrier, ``f_highest`` in Hz)."""
+    notes = []
+    reach = lineup.analysis.max_order * float(np.max(lineup.tone_freqs_hz))
+    for s in mask.sets:
+        top = s.examined.upper_hz(f_highest)
+        if s.rules and math.isfinite(top) and top > reach * (1 + 1e-9):
+            notes.append(
+                f"{s.name} examines up to {top / 1e6:.6g} MHz but products are computed only to order "
+                f"{lineup.analysis.max_order} ({reach / 1e6:.6g} MHz): raise [analysis] max_order"
+            )
+    return notes

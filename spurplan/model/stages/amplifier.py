@@ -1,0 +1,706 @@
+"""Amplifier stage: datasheet figures -> a model that honours each of them.
+
+Small-signal terms (Razavi, RF Microelectronics 2e, ch. 2, from memory), in peak
+volts across the system impedance R:
+
+* ``a1 = 10^(G/20)``;
+* two-tone IP3: ``A_IIP3^2 = (4/3) |a1/a3|``; IP2: ``A_IIP2 = |a1/a2|``;
+* harmonic intercept of order n (input amplitude): ``A^(n-1) = 2^(n-1) |a1/a_n|``,
+  output-referred ``OHIPn = IHIPn + G``; the small-signal reading of a datasheet
+  "Hn = X dBc @ Pout" is ``OHIPn = Pout + |X|/(n-1)``.
+
+The coefficient of order n comes from the two-tone figure when there is one, else
+from the harmonic figure (the memoryless relations HIP3 = IP3 + 4.77 dB and HIP2 =
+IP2 + 6.02 dB then tie them).  Odd coefficients are negative (compressive) unless
+``cubic = "expansive"``; even ones positive.
+
+The model (:mod:`spurplan.model.stages.amplifier_fit` fits it):
+
+* with ``p1db`` or ``psat``, a :class:`~spurplan.model.nonlinear.Saturating` transfer whose
+  rail and knee honour both figures; without, the bare polynomial (flagged where it
+  is driven past where it holds);
+* a weight per harmonic zone on what the stage generates there, fitted so that
+  every ``hN`` (or ``ohipN``) holds at its stated point: the output network of a
+  tuned amplifier sets its harmonics independently of its in-band intermodulation;
+* an optional pass band (``band``) that shapes what passes through the stage and
+  what it generates outside its zones with stated figures (difference products near
+  DC, harmonics without a figure);
+* an optional Touchstone gain shape, applied to what passes through the stage only:
+  the datasheet figures are measured at the output connector.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from spurplan.fields import Fields, Within
+from spurplan.model.ladders import SParameterTable
+from spurplan.model.nonlinear import Polynomial, Saturating
+from spurplan.model.stages import amplifier_fit
+from spurplan.model.stages.amplifier_fit import FigureCheck
+from spurplan.model.stages.base import LoadContext, flat_response
+from spurplan.units import (
+    dbm_to_vpeak,
+    parse_dbc_at,
+    parse_freq_hz,
+    parse_gain_db,
+    parse_power_dbm,
+    vpeak_to_dbm,
+)
+
+MAX_HARMONIC = 9
+# Two forms of one figure (ohipN and hN, oip3 and iip3) may differ this much
+# (datasheet rounding).
+CONSISTENCY_DB = 0.5
+MAX_BAND_ORDER = 8
+# Physical-sense ranges of the keys (README, "Plausible values"; common practice, no
+# source).  Gain: a pad-like stage of -20 dB to a high-gain module of +60 dB.  Output
+# powers: -50 dBm (a small-signal buffer) to +90 dBm (1 MW).  Intercepts reach higher,
+# a second-order intercept tens of dB above Psat, up to what the unit parser takes.
+GAIN = Within("an amplifier gain", -20.0, 60.0, "dB")
+PSAT = Within("a saturated output power", -50.0, 90.0, "dBm")
+P1DB = Within("an output 1 dB compression point", -50.0, 90.0, "dBm")
+OUTPUT_INTERCEPT = Within("an output intercept point", -50.0, 100.0, "dBm")
+# Input-referred: the output range less the highest gain.
+INPUT_INTERCEPT = Within("an input intercept point", -110.0, 100.0, "dBm")
+HARMONIC_DBC = Within("a harmonic level", -200.0, 0.0, "dBc", "below the carrier")
+HARMONIC_AT = Within("the output power of a harmonic figure", -50.0, 90.0, "dBm")
+# Knots of the zone weights run to this zone; beyond, what the stage generates keeps
+# the memoryless level (0 dB), shaped by the pass band.
+_WEIGHT_ZONES = MAX_HARMONIC + 1
+
+
+@dataclass(frozen=True)
+class AmplifierFigures:
+    """Datasheet figures of one amplifier, all output-referred, in dB / dBm.
+
+    Attributes
+    ----------
+    gain_db : float
+    oip3_dbm, oip2_dbm : float or None
+    ohip_dbm : dict of int -> float
+        Small-signal output harmonic intercepts given as ``ohipN`` (2 .. 9).
+    harmonics : dict of int -> (level_dbc, at_output_dbm)
+        Harmonic levels given as ``hN = "X dBc @ P"``: a point to honour.
+    p1db_dbm, psat_dbm : float or None
+        Output 1 dB compression point and saturated output power.
+    expansive : bool
+        Odd-order coefficients positive (gain expansion) instead of negative.
+    """
+
+    gain_db: float
+    oip3_dbm: float | None = None
+    oip2_dbm: float | None = None
+    ohip_dbm: dict[int, float] = field(default_factory=dict)
+    harmonics: dict[int, tuple[float, float]] = field(default_factory=dict)
+    p1db_dbm: float | None = None
+    psat_dbm: float | None = None
+    expansive: bool = False
+
+    @property
+    def iip3_dbm(self) -> float | None:
+        return None if self.oip3_dbm is None else self.oip3_dbm - self.gain_db
+
+    def small_signal_ohip_dbm(self) -> dict[int, float]:
+        """OHIPn (dBm) by order: ``ohipN``, else the small-signal reading of ``hN``."""
+        out = {n: at + abs(dbc) / (n - 1) for n, (dbc, at) in self.harmonics.items()}
+        out.update(self.ohip_dbm)
+        return out
+
+    def states_order(self, n: int) -> bool:
+        """Whether any figure gives the order-n behaviour."""
+        ip = {2: self.oip2_dbm, 3: self.oip3_dbm}.get(n)
+        return ip is not None or n in self.ohip_dbm or n in self.harmonics
+
+
+def polynomial_from_figures(fig: AmplifierFigures, r_ohm: float) -> Polynomial:
+    """Polynomial coefficients (V^(1-n)) from datasheet figures (module docstring).
+
+    The figures may be arrays (one value per Monte Carlo sample); the coefficients
+    are then arrays too.
+
+    Parameters
+    ----------
+    fig : AmplifierFigures
+        Datasheet figures: gain (dB), output intercepts and harmonic levels (dBm, dBc).
+    r_ohm : float
+        System impedance (ohm), for dBm <-> V peak.
+
+    Returns
+    -------
+    Polynomial
+        Coefficients ``a_n`` in V^(1-n).
+    """
+    a1 = 10.0 ** (np.asarray(fig.gain_db, dtype=float) / 20.0)
+    coeffs = {1: a1}
+    odd_sign = 1.0 if fig.expansive else -1.0
+    for n, ohip in fig.small_signal_ohip_dbm().items():
+        a_ihip = dbm_to_vpeak(ohip - fig.gain_db, r_ohm)
+        sign = odd_sign if n % 2 else 1.0
+        coeffs[n] = sign * 2.0 ** (n - 1) * a1 / a_ihip ** (n - 1)
+    # Two-tone intercepts set the coefficient; a harmonic figure of the same order is
+    # then honoured by its zone weight.
+    if fig.oip2_dbm is not None:
+        coeffs[2] = a1 / dbm_to_vpeak(fig.oip2_dbm - fig.gain_db, r_ohm)
+    if fig.oip3_dbm is not None:
+        a_iip3 = dbm_to_vpeak(fig.oip3_dbm - fig.gain_db, r_ohm)
+        coeffs[3] = odd_sign * (4.0 / 3.0) * a1 / a_iip3**2
+    degree = max(coeffs)
+    return Polynomial(tuple(coeffs.get(n, 0.0) for n in range(1, degree + 1)))
+
+
+def saturating_base(poly: Polynomial, fig: AmplifierFigures, r_ohm: float) -> Saturating:
+    """The :class:`~spurplan.model.nonlinear.Saturating` inner function for ``poly``'s terms.
+
+    Its gain, second- and third-order terms (and even terms above) are the
+    polynomial's; rail and knee are left to :func:`amplifier_fit.fit_compression`.
+    Odd terms above the cubic are not carried: their harmonics are set by the zone
+    weights, their in-band products by the saturation.
+
+    Parameters
+    ----------
+    poly : Polynomial
+        The small-signal polynomial (:func:`polynomial_from_figures`).
+    fig : AmplifierFigures
+        The same figures, for which orders are stated.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    Saturating
+    """
+    c = [np.asarray(a, dtype=float) for a in poly.coeffs] + [np.zeros(())] * 3
+    a1, a3 = c[0], c[2]
+    gamma = np.where(a3 < 0, -2.0 * a3 / a1, 0.0)
+    a3_exp = np.where(a3 > 0, a3, 0.0)
+    even = tuple((n, c[n - 1]) for n in range(2, len(poly.coeffs) + 1, 2) if np.any(c[n - 1] != 0))
+    v_ref = (
+        (math.pi / 4.0) * dbm_to_vpeak(fig.psat_dbm, r_ohm)
+        if fig.psat_dbm is not None
+        else dbm_to_vpeak(fig.p1db_dbm, r_ohm)
+    )
+    gamma_even = np.where(gamma > 0, gamma, (a1 / v_ref) ** 2)
+    return Saturating(
+        a1=_scalar(a1),
+        gamma=_scalar(gamma),
+        a3_exp=_scalar(a3_exp),
+        even=tuple((n, _scalar(a)) for n, a in even),
+        gamma_even=_scalar(gamma_even),
+    )
+
+
+def _scalar(value):
+    return float(value) if np.ndim(value) == 0 else np.asarray(value)
+
+
+@dataclass(frozen=True)
+class AmplifierModel:
+    """What :func:`build_model` fitted.
+
+    Attributes
+    ----------
+    transfer : Polynomial or Saturating
+    zone_weights_db : dict of int -> float
+        Added (dB) to what the stage generates in harmonic zone n.
+    checks : tuple of FigureCheck
+        Every large-signal figure beside what the model gives at its point.
+    """
+
+    transfer: Polynomial | Saturating
+    zone_weights_db: dict[int, float]
+    checks: tuple[FigureCheck, ...]
+
+    @property
+    def notes(self) -> tuple[str, ...]:
+        return tuple(c.describe() for c in self.checks if not c.met)
+
+
+def build_model(fig: AmplifierFigures, r_ohm: float) -> AmplifierModel:
+    """Fit the whole model to every figure (module docstring).
+
+    Parameters
+    ----------
+    fig : AmplifierFigures
+        Datasheet figures, checked at the boundary.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    AmplifierModel
+        Transfer, harmonic-zone weights (dB) and the check of each large-signal figure.
+    """
+    poly = polynomial_from_figures(fig, r_ohm)
+    checks: list[FigureCheck] = []
+    transfer: Polynomial | Saturating = poly
+    if fig.psat_dbm is not None or fig.p1db_dbm is not None:
+        base = saturating_base(poly, fig, r_ohm)
+        has_cubic = fig.states_order(3)
+        fitted = amplifier_fit.fit_compression(
+            base, fig.p1db_dbm, fig.psat_dbm, has_cubic, r_ohm, oip3_dbm=fig.oip3_dbm
+        )
+        transfer = fitted.transfer
+        checks.extend(fitted.checks)
+        if fig.oip3_dbm is not None:
+            checks.append(amplifier_fit.oip3_check(transfer, fig.oip3_dbm, r_ohm))
+    weights, harmonic_checks = amplifier_fit.fit_zone_weights(
+        transfer, _harmonic_points(fig, transfer, r_ohm), r_ohm
+    )
+    # ohipN figures are read at small signal, where the weight meets them exactly.
+    checks.extend(c for c in harmonic_checks if int(c.figure[1:]) in fig.harmonics)
+    return AmplifierModel(transfer=transfer, zone_weights_db=weights, checks=tuple(checks))
+
+
+def _harmonic_points(fig: AmplifierFigures, transfer, r_ohm: float) -> dict[int, tuple[float, float]]:
+    """The point each harmonic figure must pass through: (dBc, output dBm).
+
+    ``hN`` is its own point; ``ohipN`` (without ``hN``) is read at small signal,
+    :data:`amplifier_fit.SMALL_SIGNAL_BACKOFF_DB` below the knee, where the
+    harmonic is ``(n - 1) (P - OHIPn)`` dBc (module docstring).
+    """
+    points = dict(fig.harmonics)
+    # An ohipN that sets its own coefficient is met exactly at small signal without a
+    # weight: every order of a polynomial, orders 2 and 3 of the saturating model
+    # (module docstring), unless a two-tone figure set that coefficient.
+    own = set(range(2, MAX_HARMONIC + 1)) if isinstance(transfer, Polynomial) else {2, 3}
+    own -= {n for n, ip in ((2, fig.oip2_dbm), (3, fig.oip3_dbm)) if ip is not None}
+    weighted = set(fig.ohip_dbm) - set(points) - own
+    if weighted:
+        knee = float(amplifier_fit.knee_scale_v(transfer))
+        out_dbm = float(vpeak_to_dbm(abs(float(transfer.gain)) * knee, r_ohm))
+        at = out_dbm - amplifier_fit.SMALL_SIGNAL_BACKOFF_DB
+        for n in weighted:
+            points[n] = ((n - 1) * (at - fig.ohip_dbm[n]), at)
+    return points
+
+
+def output_p1db_dbm(transfer, r_ohm: float) -> float | None:
+    """Output 1 dB compression point (dBm) of a model (``None`` if it never compresses 1 dB).
+
+    Parameters
+    ----------
+    transfer : Polynomial or Saturating
+        The model (V in, V out).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    float or None
+        Output P1dB (dBm).
+    """
+    return amplifier_fit.model_p1db_dbm(transfer, r_ohm)
+
+
+@dataclass(frozen=True)
+class PassBand:
+    """An amplifier's small-signal pass band: Butterworth roll-offs below and above.
+
+    ``H(f) = H_hp(f) H_lp(f)`` with the analog Butterworth responses of ``order``
+    (poles ``exp(j pi (2k + N - 1) / (2N))``, k = 1..N; high-pass by ``s -> 1/s``;
+    any filter-design text, e.g. Pozar, Microwave Engineering, from memory): -3.01 dB
+    at each corner whatever the order, and ``20 N`` dB per decade beyond.
+
+    Attributes
+    ----------
+    low_hz, high_hz : float or None
+        Corners (Hz); ``None`` for no roll-off on that side.
+    order : int
+    """
+
+    low_hz: float | None
+    high_hz: float | None
+    order: int = 1
+
+    def response(self, freq_hz) -> np.ndarray:
+        """Complex response at ``freq_hz`` (>= 0)."""
+        f = np.asarray(freq_hz, dtype=float)
+        k = np.arange(1, self.order + 1)
+        poles = np.exp(1j * np.pi * (2 * k + self.order - 1) / (2 * self.order))
+        h = np.ones(f.shape, dtype=complex)
+        if self.high_hz is not None:
+            s = 1j * f / self.high_hz
+            h = h / np.prod(s[..., None] - poles, axis=-1) * np.prod(-poles).real
+        if self.low_hz is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                s = np.where(f > 0, self.low_hz / (1j * np.where(f > 0, f, 1.0)), np.inf)
+                hp = np.prod(-poles).real / np.prod(s[..., None] - poles, axis=-1)
+            h = h * np.where(f > 0, hp, 0.0)
+        return h
+
+
+@dataclass(frozen=True)
+class Amplifier:
+    """An amplifier stage: gain, a memoryless nonlinearity and harmonic-zone weights.
+
+    Attributes
+    ----------
+    name : str
+    figures : AmplifierFigures
+    transfer : Polynomial or Saturating
+    zone_weights_db : dict of int -> float
+        Weight (dB) on what the stage generates in harmonic zone n (fitted; a zone
+        without an entry keeps 0 dB).
+    checks : tuple of FigureCheck
+        Stated large-signal figures beside the model's own values.
+    notes : tuple of str
+        Figures the model misses, and how it was built, for the terminal and reports.
+    shape : SParameterTable or None
+        Touchstone gain shape, for what passes through the stage.
+    band : PassBand or None
+    ref_freq_hz : float
+        Carrier frequency at the stage input where the figures hold (Hz).
+    """
+
+    name: str
+    figures: AmplifierFigures
+    transfer: Polynomial | Saturating
+    zone_weights_db: dict = field(default_factory=dict)
+    checks: tuple[FigureCheck, ...] = ()
+    notes: tuple[str, ...] = ()
+    shape: SParameterTable | None = None
+    band: PassBand | None = None
+    ref_freq_hz: float = 0.0
+
+    @property
+    def gain_db(self) -> float:
+        return self.figures.gain_db
+
+    @property
+    def data_range_hz(self) -> tuple[float, float] | None:
+        return None if self.shape is None else self.shape.data_range_hz
+
+    def _band_ratio(self, freq_hz) -> np.ndarray:
+        if self.band is None:
+            return np.ones(np.shape(freq_hz), dtype=complex)
+        return self.band.response(freq_hz) / self.band.response(np.array(self.ref_freq_hz))
+
+    def response(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Small-signal gain for what passes through: the ``gain`` figure at the carrier,
+        shaped by the pass band and by S21(f) / S21(f_ref) of a Touchstone file."""
+        h = flat_response(self.figures.gain_db)(freq_hz) * self._band_ratio(freq_hz)
+        if self.shape is None:
+            return h
+        return h * self.shape(freq_hz) / self.shape(np.array(self.ref_freq_hz))
+
+    def generated_weight(self, freq_hz: np.ndarray, ref_hz=None, weights_db=None) -> np.ndarray:
+        """Weight on what the stage generates at ``freq_hz`` (>= 0), shape of ``freq_hz``.
+
+        In harmonic zone n (around ``n f_ref``) a fitted weight holds exactly at
+        ``n f_ref``; between zone centres it is interpolated linearly in dB against
+        frequency (a smooth output network), and zones without a fitted weight keep
+        the pass band's shape alone.  The Touchstone shape is not applied: the stage's
+        figures are measured at its output connector.
+
+        Parameters
+        ----------
+        freq_hz : ndarray (B, P)
+            Product frequencies (Hz), >= 0.
+        ref_hz : ndarray (B,) or None
+            Carrier frequency (Hz) at the stage input per batch element (default
+            ``ref_freq_hz``).
+        weights_db : dict of int -> float or ndarray (B,), optional
+            Per-sample weights (Monte Carlo); default the fitted ones.
+
+        Returns
+        -------
+        ndarray, complex
+            Dimensionless weight, the shape of ``freq_hz``.
+        """
+        weights_db = self.zone_weights_db if weights_db is None else weights_db
+        band = self._band_ratio(freq_hz)
+        if not weights_db:
+            return band
+        f = np.asarray(freq_hz, dtype=float)
+        f2 = np.atleast_2d(f)
+        rows = f2.shape[0]
+        ref = np.full(rows, self.ref_freq_hz) if ref_hz is None else np.asarray(ref_hz, dtype=float)
+        ref = np.broadcast_to(ref, (rows,))[:, None]
+        # Knots at n f_ref, n = 0 .. _WEIGHT_ZONES, (B, K): the fitted weight over the
+        # band's own value there, so that band x correction is the fitted weight.
+        knot_f = ref * np.arange(_WEIGHT_ZONES + 1)
+        band_knots_db = 20.0 * np.log10(np.maximum(np.abs(self._band_ratio(knot_f)), 1e-300))
+        corr = np.zeros(knot_f.shape)
+        for n, w in weights_db.items():
+            corr[:, n] = np.broadcast_to(np.asarray(w, dtype=float), (rows,)) - band_knots_db[:, n]
+        t = np.clip(f2 / ref, 0.0, float(_WEIGHT_ZONES))
+        i = np.minimum(np.floor(t).astype(int), _WEIGHT_ZONES - 1)
+        lo = np.take_along_axis(corr, i, axis=1)
+        hi = np.take_along_axis(corr, i + 1, axis=1)
+        corr_db = (lo + (t - i) * (hi - lo)).reshape(f.shape)
+        return band * 10.0 ** (corr_db / 20.0)
+
+    def missing_figures(self) -> tuple[str, ...]:
+        """Figure classes that this amplifier will produce but that no figure states."""
+        fig = self.figures
+        out = []
+        if not fig.states_order(2):
+            out.append("2nd-order figure (oip2, iip2, h2 or ohip2)")
+        if not fig.states_order(3):
+            out.append("3rd-order figure (oip3, iip3, h3 or ohip3)")
+        if fig.p1db_dbm is None and fig.psat_dbm is None:
+            out.append("compression (p1db or psat)")
+        return tuple(out)
+
+    @classmethod
+    def from_figures(
+        cls,
+        name: str,
+        figures: AmplifierFigures,
+        r_ohm: float = 50.0,
+        band: PassBand | None = None,
+        ref_freq_hz: float = 0.0,
+    ) -> Amplifier:
+        """Build and fit the model from figures already checked at the boundary.
+
+        Parameters
+        ----------
+        name : str
+            The stage's name.
+        figures : AmplifierFigures
+            Datasheet figures (dB, dBm, dBc).
+        r_ohm : float
+            System impedance (ohm).
+        band : PassBand, optional
+            Small-signal pass band (corners in Hz); ``None`` for a flat response.
+        ref_freq_hz : float
+            Reference carrier's frequency (Hz), where the figures are referred and harmonic
+            zones are centred.
+
+        Returns
+        -------
+        Amplifier
+        """
+        model = build_model(figures, r_ohm)
+        return cls(
+            name=name,
+            figures=figures,
+            transfer=model.transfer,
+            zone_weights_db=model.zone_weights_db,
+            checks=model.checks,
+            notes=model.notes,
+            band=band,
+            ref_freq_hz=ref_freq_hz,
+        )
+
+    @classmethod
+    def from_fields(cls, fields: Fields, context: LoadContext) -> Amplifier:
+        """The amplifier read from its lineup table (figures, pass band, optional Touchstone shape).
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Amplifier
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value, or of a
+            Touchstone file that does not cover the carrier.
+        """
+        figures = read_figures(fields)
+        band = read_band(fields, context)
+        amp = cls.from_figures(fields.raw("name"), figures, context.r_ohm, band, context.ref_freq_hz)
+        fields.raw("input_port")
+        fields.raw("touchstone")
+        if not fields.has("touchstone"):
+            return amp
+        from spurplan.model.stages.filter import read_touchstone
+
+        table, _, notes = read_touchstone(fields, context)
+        lo, hi = table.data_range_hz
+        if not lo <= context.ref_freq_hz <= hi:
+            raise fields.error(
+                "touchstone",
+                f"{fields.raw('touchstone')!r} covers {lo:.6g} to {hi:.6g} Hz: expected it to include "
+                f"the carrier at {context.ref_freq_hz:.6g} Hz, where the figures are referred",
+            )
+        return replace(amp, shape=table, notes=amp.notes + tuple(notes))
+
+
+def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[Polynomial | Saturating, dict]:
+    """The amplifier's model with its figures moved per Monte Carlo sample.
+
+    Parameters
+    ----------
+    amp : Amplifier
+        The nominal stage.
+    deltas : dict of str -> ndarray (B,)
+        Shifts in dB of ``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db`` and ``ohip2``
+        .. ``ohip9`` (output-referred intercepts, dBm).
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    transfer, zone_weights_db
+        The per-sample model, and the per-sample zone weights (dB, arrays (B,)).
+
+    The small-signal coefficients follow each sample's figures exactly.  The rail,
+    knee and zone weights are not refitted per sample (that would be slow): the rail
+    moves by the sample's Psat shift (or P1dB shift without Psat), an inner saturation
+    fitted to P1dB moves with it, and a harmonic zone whose level no coefficient
+    carries moves by ``-(n - 1)`` times its OHIPn shift (the slope of an n-th
+    harmonic in dBc against its intercept at fixed output power).
+    """
+    fig = amp.figures
+    batch = len(next(iter(deltas.values())))
+    zero = np.zeros(batch)
+
+    def moved(value, key):
+        return None if value is None else value + deltas.get(key, zero)
+
+    sample = replace(
+        fig,
+        gain_db=fig.gain_db + deltas.get("gain", zero),
+        oip3_dbm=moved(fig.oip3_dbm, "oip3"),
+        oip2_dbm=moved(fig.oip2_dbm, "oip2"),
+        ohip_dbm={n: v + deltas.get(f"ohip{n}", zero) for n, v in fig.ohip_dbm.items()},
+        harmonics={
+            n: (dbc - (n - 1) * deltas.get(f"ohip{n}", zero), at) for n, (dbc, at) in fig.harmonics.items()
+        },
+    )
+    poly = polynomial_from_figures(sample, r_ohm)
+    nominal = amp.transfer
+    carried = set(range(2, len(poly.coeffs) + 1))
+    transfer: Polynomial | Saturating
+    if isinstance(nominal, Saturating):
+        base = saturating_base(poly, sample, r_ohm)
+        carried = {2, 3} | {n for n, _ in base.even}
+        shift_db = deltas.get("psat", zero) if fig.psat_dbm is not None else deltas.get("p1db", zero)
+        scale = 10.0 ** (shift_db / 20.0)
+        gamma = base.gamma if fig.states_order(3) else nominal.gamma / scale**2
+        transfer = replace(base, gamma=gamma, rail_v=nominal.rail_v * scale, smoothness=nominal.smoothness)
+    else:
+        transfer = poly
+    weights = {}
+    for n, w in amp.zone_weights_db.items():
+        own = (n == 2 and fig.oip2_dbm is not None) or (n == 3 and fig.oip3_dbm is not None)
+        level_moves = n not in carried or own
+        weights[n] = w - (n - 1) * deltas.get(f"ohip{n}", zero) if level_moves else w + zero
+    return transfer, weights
+
+
+def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | None:
+    """An intercept given output-referred, input-referred or both (must agree)."""
+    out = fields.quantity(out_key, parse_power_dbm, within=OUTPUT_INTERCEPT)
+    inp = fields.quantity(in_key, parse_power_dbm, within=INPUT_INTERCEPT)
+    if out is not None and inp is not None and abs(out - (inp + gain_db)) > CONSISTENCY_DB:
+        raise fields.error(
+            in_key,
+            f"{fields.raw(in_key)!r} disagrees with {out_key} {fields.raw(out_key)!r} and "
+            f"gain {gain_db:+.2f} dB: expected {in_key} = {out_key} - gain = {out - gain_db:+.2f} dBm",
+        )
+    if out is not None:
+        return out
+    return None if inp is None else inp + gain_db
+
+
+def read_figures(fields: Fields) -> AmplifierFigures:
+    """Parse and cross-check the amplifier keys of one ``[[stage]]`` table.
+
+    ``hN`` and ``oipN`` of the same order are independent facts (the output network
+    sets the harmonics, the in-band terminations the intermodulation) and are both
+    honoured; ``hN`` and ``ohipN`` are two forms of one figure and must agree.
+    """
+    gain = fields.quantity("gain", parse_gain_db, required=True, within=GAIN)
+    oip3 = _pair(fields, "oip3", "iip3", gain)
+    oip2 = _pair(fields, "oip2", "iip2", gain)
+    ohip: dict[int, float] = {}
+    harmonics: dict[int, tuple[float, float]] = {}
+    for n in range(2, MAX_HARMONIC + 1):
+        from_ohip = fields.quantity(f"ohip{n}", parse_power_dbm, within=OUTPUT_INTERCEPT)
+        point = fields.quantity(f"h{n}", parse_dbc_at, within=(HARMONIC_DBC, HARMONIC_AT))
+        if from_ohip is not None and point is not None:
+            dbc, at_dbm = point
+            implied = at_dbm + abs(dbc) / (n - 1)
+            if abs(from_ohip - implied) > CONSISTENCY_DB:
+                raise fields.error(
+                    f"h{n}",
+                    f"{fields.raw(f'h{n}')!r} implies OHIP{n} {implied:+.2f} dBm but ohip{n} is "
+                    f"{fields.raw(f'ohip{n}')!r}: expected one of them, or figures that agree within "
+                    f"{CONSISTENCY_DB} dB",
+                )
+        if point is not None:
+            harmonics[n] = point
+        elif from_ohip is not None:
+            ohip[n] = from_ohip
+    p1db = fields.quantity("p1db", parse_power_dbm, within=P1DB)
+    psat = fields.quantity("psat", parse_power_dbm, within=PSAT)
+    if p1db is not None and psat is not None and p1db > psat:
+        raise fields.error("p1db", f"{fields.raw('p1db')!r}: expected p1db <= psat {fields.raw('psat')!r}")
+    if psat is not None:
+        # The output cannot exceed saturation, so no figure can have been measured above it
+        # (beyond datasheet rounding, CONSISTENCY_DB).
+        for n, (_, at_dbm) in harmonics.items():
+            if at_dbm > psat + CONSISTENCY_DB:
+                raise fields.error(
+                    f"h{n}",
+                    f"{fields.raw(f'h{n}')!r} is stated at an output above psat {fields.raw('psat')!r}: "
+                    f"expected the output power of a harmonic figure at or below saturation "
+                    f"(within {CONSISTENCY_DB} dB)",
+                )
+    cubic = fields.text("cubic", default="compressive", choices=("compressive", "expansive"))
+    return AmplifierFigures(
+        gain_db=gain,
+        oip3_dbm=oip3,
+        oip2_dbm=oip2,
+        ohip_dbm=ohip,
+        harmonics=harmonics,
+        p1db_dbm=p1db,
+        psat_dbm=psat,
+        expansive=cubic == "expansive",
+    )
+
+
+def read_band(fields: Fields, context: LoadContext) -> PassBand | None:
+    """``band = { low = "...", high = "...", order = 1 }``: an optional pass band.
+
+    Parameters
+    ----------
+    fields : Fields
+        Reader of the stage's table; ``band`` holds ``low`` and ``high`` (frequencies) and
+        ``order``.
+    context : LoadContext
+        Gives the reference carrier's frequency (Hz), which the band must contain.
+
+    Returns
+    -------
+    PassBand or None
+        Corners in Hz; ``None`` when the table has no ``band``.
+    """
+    raw = fields.raw("band")
+    if raw is None:
+        return None
+    if not isinstance(raw, dict):
+        raise fields.error("band", f"{raw!r}: expected a table {{ low = '400 MHz', high = '500 MHz' }}")
+    sub = Fields(raw, fields.file, f"{fields.where} band")
+    low = sub.quantity("low", parse_freq_hz)
+    high = sub.quantity("high", parse_freq_hz)
+    order = sub.integer("order", default=1, low=1, high=MAX_BAND_ORDER)
+    sub.finish()
+    if low is None and high is None:
+        raise fields.error("band", "expected 'low', 'high' or both")
+    if (low is not None and low <= 0) or (high is not None and high <= 0):
+        raise fields.error("band", "expected corners above 0 Hz")
+    if low is not None and high is not None and not low < high:
+        raise fields.error(
+            "band", f"low {sub.raw('low')!r} and high {sub.raw('high')!r}: expected low < high"
+        )
+    ref = context.ref_freq_hz
+    if ref and not ((low or 0.0) <= ref <= (high or math.inf)):
+        raise fields.error(
+            "band", f"expected a band that contains the carrier at {ref:.6g} Hz, where the figures hold"
+        )
+    return PassBand(low_hz=low, high_hz=high, order=order)

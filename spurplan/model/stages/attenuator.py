@@ -1,0 +1,70 @@
+"""Attenuator (pad): a matched, frequency-flat loss."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from spurplan.fields import Fields, Within
+from spurplan.model.stages.base import LoadContext, flat_response
+from spurplan.units import parse_gain_db
+
+# A negative loss would be a gain (an amplifier stage); beyond 100 dB no pad exists
+# (switched attenuators stop near 120 dB in steps of pads of at most tens of dB; common
+# practice, no source), and 100 dB is also the ratio parser's ceiling.
+LOSS = Within("an attenuator loss", 0.0, 100.0, "dB")
+
+
+@dataclass(frozen=True)
+class Attenuator:
+    """A matched pad of ``loss_db`` (dB, >= 0)."""
+
+    name: str
+    loss_db: float
+
+    transfer = None
+    data_range_hz = None
+
+    @property
+    def gain_db(self) -> float:
+        return -self.loss_db
+
+    def response(self, freq_hz: np.ndarray) -> np.ndarray:
+        return flat_response(-self.loss_db)(freq_hz)
+
+    def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Matched pad: S11 = S22 = 0, S21 = S12 = 10^(-loss/20)."""
+        s = np.zeros((*np.shape(freq_hz), 2, 2), dtype=complex)
+        s[..., 0, 1] = s[..., 1, 0] = 10.0 ** (-self.loss_db / 20.0)
+        return s
+
+    @classmethod
+    def from_fields(cls, fields: Fields, context: LoadContext) -> Attenuator:
+        """The attenuator (pad) read from its lineup table.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Attenuator
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value.
+        """
+        loss = fields.quantity("loss", parse_gain_db, required=True)
+        if loss < 0:
+            raise fields.error(
+                "loss",
+                f"{fields.raw('loss')!r}: expected a loss >= 0 dB (a negative loss is a gain: use an amplifier stage)",
+            )
+        fields.require_within("loss", loss, LOSS)
+        return cls(name=fields.raw("name"), loss_db=loss)

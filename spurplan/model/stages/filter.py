@@ -1,0 +1,513 @@
+"""Filter stage: a linear 2-port from a Touchstone file or a synthesized prototype.
+
+Keys::
+
+    kind = "filter"
+    touchstone = "lpf.s2p"      # path relative to the lineup file, or
+    input_port = 1              # which port faces the signal source (1 or 2)
+    prototype = { family = "butterworth" | "chebyshev",
+                  response = "lowpass" | "highpass" | "bandpass",
+                  order = 7, cutoff = "520 MHz"          # low/high-pass
+                  # center = "450 MHz", bandwidth = "40 MHz"  for band-pass
+                  ripple = "0.1 dB",                      # Chebyshev
+                  q_inductor = 80, q_capacitor = 400,      # unloaded Q, or "lossless"
+                  floor = "-80 dB",                        # stopband floor, or "none"
+                  first = "shunt" | "series" }             # ladder orientation
+
+Left out, ``q_inductor``, ``q_capacitor`` and ``floor`` take the defaults of
+:mod:`spurplan.model.ladders` (Q_L 100, Q_C 500, floor -80 dB: discrete UHF parts, common
+practice, no source), and the stage's notes say which were assumed.  ``"lossless"``
+and ``"none"`` ask for the ideal ladder explicitly.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import dataclass, field, replace
+from typing import Literal, cast
+
+import numpy as np
+
+from spurplan.errors import LineupError, UnitError
+from spurplan.fields import Fields, existing_file, read_text_file
+from spurplan.io.touchstone import Layout, TouchstoneFault, check_text
+from spurplan.model.ladders import (
+    DEFAULT_FLOOR_DB,
+    DEFAULT_Q_CAPACITOR,
+    DEFAULT_Q_INDUCTOR,
+    FAMILIES,
+    FLOOR_RANGE_DB,
+    MAX_FILTER_ORDER,
+    RESPONSES,
+    S_FLOOR_DB,
+    Family,
+    Prototype,
+    Response,
+    SParameterTable,
+    floor_amplitude,
+    ladder_elements,
+    ladder_network,
+    ladder_s21,
+)
+from spurplan.model.stages.base import LoadContext
+from spurplan.units import parse_freq_hz, parse_gain_db
+
+# Below this (Hz) a filter edge or bandwidth is a typing mistake, and its element
+# values overflow.
+MIN_EDGE_HZ = 1.0
+# Unloaded Q of real inductors and capacitors lies well inside this.
+Q_RANGE = (0.5, 1e12)
+# |S21| above this (dB) in a filter file is not a passive filter.
+_PASSIVE_SLACK_DB = 0.5
+
+
+@dataclass(frozen=True)
+class Filter:
+    """A linear filter stage.
+
+    Exactly one of ``prototype`` (synthesized ladder) and ``table`` (Touchstone S21
+    on its data grid) is set.
+    """
+
+    name: str
+    r_ohm: float
+    prototype: Prototype | None = None
+    table: SParameterTable | None = None
+    s_table: _SMatrixTable | None = None
+    source: str | None = None
+    notes: tuple[str, ...] = ()
+    _cache: dict = field(default_factory=dict, compare=False, repr=False)
+
+    transfer = None
+
+    @property
+    def data_range_hz(self) -> tuple[float, float] | None:
+        """Frequency range (Hz) where the response is known; ``None`` for a prototype."""
+        return None if self.table is None else self.table.data_range_hz
+
+    def response(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Complex S21 at ``freq_hz`` (>= 0, any shape)."""
+        if self.table is not None:
+            return self.table(freq_hz)
+        return self.s_matrix(freq_hz)[..., 1, 0]
+
+    def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
+        """Full 2x2 S-matrix at ``freq_hz`` (any shape), shape ``freq_hz.shape + (2, 2)``."""
+        f = np.asarray(freq_hz, dtype=float)
+        # Ladders are evaluated from 1 Hz up (0 Hz would open every capacitor); clamp
+        # first so that the frequencies handed to scikit-rf stay strictly increasing.
+        uniq, inverse = np.unique(
+            np.maximum(f, 1.0) if self.prototype is not None else f, return_inverse=True
+        )
+        key = uniq.tobytes()
+        s = self._cache.get(key)
+        if s is None:
+            if self.prototype is not None:
+                s = ladder_network(self.prototype, uniq, self.r_ohm).s
+            else:
+                # Exactly one of prototype and table is set, and a table always comes
+                # with its S lookup (read_touchstone returns both).
+                assert self.s_table is not None
+                s = self.s_table(uniq)
+            self._cache.clear()
+            self._cache[key] = s
+        return s[inverse.reshape(f.shape)]
+
+    def network(self, freq_hz: np.ndarray):
+        """The filter as an ``skrf.Network`` at ``freq_hz`` (strictly increasing, Hz)."""
+        import skrf
+
+        freq_hz = np.asarray(freq_hz, dtype=float)
+        return skrf.Network(
+            frequency=skrf.Frequency.from_f(freq_hz, unit="Hz"),
+            s=self.s_matrix(freq_hz),
+            z0=self.r_ohm,
+            name=self.name,
+        )
+
+    def elements(self) -> dict[str, list]:
+        """Element values of a synthesized ladder as columns (empty for Touchstone).
+
+        ``q_l`` and ``q_c`` are the unloaded Q of the arm's inductor and capacitor (a
+        number, ``"lossless"``, or ``None`` where the arm has no such part).
+        """
+        keys = ("position", "branch", "part", "g", "l_h", "c_f", "q_l", "q_c")
+        cols: dict[str, list] = {k: [] for k in keys}
+        if self.prototype is None:
+            return cols
+        p = self.prototype
+
+        def q(value, present):
+            if not present:
+                return None
+            return "lossless" if value is None else value
+
+        for el in ladder_elements(p, self.r_ohm):
+            cols["position"].append(el.position)
+            cols["branch"].append(el.branch)
+            cols["part"].append(el.part)
+            cols["g"].append(el.g)
+            cols["l_h"].append(el.l_h)
+            cols["c_f"].append(el.c_f)
+            cols["q_l"].append(q(p.q_inductor, el.l_h is not None))
+            cols["q_c"].append(q(p.q_capacitor, el.c_f is not None))
+        return cols
+
+    def ideal_below_floor(self, freq_hz: np.ndarray) -> np.ndarray:
+        """True where the ladder alone rejects more than the floor (the floor sets |S21|).
+
+        All False for a Touchstone filter or a prototype without a floor.
+        """
+        f = np.asarray(freq_hz, dtype=float)
+        p = self.prototype
+        if p is None or p.floor_db is None:
+            return np.zeros(f.shape, dtype=bool)
+        # ladder_s21 broadcasts over a batch axis; a plain array keeps its own shape.
+        ideal = np.reshape(ladder_s21(replace(p, floor_db=None), f, self.r_ohm), f.shape)
+        return np.abs(ideal) < floor_amplitude(p.floor_db)
+
+    @classmethod
+    def from_fields(cls, fields: Fields, context: LoadContext) -> Filter:
+        """The filter stage read from its lineup table.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's lineup table, which locates its errors.
+        context : LoadContext
+            Lineup-wide settings: system impedance (ohm), the lineup file's folder, the policy
+            beyond data ranges, the reference carrier's frequency (Hz).
+
+        Returns
+        -------
+        Filter
+
+        Raises
+        ------
+        LineupError
+            Naming the file, stage and field of a missing or unacceptable value.
+        """
+        name = fields.raw("name")
+        has_ts, has_proto = fields.has("touchstone"), fields.has("prototype")
+        if has_ts == has_proto:
+            raise fields.error("touchstone", "expected exactly one of 'touchstone' or 'prototype'")
+        if has_proto:
+            fields.raw("touchstone")
+            fields.raw("input_port")
+            proto = read_prototype(fields)
+            return cls(
+                name=name,
+                r_ohm=context.r_ohm,
+                prototype=proto,
+                notes=assumed_notes(fields.raw("prototype")),
+            )
+        fields.raw("prototype")
+        table, s_table, notes = read_touchstone(fields, context)
+        return cls(
+            name=name,
+            r_ohm=context.r_ohm,
+            table=table,
+            s_table=s_table,
+            source=str(fields.raw("touchstone")),
+            notes=tuple(notes),
+        )
+
+
+def read_prototype(fields: Fields) -> Prototype:
+    """Parse a ``prototype = {...}`` inline table."""
+    raw = fields.raw("prototype")
+    sub = Fields(raw, fields.file, f"{fields.where} prototype")
+    family = sub.text("family", choices=FAMILIES)
+    response = sub.text("response", default="lowpass", choices=RESPONSES)
+    if family is None:
+        raise sub.error("family", f"is required: expected one of {', '.join(FAMILIES)}")
+    order = sub.integer("order", default=0, low=1, high=MAX_FILTER_ORDER)
+    if order == 0:
+        raise sub.error("order", f"is required: expected a whole number from 1 to {MAX_FILTER_ORDER}")
+    ripple = sub.quantity("ripple", parse_gain_db)
+    if family == "chebyshev":
+        if ripple is None or ripple <= 0 or ripple > 3:
+            raise sub.error("ripple", f"{sub.raw('ripple')!r}: expected a passband ripple from 0 to 3 dB")
+        if order % 2 == 0:
+            raise sub.error(
+                "order", f"{order}: expected an odd order (even Chebyshev ladders need unequal terminations)"
+            )
+    elif ripple is not None:
+        raise sub.error("ripple", f"{sub.raw('ripple')!r}: a Butterworth filter has no ripple")
+    cutoff = sub.quantity("cutoff", parse_freq_hz)
+    center = sub.quantity("center", parse_freq_hz)
+    bandwidth = sub.quantity("bandwidth", parse_freq_hz)
+    if response == "bandpass":
+        if center is None or bandwidth is None or cutoff is not None:
+            raise sub.error("center", "expected 'center' and 'bandwidth' (and no 'cutoff') for a band-pass")
+        if not 0 < bandwidth < 2 * center:
+            raise sub.error("bandwidth", f"{sub.raw('bandwidth')!r}: expected 0 < bandwidth < 2 x center")
+        edge = center
+    else:
+        if cutoff is None or center is not None or bandwidth is not None:
+            raise sub.error("cutoff", f"expected 'cutoff' (and no 'center' or 'bandwidth') for a {response}")
+        edge = cutoff
+    if edge < MIN_EDGE_HZ or (bandwidth is not None and bandwidth < MIN_EDGE_HZ):
+        raise sub.error(
+            "cutoff" if response != "bandpass" else "center",
+            f"expected an edge and bandwidth of at least {MIN_EDGE_HZ:g} Hz",
+        )
+    q_l = _optional(sub, "q_inductor", parse_q, DEFAULT_Q_INDUCTOR)
+    q_c = _optional(sub, "q_capacitor", parse_q, DEFAULT_Q_CAPACITOR)
+    floor = _optional(sub, "floor", parse_floor_db, DEFAULT_FLOOR_DB)
+    first = sub.text("first", default="shunt", choices=("shunt", "series"))
+    sub.finish()
+    return Prototype(
+        # Both were checked against FAMILIES and RESPONSES (the Literal's values) by text().
+        family=cast(Family, family),
+        response=cast(Response, response),
+        order=order,
+        edge_hz=edge,
+        bandwidth_hz=bandwidth,
+        ripple_db=ripple,
+        q_inductor=q_l,
+        q_capacitor=q_c,
+        first=cast(Literal["shunt", "series"], first),  # checked against these choices
+        floor_db=floor,
+    )
+
+
+# Words that ask for the ideal: a lossless part, no stopband floor.
+LOSSLESS = "lossless"
+NO_FLOOR = "none"
+
+
+def parse_q(value: object) -> float | None:
+    """An unloaded Q: a number within :data:`Q_RANGE`, or "lossless" (``None``).
+
+    Raises
+    ------
+    ValueError
+        With the message to show after the field name.
+    """
+    if value == LOSSLESS:
+        return None
+    lo, hi = Q_RANGE
+    if (
+        isinstance(value, bool)
+        or not isinstance(value, (int, float))
+        or not (math.isfinite(value) and lo <= value <= hi)
+    ):
+        raise ValueError(
+            f'{value!r}: expected an unloaded Q, a number from {lo:g} to {hi:g}, or "{LOSSLESS}"'
+        )
+    return float(value)
+
+
+def parse_floor_db(value: object) -> float | None:
+    """A stopband floor: a level in dB within :data:`~spurplan.model.ladders.FLOOR_RANGE_DB`, or "none".
+
+    Raises
+    ------
+    ValueError
+        With the message to show after the field name.
+    """
+    if value == NO_FLOOR:
+        return None
+    lo, hi = FLOOR_RANGE_DB
+    expected = f'{value!r}: expected a stopband floor from {lo:g} dB to {hi:g} dB (such as "-80 dB"), or "{NO_FLOOR}"'
+    try:
+        floor = parse_gain_db(value)
+    except UnitError:
+        raise ValueError(expected) from None
+    if not lo <= floor <= hi:
+        raise ValueError(expected)
+    return floor
+
+
+def _optional(sub: Fields, key: str, parse, default: float) -> float | None:
+    """``parse(value)`` of ``key``, ``default`` when it is absent, a located error otherwise."""
+    if not sub.has(key):
+        sub.raw(key)
+        return default
+    try:
+        return parse(sub.raw(key))
+    except ValueError as exc:
+        raise sub.error(key, str(exc)) from None
+
+
+def assumed_notes(spec: object) -> tuple[str, ...]:
+    """A note naming the defaults a prototype table relied on (none when it states all)."""
+    if not isinstance(spec, dict):
+        return ()
+    assumed = []
+    if "q_inductor" not in spec:
+        assumed.append(f"Q_L {DEFAULT_Q_INDUCTOR:g}")
+    if "q_capacitor" not in spec:
+        assumed.append(f"Q_C {DEFAULT_Q_CAPACITOR:g}")
+    if "floor" not in spec:
+        assumed.append(f"stopband floor {DEFAULT_FLOOR_DB:g} dB")
+    if not assumed:
+        return ()
+    return (f"assumed {', '.join(assumed)} (defaults for discrete LC parts: common practice, no source)",)
+
+
+def read_touchstone(fields: Fields, context: LoadContext):
+    """Read a 2-port Touchstone file for a stage; returns (S21 table, S lookup, notes).
+
+    Parameters
+    ----------
+    fields : Fields
+        Reader of the stage's table: ``touchstone`` (file name, relative to the lineup's
+        folder), ``input_port`` (1 or 2) and ``kind``.
+    context : LoadContext
+        Gives the lineup's folder, the system impedance (ohm) the file must be referred
+        to, and the policy beyond the file's frequency range.
+
+    Returns
+    -------
+    tuple of (SParameterTable, S-matrix table, list of str)
+        The S21 lookup, the full 2-port S lookup (frequencies in Hz), and notes to show
+        (scikit-rf's warnings, noise floor, gain above a passive filter's).
+
+    Raises
+    ------
+    LineupError
+        Naming the file and field when the file is missing, unreadable, not a 2-port, at
+        another impedance, or holds non-finite or unordered data.
+    """
+    rel = fields.raw("touchstone")
+    if not isinstance(rel, str) or not rel.strip():
+        raise fields.error("touchstone", f"{rel!r}: expected a file name such as 'filter.s2p'")
+    port = fields.raw("input_port", 1)
+    if port not in (1, 2) or isinstance(port, bool):
+        raise fields.error("input_port", f"{port!r}: expected 1 or 2")
+    path = existing_file(context.base_dir, rel, fields, "touchstone")
+    layout = _precheck_touchstone(path, rel, fields, port)
+    import skrf
+
+    notes = []
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            net = skrf.Network(str(path))
+    except Exception as exc:  # skrf raises many kinds on corrupt files
+        first = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise fields.error("touchstone", f"{rel!r}: cannot be read as Touchstone ({first})") from None
+    notes += [f"{rel}: {w.message}" for w in caught]
+    if net.nports != 2:
+        raise fields.error("touchstone", f"{rel!r} has {net.nports} port(s): expected a 2-port file (.s2p)")
+    z0 = np.asarray(net.z0)
+    if not np.allclose(z0, context.r_ohm, rtol=1e-6, atol=0):
+        raise fields.error(
+            "touchstone",
+            f"{rel!r} is referred to {np.unique(np.round(z0.real, 6))} ohm: expected {context.r_ohm:g} ohm "
+            "(the lineup impedance)",
+        )
+    f = net.f
+    s = net.s
+    if len(f) < 2 or not np.all(np.diff(f) > 0):
+        raise fields.error("touchstone", f"{rel!r}: expected at least 2 strictly increasing frequencies")
+    if not np.all(np.isfinite(s)):
+        raise fields.error("touchstone", f"{rel!r}: contains NaN or infinite S-parameters")
+    differs = _same_as_read(layout, f, s)
+    if differs is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {differs}")
+    zero = layout.zero_fault()
+    if zero is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {zero}")
+    notes += _floor_note(rel, layout)
+    if port == 2:
+        s = s[:, ::-1, ::-1]
+    s21 = s[:, 1, 0]
+    with np.errstate(divide="ignore"):
+        peak = float(np.max(20 * np.log10(np.abs(s21))))
+    if peak > _PASSIVE_SLACK_DB and fields.raw("kind") == "filter":
+        notes.append(f"{rel}: |S21| reaches {peak:+.2f} dB, more than a passive filter can")
+    beyond = context.beyond_data
+    return SParameterTable.from_s21(f, s21, beyond), _SMatrixTable(f, s, beyond), notes
+
+
+# A Touchstone file larger than this is not a filter measurement (a 2-port at 100,000
+# points is about 10 MB): refused before scikit-rf reads it.
+TOUCHSTONE_MAX_BYTES = 32 * 1024 * 1024
+
+
+def _precheck_touchstone(path, rel: str, fields: Fields, input_port: int = 1) -> Layout:
+    """Read the file as data first (:mod:`spurplan.io.touchstone`); a located error otherwise.
+
+    Returns what was read, so that scikit-rf's reading can be compared with it.
+    """
+    import re
+
+    def bad(message: str):
+        return fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {message}")
+
+    try:
+        text = read_text_file(path, "a Touchstone text file", TOUCHSTONE_MAX_BYTES)
+    except LineupError as exc:
+        raise bad(exc.message) from None
+    m = re.search(r"\.s(\d+)p$", str(path).lower())
+    if m is None:
+        raise bad("expected a file name ending in .s2p")
+    try:
+        return check_text(text, int(m.group(1)), input_port)
+    except TouchstoneFault as exc:
+        raise bad(str(exc)) from None
+
+
+def _same_as_read(layout: Layout, f: np.ndarray, s: np.ndarray) -> str | None:
+    """Where scikit-rf's reading differs from the pre-check's (``None``: it agrees).
+
+    Points, frequencies and every S-parameter (``s``: ``(n, 2, 2)`` as read, before
+    any port swap) must agree to 1e-9 relative (values under 1e-12, -240 dB, count
+    as equal), so that a silent misreading (a data order mixed up, rows skipped or
+    added, memory never written) is an error, not a number.
+    """
+    if len(f) != len(layout.freq_hz):
+        return f"scikit-rf read {len(f)} points where the file holds {len(layout.freq_hz)}"
+    off = ~np.isclose(f, layout.freq_hz, rtol=1e-9, atol=0)
+    if off.any():
+        k = int(np.argmax(off))
+        return f"scikit-rf read {f[k]:g} Hz at line {layout.lines[k]}, where the file gives {layout.freq_hz[k]:g} Hz"
+    if layout.s is None:
+        return None
+    off = ~np.isclose(s, layout.s, rtol=1e-9, atol=1e-12)
+    if off.any():
+        k, i, j = (int(x[0]) for x in np.nonzero(off))
+        return (
+            f"scikit-rf read S{i + 1}{j + 1} = {s[k, i, j]:.6g} at line {layout.lines[k]}, "
+            f"where the file gives {layout.s[k, i, j]:.6g}"
+        )
+    return None
+
+
+def _floor_note(rel: str, layout: Layout) -> list[str]:
+    """A note for forward transmission below :data:`S_FLOOR_DB` (held there by the lookup)."""
+    if layout.forward_db is None:
+        return []
+    low = layout.forward_db < S_FLOOR_DB
+    if not low.any():
+        return []
+    k = int(np.argmin(layout.forward_db))
+    return [
+        f"{rel}: |{layout.forward}| below {S_FLOOR_DB:g} dB at {int(low.sum())} point(s) (lowest "
+        f"{layout.forward_db[k]:.4g} dB at line {layout.lines[k]}): held at {S_FLOOR_DB:g} dB, "
+        "less rejection than the file states, never more"
+    ]
+
+
+@dataclass(frozen=True)
+class _SMatrixTable:
+    """All four S-parameters of a file, interpolated like S21 (for linear sections)."""
+
+    freq_hz: np.ndarray
+    s: np.ndarray
+    beyond: str
+
+    def __call__(self, freq_hz) -> np.ndarray:
+        f = np.asarray(freq_hz, dtype=float)
+        out = np.empty((*f.shape, 2, 2), dtype=complex)
+        for i in range(2):
+            for j in range(2):
+                out[..., i, j] = SParameterTable.from_s21(self.freq_hz, self.s[:, i, j], self.beyond)(f)
+        if self.beyond == "no_rejection":
+            outside = (f < self.freq_hz[0]) | (f > self.freq_hz[-1])
+            out[outside] = np.array([[0, 1], [1, 0]], dtype=complex)
+        return out

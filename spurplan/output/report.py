@@ -1,0 +1,533 @@
+"""Design-review report: one self-contained HTML file (or Markdown with figures beside it).
+
+Contents, in order: verdict and provenance; the lineup (carriers, stages); the
+cascade budget; the check with every product, its limit and margin; the output
+spectrum against the mask; drive and tuning sweeps where the lineup's ``[report]``
+table asks for them; the assumptions behind the numbers (model choices, combining
+mode, beyond-data policy, bandwidth approximation, the rule sets and their sources);
+and the cautions.  Figures are embedded as PNG data, styles are inline, and nothing
+refers outside the file, so it opens offline and prints to PDF.
+
+The output is deterministic: the same lineup gives the same bytes, apart from the
+one line that records when the report was made.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import io
+import re
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from pathlib import Path
+
+from spurplan.analyses.budget import budget_rows
+from spurplan.analyses.check import check, figure_check_rows
+from spurplan.model.ladders import describe_parts
+from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
+from spurplan.output.files import check_folder, check_target, write_atomic, write_with_folder
+from spurplan.output.provenance import provenance
+from spurplan.output.tables import BUDGET_TABLE, CHECK_TABLE, check_display
+
+# Above this output power the report adds the RF-exposure and hot-parts caution
+# prominently (common practice, no source: a few watts is where burns and exposure
+# limits become real on a bench).
+HIGH_POWER_DBM = 33.0
+FIGURE_DPI = 100
+
+CARRIER_TABLE = [
+    ("name", "carrier", None),
+    ("freq_mhz", "freq (MHz)", ".6f"),
+    ("power_dbm", "input (dBm)", ".2f"),
+    ("bandwidth_khz", "bandwidth (kHz)", ".4g"),
+]
+STAGE_TABLE = [
+    ("position", "#", "d"),
+    ("name", "stage", None),
+    ("kind", "kind", None),
+    ("figures", "figures", None),
+]
+RANGE_TABLE = [
+    ("start_mhz", "from (MHz)", ".6f"),
+    ("stop_mhz", "to (MHz)", ".6f"),
+    ("label", "product", None),
+    ("rule", "rule", None),
+    ("band", "protected band", None),
+    ("worst_margin_db", "worst margin (dB)", ".2f"),
+]
+FIGURE_CHECK_TABLE = [
+    ("stage", "stage", None),
+    ("figure", "figure", None),
+    ("stated_text", "stated", None),
+    ("model_text", "model", None),
+    ("miss_db", "miss (dB)", ".2f"),
+    ("met_text", "met", None),
+]
+MISSING_TABLE = [
+    ("stage", "stage", None),
+    ("figure", "figure not given", None),
+]
+RULESET_TABLE = [
+    ("name", "rule set", None),
+    ("title", "title", None),
+    ("source", "source", None),
+    ("status", "status of values", None),
+]
+
+
+@dataclass(frozen=True)
+class Section:
+    """A titled part of the report: paragraphs, tables and figures in order."""
+
+    title: str
+    parts: list = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class Report:
+    """Everything the report shows, computed once; rendered to HTML or Markdown."""
+
+    title: str
+    verdict: str
+    provenance: dict
+    sections: list
+
+    def to_html(self, made_at: str) -> str:
+        body = [
+            f"<h1>{_e(self.title)}</h1>",
+            f'<p class="verdict {self.verdict.split(",")[0].split()[0].lower()}">{_e(self.verdict)}</p>',
+        ]
+        body.append(f'<p class="made">Report made {_e(made_at)}</p>')
+        body.append(_provenance_html(self.provenance))
+        for sec in self.sections:
+            body.append(f"<h2>{_e(sec.title)}</h2>")
+            for kind, value in sec.parts:
+                if kind == "text":
+                    body.append(f"<p>{_e(value)}</p>")
+                elif kind == "caution":
+                    body.append(f'<p class="caution">{_e(value)}</p>')
+                elif kind == "table":
+                    body.append(value[0])
+                elif kind == "figure":
+                    png, alt = value
+                    data = base64.b64encode(png).decode("ascii")
+                    body.append(
+                        f'<figure><img alt="{_e(alt)}" src="data:image/png;base64,{data}"><figcaption>{_e(alt)}</figcaption></figure>'
+                    )
+        return (
+            '<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
+            f"<title>{_e(self.title)}</title><style>{_CSS}</style></head><body>\n"
+            + "\n".join(body)
+            + "\n</body></html>\n"
+        )
+
+    def to_markdown(self, made_at: str, figure_dir: str) -> tuple[str, dict[str, bytes]]:
+        """Markdown text and the figure files it refers to (name -> PNG bytes).
+
+        Every text is literal (:func:`spurplan.output.escaping.markdown`): names and sources
+        from users' files cannot add HTML, links, images or table cells; the only
+        markup is the report's own, and the only images are its figures, by relative
+        percent-encoded paths.
+
+        Parameters
+        ----------
+        made_at : str
+            When the report was made, as printed (e.g. ``"2026-01-31 12:00:00 UTC"``).
+        figure_dir : str
+            Name of the folder beside the report that holds the figures, as linked.
+
+        Returns
+        -------
+        tuple of (str, dict of str to bytes)
+            The Markdown text and the figures by file name.
+        """
+        from urllib.parse import quote
+
+        from spurplan.output.escaping import markdown as md
+
+        lines = [f"# {md(self.title)}", "", f"**{md(self.verdict)}**", "", f"Report made {md(made_at)}", ""]
+        lines += [f"- {md(k)}: {md(v)}" for k, v in _flat(self.provenance).items()] + [""]
+        figures: dict[str, bytes] = {}
+        for sec in self.sections:
+            lines += [f"## {md(sec.title)}", ""]
+            for kind, value in sec.parts:
+                if kind in ("text", "caution"):
+                    lines += [("> " if kind == "caution" else "") + md(value), ""]
+                elif kind == "table":
+                    lines += [value[1], ""]  # formatting.markdown_table escapes every cell
+                elif kind == "figure":
+                    png, alt = value
+                    name = f"figure-{len(figures) + 1}.png"
+                    figures[name] = png
+                    lines += [f"![{md(alt)}]({quote(f'{figure_dir}/{name}')})", ""]
+        return "\n".join(lines), figures
+
+
+def _e(text) -> str:
+    return html.escape(str(text))
+
+
+def _flat(prov: dict) -> dict:
+    out = {k: v for k, v in prov.items() if k not in ("analysis", "notice")}
+    out.update({f"analysis {k}": v for k, v in prov.get("analysis", {}).items()})
+    return out
+
+
+def _provenance_html(prov: dict) -> str:
+    rows = "".join(f"<tr><th>{_e(k)}</th><td>{_e(v)}</td></tr>" for k, v in _flat(prov).items())
+    return f'<table class="prov">{rows}</table>'
+
+
+def _table(columns: dict, spec, row_class=None):
+    from spurplan.output.formatting import html_table, markdown_table
+
+    return ("table", (html_table(columns, spec, row_class), markdown_table(columns, spec)))
+
+
+def _figure_png(fig) -> bytes:
+    buf = io.BytesIO()
+    # No software or date metadata: the same figure gives the same bytes.
+    fig.savefig(buf, format="png", dpi=FIGURE_DPI, metadata={"Software": None})
+    from spurplan.output.plots import close
+
+    close(fig)
+    return buf.getvalue()
+
+
+def build_report(lineup) -> Report:
+    """Compute everything the report shows for ``lineup`` (which must have a mask)."""
+    from spurplan.output.plots import check_figure, drive_figure, tune_figure
+
+    outcome = check(lineup)
+    prov = provenance(lineup)
+    verdict = outcome.verdict
+    sections = [_lineup_section(lineup), _budget_section(outcome.result)]
+    rows = outcome.rows
+    failing = [p is False for p in rows["pass"]]
+    check_sec = Section("Products at the antenna port against the mask")
+    check_sec.parts.append(
+        (
+            "text",
+            f"{sum(failing)} of {sum(p is not None for p in rows['pass'])} checked products fail. "
+            "Rows are sorted by margin; failing rows are marked FAIL.",
+        )
+    )
+    check_sec.parts.append(_table(check_display(rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None))
+    check_sec.parts.append(
+        (
+            "figure",
+            (
+                _figure_png(check_figure(outcome)),
+                "Output spectrum against the most stringent limit; protected bands shaded.",
+            ),
+        )
+    )
+    sections.append(check_sec)
+    spec = lineup.report
+    if spec is not None and spec.drive is not None:
+        sections.append(_drive_section(lineup, spec.drive, drive_figure))
+    if spec is not None and spec.tune is not None:
+        sections.append(_tune_section(lineup, spec.tune, tune_figure))
+    sections.append(_assumptions_section(lineup))
+    sections.append(_cautions_section(outcome))
+    return Report(
+        title=f"{lineup.name}: spurious-emission review", verdict=verdict, provenance=prov, sections=sections
+    )
+
+
+def _lineup_section(lineup) -> Section:
+    sec = Section("Lineup")
+    carriers = {
+        "name": [f"f{k + 1}" for k in range(len(lineup.carriers))],
+        "freq_mhz": [c.freq_hz / 1e6 for c in lineup.carriers],
+        "power_dbm": [c.power_dbm for c in lineup.carriers],
+        "bandwidth_khz": [None if c.bandwidth_hz is None else c.bandwidth_hz / 1e3 for c in lineup.carriers],
+    }
+    sec.parts.append(_table(carriers, CARRIER_TABLE))
+    stages: dict[str, list] = {"position": [], "name": [], "kind": [], "figures": []}
+    for i, s in enumerate(lineup.stages, start=1):
+        stages["position"].append(i)
+        stages["name"].append(s.name)
+        stages["kind"].append(type(s).__name__.lower())
+        stages["figures"].append(_figures_text(s))
+    sec.parts.append(_table(stages, STAGE_TABLE))
+    return sec
+
+
+def _figures_text(stage) -> str:
+    from spurplan.model.stages import Amplifier, Attenuator, Filter, Mixer
+
+    if isinstance(stage, Amplifier):
+        f = stage.figures
+        parts = [f"gain {f.gain_db:g} dB"]
+        parts += [f"OIP3 {f.oip3_dbm:+g} dBm"] if f.oip3_dbm is not None else []
+        parts += [f"OIP2 {f.oip2_dbm:+g} dBm"] if f.oip2_dbm is not None else []
+        parts += [f"OHIP{n} {v:+.2f} dBm" for n, v in sorted(f.ohip_dbm.items())]
+        parts += [f"H{n} {dbc:+g} dBc @ {at:+g} dBm" for n, (dbc, at) in sorted(f.harmonics.items())]
+        parts += [f"P1dB {f.p1db_dbm:+g} dBm"] if f.p1db_dbm is not None else []
+        parts += [f"Psat {f.psat_dbm:+g} dBm"] if f.psat_dbm is not None else []
+        if stage.band is not None:
+            b = stage.band
+            edges = [
+                f"{b.low_hz / 1e6:g} MHz" if b.low_hz else "DC",
+                f"{b.high_hz / 1e6:g} MHz" if b.high_hz else "-",
+            ]
+            parts.append(f"pass band {edges[0]} to {edges[1]} (order {b.order})")
+        return ", ".join(parts)
+    if isinstance(stage, Attenuator):
+        return f"loss {stage.loss_db:g} dB"
+    if isinstance(stage, Mixer):
+        return (
+            f"LO {stage.lo_freq_hz / 1e6:g} MHz at {stage.lo_power_dbm:+g} dBm, conversion gain "
+            f"{stage.conversion_gain_db:+g} dB, {stage.sideband} sideband wanted, {len(stage.table)} spur-table terms "
+            f"at {stage.spur_drive_dbm:+g} dBm IF"
+        )
+    if isinstance(stage, Filter):
+        if stage.prototype is not None:
+            p = stage.prototype
+            edge = (
+                f"centre {p.edge_hz / 1e6:g} MHz, bandwidth {p.bandwidth_hz / 1e6:g} MHz"
+                if p.bandwidth_hz
+                else f"cutoff {p.edge_hz / 1e6:g} MHz"
+            )
+            rip = f", ripple {p.ripple_db:g} dB" if p.ripple_db else ""
+            return f"{p.family} {p.response}, order {p.order}, {edge}{rip}; {describe_parts(p)}"
+        return f"Touchstone {stage.source}"
+    return ""
+
+
+def _budget_section(result) -> Section:
+    sec = Section("Cascade budget (strongest carrier)")
+    sec.parts.append(_table(budget_rows(result), BUDGET_TABLE))
+    return sec
+
+
+def _drive_section(lineup, drive, drive_figure) -> Section:
+    from spurplan.analyses.sweep import drive_sweep
+
+    start, stop, step = drive
+    sw = drive_sweep(lineup, start, stop, step)
+    sec = Section(f"Drive sweep, {start:+g} to {stop:+g} dBm input in {step:g} dB steps")
+    if sw.status == "limited":
+        lim = sw.limiting
+        # drive_sweep() sets limiting with the edge it bisects to whenever it says "limited".
+        assert lim is not None
+        sec.parts.append(
+            (
+                "text",
+                f"Highest compliant drive: {sw.max_compliant_input_dbm:+.2f} dBm in, "
+                f"{sw.max_compliant_output_dbm:+.2f} dBm out; above it {lim['label']} at "
+                f"{lim['freq_hz'] / 1e6:.6f} MHz fails {lim['rule']}.",
+            )
+        )
+    elif sw.status == "fails throughout":
+        sec.parts.append(("text", "The mask is violated at every drive of the sweep."))
+    elif sw.status == "fails at the lowest drive":
+        sec.parts.append(
+            (
+                "text",
+                "The mask is violated at the lowest drive of the sweep; some higher drives pass, which "
+                "is no compliant range to sign.",
+            )
+        )
+    else:
+        sec.parts.append(("text", "The mask is met over the whole sweep."))
+    sec.parts.append(
+        (
+            "figure",
+            (_figure_png(drive_figure(sw)), "Products (solid) and their limits (dashed) against drive."),
+        )
+    )
+    return sec
+
+
+def _tune_section(lineup, tune, tune_figure) -> Section:
+    from spurplan.analyses.sweep import sweep_points, tune_sweep
+
+    start, stop, step = tune
+    sw = tune_sweep(lineup, sweep_points(start, stop, step, "channel", "Hz"))
+    sec = Section(f"Tuning sweep, {start / 1e6:g} to {stop / 1e6:g} MHz in {step / 1e3:g} kHz steps")
+    if sw.failing:
+        cols = {c: [r[c] for r in sw.failing] for c in ("label", "rule", "band", "worst_margin_db")}
+        cols["start_mhz"] = [r["start_hz"] / 1e6 for r in sw.failing]
+        cols["stop_mhz"] = [r["stop_hz"] / 1e6 for r in sw.failing]
+        sec.parts.append(("text", "Channel ranges where a product fails (edges refined to 1 Hz):"))
+        sec.parts.append(_table(cols, RANGE_TABLE))
+    else:
+        sec.parts.append(("text", "Every channel meets the mask."))
+    sec.parts.append(
+        (
+            "figure",
+            (_figure_png(tune_figure(sw)), "Product frequency against carrier frequency; failures in red."),
+        )
+    )
+    return sec
+
+
+def _figure_value(value: float, unit: str, at_dbm: float | None) -> str:
+    return f"{value:+.2f} {unit}" + (f" @ {at_dbm:+.2f} dBm" if at_dbm is not None else "")
+
+
+def _assumptions_section(lineup) -> Section:
+    a = lineup.analysis
+    sec = Section("Assumptions behind the numbers")
+    texts = [
+        f"Products up to order {a.max_order} of the {len(lineup.carriers)} carrier(s), computed with the "
+        "multi-tone torus engine: exact for polynomial models, converged to 1e-4 for saturating ones; "
+        "products above the order are dropped after each stage.",
+        f"Stage contributions combine as '{a.combine}' "
+        + {
+            "worst": "(magnitudes add: interconnect phases are unknown, the conservative choice).",
+            "power": "(powers add: uncorrelated phases).",
+            "phase": "(as modelled, phase-true: the interconnect phases of the model are taken as real).",
+        }[a.combine],
+        "Amplifier figures set a memoryless model in peak volts whose small-signal terms are the "
+        "datasheet's (IIP3 from A^2 = (4/3)|a1/a3|, IIP2 from A = |a1/a2|); with psat or p1db it "
+        "saturates through an output rail whose level and knee are fitted so that both figures hold. "
+        "Each harmonic zone carries a weight on what the stage generates there, fitted so that every "
+        "stated hN holds at its output power; zones without a figure follow the memoryless relations "
+        "(HIP3 = IP3 + 4.77 dB, HIP2 = IP2 + 6.02 dB). A polynomial-only stage driven past a 1 dB gain "
+        "deviation is flagged.",
+        "A figure that a stage does not state is not invented: the products it describes are left out "
+        "(no 2nd-order figure: no even-order products from that stage; no compression figure: the stage "
+        "stays linear; a mixer without LO isolation: no LO leakage). Such a lineup is INCOMPLETE, never "
+        "PASS.",
+        f"Linear stages: '{a.linear_sections}' ("
+        + (
+            "each stage matched, S21 multiplied"
+            if a.linear_sections == "matched"
+            else "consecutive linear stages cascaded with full S-parameters"
+        )
+        + f"); outside a Touchstone file's data the policy is '{a.beyond_data}'.",
+        "A product of carriers with occupied bandwidths B_k is taken to spread over sum |m_k| B_k "
+        "(an approximation; carriers without a bandwidth are CW) and reads 10 log10(B/RBW) lower in a "
+        "narrower reference bandwidth. Relative limits use the total mean carrier power at the output.",
+    ]
+    if lineup.mask is not None:
+        texts.append(
+            f"Products within {lineup.mask.spurious_boundary:g} necessary bandwidths of a carrier "
+            "with a stated bandwidth are in the out-of-band domain and are not judged here."
+        )
+    sec.parts.extend(("text", t) for t in texts)
+    sec.parts.extend(("text", f"Model note: {n}") for n in lineup.notes)
+    missing = lineup.missing_figures()
+    if missing:
+        sec.parts.append(("text", "Figures not given, so the products they describe are not modelled:"))
+        sec.parts.append(
+            _table({"stage": [m[0] for m in missing], "figure": [m[1] for m in missing]}, MISSING_TABLE)
+        )
+    rows = figure_check_rows(lineup)
+    if rows:
+        sec.parts.append(
+            ("text", "Stated large-signal figures beside what the fitted model gives at the same point:")
+        )
+        shown = {c: [r[c] for r in rows] for c in ("stage", "figure", "miss_db")}
+        shown["stated_text"] = [_figure_value(r["stated"], r["unit"], r["at_dbm"]) for r in rows]
+        shown["model_text"] = [
+            "not reached" if r["model"] is None else _figure_value(r["model"], r["unit"], r["at_dbm"])
+            for r in rows
+        ]
+        shown["met_text"] = ["yes" if r["met"] else "NO" for r in rows]
+        sec.parts.append(_table(shown, FIGURE_CHECK_TABLE))
+    if lineup.mask is not None:
+        sets = lineup.mask.sets
+        cols = {
+            "name": [s.name for s in sets],
+            "title": [s.title for s in sets],
+            "source": [s.source for s in sets],
+            "status": [", ".join(sorted({e.status for e in (*s.rules, *s.bands)})) for s in sets],
+        }
+        sec.parts.append(("text", "Rule sets and band lists used, with their sources:"))
+        sec.parts.append(_table(cols, RULESET_TABLE))
+    return sec
+
+
+def _cautions_section(outcome) -> Section:
+    sec = Section("Cautions")
+    sec.parts.append(("caution", PLANNING_NOTICE))
+    sec.parts.append(
+        (
+            "caution",
+            "Values marked 'from memory' in the rule sets have not been checked against the "
+            "published text; check them against the edition that applies before relying on them.",
+        )
+    )
+    power = outcome.carrier_dbm
+    text = POWER_NOTICE
+    if power >= HIGH_POWER_DBM:
+        text = (
+            f"This transmitter delivers about {power:+.1f} dBm ({10 ** ((power - 30) / 10):.3g} W). "
+            + POWER_NOTICE
+        )
+    sec.parts.append(("caution", text))
+    return sec
+
+
+def write_report(lineup, path, now: datetime | None = None) -> Path:
+    """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup to report on (with a mask for the compliance sections).
+    path : str or Path
+        The report file; its suffix (``.html``, ``.htm`` or ``.md``) chooses the format.
+    now : datetime, optional
+        The time printed as made (default the current time, UTC).
+
+    Returns
+    -------
+    Path
+        The file written.
+
+    Raises
+    ------
+    LineupError
+        For an unknown suffix (field ``-o``), before anything is built.
+    OutputError
+        For a target (or, for Markdown, a figure folder) that cannot be written, also
+        before anything is built.
+    """
+    from spurplan.errors import LineupError
+
+    # Every refusal of the target comes before the (slow) build, and nothing is written then.
+    path = check_target(path)
+    suffix = path.suffix.lower()
+    if suffix not in (".html", ".htm", ".md"):
+        raise LineupError(
+            f"{path}: unknown report format {suffix or '(none)'!r}: expected .html or .md", field="-o"
+        )
+    folder = f"{path.stem}_files"
+    if suffix == ".md":
+        check_folder(path.parent / folder, MARKDOWN_FIGURE)
+    made_at = (now or datetime.now(UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
+    report = build_report(lineup)
+    if suffix in (".html", ".htm"):
+        return write_atomic(path, report.to_html(made_at))
+    text, figures = report.to_markdown(made_at, folder)
+    # The figures folder and the text as one unit: figures first, then the text, an
+    # earlier folder replaced only when it holds nothing but earlier figures.
+    return write_with_folder(path, text, folder, figures, MARKDOWN_FIGURE)
+
+
+# Names of the figure files a Markdown report writes beside it (Report.to_markdown).
+MARKDOWN_FIGURE = re.compile(r"figure-\d+\.png")
+
+
+_CSS = """
+body { font-family: sans-serif; max-width: 1250px; margin: 1.5em auto; color: #111; line-height: 1.35; }
+h1 { font-size: 1.5em; } h2 { font-size: 1.2em; margin-top: 1.6em; border-bottom: 1px solid #999; }
+table { border-collapse: collapse; font-size: 0.8em; margin: 0.6em 0; }
+th, td { border: 1px solid #bbb; padding: 2px 6px; text-align: left; vertical-align: top; }
+thead th { background: #eee; }
+tr.fail td { background: #fde2e2; font-weight: bold; }
+p.verdict { font-size: 1.15em; font-weight: bold; padding: 0.5em; border: 2px solid #333; }
+p.verdict.fail { border-color: #b00; } p.verdict.pass { border-color: #070; }
+p.verdict.incomplete, p.verdict.uncertain { border-color: #b60; }
+p.caution { border-left: 4px solid #c60; padding-left: 0.6em; }
+p.made { color: #555; font-size: 0.85em; }
+table.prov th { background: #f4f4f4; width: 14em; }
+figure { margin: 0.6em 0; } figure img { max-width: 100%; }
+@media print { body { max-width: none; margin: 0; } h2 { break-after: avoid; } figure, table { break-inside: avoid; } }
+"""
