@@ -19,7 +19,24 @@ from dataclasses import dataclass
 from typing import Any, overload
 
 from spurplan.errors import LineupError, UnitError
-from spurplan.output.files import file_kind  # what a st_mode is, for messages
+
+_KINDS = (
+    (stat.S_ISDIR, "a folder"),
+    (stat.S_ISCHR, "a character device"),
+    (stat.S_ISBLK, "a block device"),
+    (stat.S_ISFIFO, "a named pipe (FIFO)"),
+    (stat.S_ISSOCK, "a socket"),
+    (stat.S_ISLNK, "a symbolic link"),
+)
+
+
+def file_kind(mode: int) -> str:
+    """What a ``st_mode`` is, in words for messages ("a named pipe (FIFO)", "a folder" ...).
+
+    Readers (here) and writers (:mod:`spurplan.output.files`) name what they refuse alike.
+    """
+    return next((name for test, name in _KINDS if test(mode)), "not a regular file")
+
 
 # Limits on what spurplan reads (README, "Limits").  The largest shipped rule file is
 # 8 kB; 1 MiB is over a hundred times that and parses in about a second even when it

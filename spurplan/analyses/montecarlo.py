@@ -38,12 +38,12 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.analyses.check import evaluate
-from spurplan.engine.products import labels, mixing_vectors, product_freqs_hz
 from spurplan.engine.result import Result
 from spurplan.engine.torus import propagate
 from spurplan.errors import LineupError, UnitError, YieldError  # YieldError: re-exported (lives in errors.py)
 from spurplan.fields import Fields, _did_you_mean
 from spurplan.model.ladders import ladder_s21
+from spurplan.model.products import labels, mixing_vectors, product_freqs_hz
 from spurplan.model.stages import Amplifier, Attenuator, Filter, Mixer
 from spurplan.model.stages.amplifier import sampled_model
 from spurplan.units import parse_gain_db

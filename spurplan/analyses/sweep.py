@@ -16,9 +16,9 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.analyses.check import bands_at, check, evaluate, require_mask
-from spurplan.engine.products import labels
 from spurplan.errors import LineupError, SweepError, UnitError  # re-exported (lives in errors.py)
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER, MAX_CHANNEL_FILE_BYTES, read_text_file
+from spurplan.model.products import labels
 
 if TYPE_CHECKING:  # annotations only (the sweeps take a loaded lineup)
     from spurplan.model.lineup import Lineup

@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from spurplan.engine.products import orders, tone_index
+from spurplan.model.products import orders, tone_index
 from spurplan.units import vpeak_to_dbm
 
 # Frequencies closer than this (Hz) are one physical frequency.

@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.engine.node_table import node_levels
-from spurplan.engine.products import label, labels, orders, product_index
+from spurplan.model.products import label, labels, orders, product_index
 from spurplan.units import ratio_db, vpeak_to_dbm
 
 if TYPE_CHECKING:  # annotations only: lineup imports the engine, which result must not load

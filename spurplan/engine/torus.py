@@ -1,7 +1,7 @@
 """The spectral engine: exact multi-tone propagation on the K-torus.
 
 The signal at any node is ``x(theta) = sum_m Re(X_m exp(j m . theta))`` over the
-canonical mixing vectors ``m`` (see :mod:`spurplan.engine.products`); ``X_m`` is the complex
+canonical mixing vectors ``m`` (see :mod:`spurplan.model.products`); ``X_m`` is the complex
 peak phasor in volts.  Treating the K tone phases as independent coordinates
 (multi-dimensional frequency mapping, as in the harmonic-balance literature) makes a
 memoryless nonlinearity a pointwise map on a K-dimensional grid, and a K-dimensional
@@ -28,14 +28,16 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.fft as sfft
 
-# Largest grid (points per batch element) the adaptive search may reach, and the
-# largest array (points) evaluated at once; batches are chunked to respect it.
-MAX_GRID_POINTS = 2**22
+from spurplan.model.torus_grid import (  # re-exported: the engine's grid rules
+    CONVERGENCE_FLOOR,
+    CONVERGENCE_RTOL,
+    MAX_GRID_POINTS,
+    alias_free_grid,
+    torus_coefficients,
+)
+
+# The largest array (points) evaluated at once; batches are chunked to respect it.
 _CHUNK_POINTS = 2**22
-CONVERGENCE_RTOL = 1e-4
-# Coefficients this far below the strongest one (amplitude ratio, -220 dB) only need
-# absolute accuracy: a product at -150 dBc is then still right to 0.001 dB.
-CONVERGENCE_FLOOR = 1e-11
 
 
 @dataclass(frozen=True)
@@ -77,90 +79,6 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
     with np.errstate(over="ignore", invalid="ignore"):
         out = transfer(samples)
     return torus_coefficients(out, mix), flat.min(axis=1), flat.max(axis=1)
-
-
-def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
-    """Peak phasors (B, P) of the canonical products in real torus samples (B, N, ..., N).
-
-    Parameters
-    ----------
-    samples : ndarray, real, shape (B, N, ..., N)
-        The signal (V) sampled on a K-dimensional torus grid of N points per axis, one axis
-        per base tone.
-    mix : ndarray of int, shape (P, K)
-        Canonical mixing vectors to read.
-
-    Returns
-    -------
-    ndarray, complex, shape (B, P)
-        Peak phasor (V) of each product: twice the forward-normalised DFT coefficient.
-    """
-    k = mix.shape[1]
-    n = samples.shape[1]
-    out = sfft.rfftn(samples, axes=tuple(range(1, k + 1)), norm="forward")
-    # rfftn keeps last-axis indices 0 .. n//2: read m directly where its last entry
-    # is >= 0, else read -m and conjugate.
-    direct = mix[:, -1] >= 0
-    src = np.where(direct[:, None], mix, -mix)
-    idx = (*tuple(src[:, i] % n for i in range(k - 1)), src[:, -1])
-    coeff = out[(slice(None), *idx)]
-    return 2.0 * np.where(direct[None, :], coeff, np.conj(coeff))
-
-
-def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, n: int) -> np.ndarray:
-    """Analytic signal on the torus: ``sum X_m exp(j m . theta)`` over positive frequencies.
-
-    Each product enters once, at its positive frequency (the conjugate phasor at
-    ``-m`` where ``m . f < 0``), so the real part is the signal and the imaginary part
-    its Hilbert transform.  Returns complex samples (B, N, ..., N).
-
-    Parameters
-    ----------
-    x_phasors : ndarray, complex, shape (B, P)
-        Peak phasors (V) of the canonical products ``mix``.
-    mix : ndarray of int, shape (P, K)
-        Canonical mixing vectors.
-    freqs_hz : ndarray, shape (B, P)
-        Signed product frequencies (Hz); only their signs are used.
-    n : int
-        Grid points per torus axis.
-
-    Returns
-    -------
-    ndarray, complex, shape (B, N, ..., N)
-        The analytic signal (V) on the grid.
-    """
-    batch = x_phasors.shape[0]
-    k = mix.shape[1]
-    grid = np.zeros((batch,) + (n,) * k, dtype=complex)
-    positive = freqs_hz >= 0
-    for sign, take in ((1, positive), (-1, ~positive)):
-        vals = np.where(take, x_phasors if sign > 0 else np.conj(x_phasors), 0.0)
-        idx: tuple[slice | np.ndarray, ...] = (slice(None), *((sign * mix[:, i]) % n for i in range(k)))
-        grid[idx] += vals
-    return sfft.ifftn(grid, axes=tuple(range(1, k + 1)), norm="forward")
-
-
-def alias_free_grid(degree: int, m_in: int, m_keep: int) -> int:
-    """Smallest fast FFT length that keeps the kept products free of aliases.
-
-    Parameters
-    ----------
-    degree : int
-        Polynomial degree D of the transfer (an assumed degree for other models).
-    m_in : int
-        Largest ``|m_k|`` of any mixing vector present at the input.
-    m_keep : int
-        Largest ``|m_k|`` of the mixing vectors kept at the output.
-
-    Returns
-    -------
-    int
-        Grid points per torus axis, at least ``max(D m_in + m_keep + 1, 2 m_keep + 1)``.
-    """
-    # D m_in + m_keep + 1 keeps kept indices alias-free; 2 m_keep + 1 keeps +m and -m
-    # apart, so every kept index can be read from the half-spectrum of rfftn.
-    return sfft.next_fast_len(max(degree * m_in + m_keep + 1, 2 * m_keep + 1))
 
 
 def apply_memoryless(

@@ -24,10 +24,10 @@ from pathlib import Path
 from typing import cast
 
 from spurplan.analyses.montecarlo import Tolerance, Tolerances, read_corners, read_tolerance
-from spurplan.engine import torus as engine
 from spurplan.errors import LineupError
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER, Fields, Within, read_toml
 from spurplan.io.mask_files import read_mask
+from spurplan.io.touchstone import read_touchstone
 from spurplan.model.ladders import BEYOND_POLICIES
 from spurplan.model.lineup import (
     COMBINE_MODES,
@@ -41,6 +41,7 @@ from spurplan.model.lineup import (
     reference_carrier_index,
 )
 from spurplan.model.stages import KINDS, LoadContext
+from spurplan.model.torus_grid import MAX_GRID_POINTS, alias_free_grid
 from spurplan.units import (
     format_freq,
     parse_angle_rad,
@@ -133,7 +134,11 @@ def from_dict(
     analysis = _analysis(_table(doc, "analysis", name), name)
     reference = carriers[reference_carrier_index(carriers)]
     context = LoadContext(
-        r_ohm=r_ohm, base_dir=base_dir, beyond_data=analysis.beyond_data, ref_freq_hz=reference.freq_hz
+        r_ohm=r_ohm,
+        base_dir=base_dir,
+        beyond_data=analysis.beyond_data,
+        ref_freq_hz=reference.freq_hz,
+        touchstone_reader=read_touchstone,
     )
     stages = []
     spreads: list[Tolerance] = []
@@ -345,13 +350,13 @@ def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
         max(abs(n) + m for m, n, _ in s.transfer.terms) for s in stages if hasattr(s.transfer, "terms")
     ]
     degree = max(degrees, default=1)
-    return engine.alias_free_grid(degree, max_order, max_order) ** n_tones, degree
+    return alias_free_grid(degree, max_order, max_order) ** n_tones, degree
 
 
 def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
     m = analysis.max_order
     points, degree = grid_points(stages, n_tones, m)
-    if points > engine.MAX_GRID_POINTS:
+    if points > MAX_GRID_POINTS:
         raise LineupError(
             f"{analysis.max_order}: {n_tones} tones to order {m} with degree-{degree} stages needs "
             f"{points:.3g} grid points; expected a lower max_order",

@@ -33,11 +33,20 @@ frequency is not above the last network frequency); they are counted, not read.
 
 from __future__ import annotations
 
+import re
+import warnings
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
-from spurplan.errors import TouchstoneFault  # re-exported (lives in errors.py)
+from spurplan.errors import LineupError, TouchstoneFault  # TouchstoneFault re-exported (lives in errors.py)
+from spurplan.fields import existing_file, read_text_file
+from spurplan.model.ladders import S_FLOOR_DB, SMatrixTable, SParameterTable
+
+if TYPE_CHECKING:
+    from spurplan.fields import Fields
+    from spurplan.model.stages.base import LoadContext
 
 UNITS_HZ = {"hz": 1.0, "khz": 1e3, "mhz": 1e6, "ghz": 1e9}
 FORMATS = ("ma", "db", "ri")
@@ -474,3 +483,151 @@ def _complex(pairs: np.ndarray, names: list[str], form: str) -> np.ndarray:
     for c, name in enumerate(names):
         s[:, int(name[1]) - 1, int(name[2]) - 1] = values[:, c]
     return s
+
+
+# |S21| above this (dB) in a filter file is not a passive filter.
+_PASSIVE_SLACK_DB = 0.5
+
+
+def read_touchstone(fields: Fields, context: LoadContext):
+    """Read a 2-port Touchstone file for a stage; returns (S21 table, S lookup, notes).
+
+    Parameters
+    ----------
+    fields : Fields
+        Reader of the stage's table: ``touchstone`` (file name, relative to the lineup's
+        folder), ``input_port`` (1 or 2) and ``kind``.
+    context : LoadContext
+        Gives the lineup's folder, the system impedance (ohm) the file must be referred
+        to, and the policy beyond the file's frequency range.
+
+    Returns
+    -------
+    tuple of (SParameterTable, S-matrix table, list of str)
+        The S21 lookup, the full 2-port S lookup (frequencies in Hz), and notes to show
+        (scikit-rf's warnings, noise floor, gain above a passive filter's).
+
+    Raises
+    ------
+    LineupError
+        Naming the file and field when the file is missing, unreadable, not a 2-port, at
+        another impedance, or holds non-finite or unordered data.
+    """
+    rel = fields.raw("touchstone")
+    if not isinstance(rel, str) or not rel.strip():
+        raise fields.error("touchstone", f"{rel!r}: expected a file name such as 'filter.s2p'")
+    port = fields.raw("input_port", 1)
+    if port not in (1, 2) or isinstance(port, bool):
+        raise fields.error("input_port", f"{port!r}: expected 1 or 2")
+    path = existing_file(context.base_dir, rel, fields, "touchstone")
+    layout = _precheck_touchstone(path, rel, fields, port)
+    import skrf
+
+    notes = []
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            net = skrf.Network(str(path))
+    except Exception as exc:  # skrf raises many kinds on corrupt files
+        first = str(exc).splitlines()[0] if str(exc) else exc.__class__.__name__
+        raise fields.error("touchstone", f"{rel!r}: cannot be read as Touchstone ({first})") from None
+    notes += [f"{rel}: {w.message}" for w in caught]
+    if net.nports != 2:
+        raise fields.error("touchstone", f"{rel!r} has {net.nports} port(s): expected a 2-port file (.s2p)")
+    z0 = np.asarray(net.z0)
+    if not np.allclose(z0, context.r_ohm, rtol=1e-6, atol=0):
+        raise fields.error(
+            "touchstone",
+            f"{rel!r} is referred to {np.unique(np.round(z0.real, 6))} ohm: expected {context.r_ohm:g} ohm "
+            "(the lineup impedance)",
+        )
+    f = net.f
+    s = net.s
+    if len(f) < 2 or not np.all(np.diff(f) > 0):
+        raise fields.error("touchstone", f"{rel!r}: expected at least 2 strictly increasing frequencies")
+    if not np.all(np.isfinite(s)):
+        raise fields.error("touchstone", f"{rel!r}: contains NaN or infinite S-parameters")
+    differs = _same_as_read(layout, f, s)
+    if differs is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {differs}")
+    zero = layout.zero_fault()
+    if zero is not None:
+        raise fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {zero}")
+    notes += _floor_note(rel, layout)
+    if port == 2:
+        s = s[:, ::-1, ::-1]
+    s21 = s[:, 1, 0]
+    with np.errstate(divide="ignore"):
+        peak = float(np.max(20 * np.log10(np.abs(s21))))
+    if peak > _PASSIVE_SLACK_DB and fields.raw("kind") == "filter":
+        notes.append(f"{rel}: |S21| reaches {peak:+.2f} dB, more than a passive filter can")
+    beyond = context.beyond_data
+    return SParameterTable.from_s21(f, s21, beyond), SMatrixTable(f, s, beyond), notes
+
+
+# A Touchstone file larger than this is not a filter measurement (a 2-port at 100,000
+# points is about 10 MB): refused before scikit-rf reads it.
+TOUCHSTONE_MAX_BYTES = 32 * 1024 * 1024
+
+
+def _precheck_touchstone(path, rel: str, fields: Fields, input_port: int = 1) -> Layout:
+    """Read the file as data first (:mod:`spurplan.io.touchstone`); a located error otherwise.
+
+    Returns what was read, so that scikit-rf's reading can be compared with it.
+    """
+
+    def bad(message: str):
+        return fields.error("touchstone", f"{rel[:200]!r}: cannot be read as Touchstone: {message}")
+
+    try:
+        text = read_text_file(path, "a Touchstone text file", TOUCHSTONE_MAX_BYTES)
+    except LineupError as exc:
+        raise bad(exc.message) from None
+    m = re.search(r"\.s(\d+)p$", str(path).lower())
+    if m is None:
+        raise bad("expected a file name ending in .s2p")
+    try:
+        return check_text(text, int(m.group(1)), input_port)
+    except TouchstoneFault as exc:
+        raise bad(str(exc)) from None
+
+
+def _same_as_read(layout: Layout, f: np.ndarray, s: np.ndarray) -> str | None:
+    """Where scikit-rf's reading differs from the pre-check's (``None``: it agrees).
+
+    Points, frequencies and every S-parameter (``s``: ``(n, 2, 2)`` as read, before
+    any port swap) must agree to 1e-9 relative (values under 1e-12, -240 dB, count
+    as equal), so that a silent misreading (a data order mixed up, rows skipped or
+    added, memory never written) is an error, not a number.
+    """
+    if len(f) != len(layout.freq_hz):
+        return f"scikit-rf read {len(f)} points where the file holds {len(layout.freq_hz)}"
+    off = ~np.isclose(f, layout.freq_hz, rtol=1e-9, atol=0)
+    if off.any():
+        k = int(np.argmax(off))
+        return f"scikit-rf read {f[k]:g} Hz at line {layout.lines[k]}, where the file gives {layout.freq_hz[k]:g} Hz"
+    if layout.s is None:
+        return None
+    off = ~np.isclose(s, layout.s, rtol=1e-9, atol=1e-12)
+    if off.any():
+        k, i, j = (int(x[0]) for x in np.nonzero(off))
+        return (
+            f"scikit-rf read S{i + 1}{j + 1} = {s[k, i, j]:.6g} at line {layout.lines[k]}, "
+            f"where the file gives {layout.s[k, i, j]:.6g}"
+        )
+    return None
+
+
+def _floor_note(rel: str, layout: Layout) -> list[str]:
+    """A note for forward transmission below :data:`S_FLOOR_DB` (held there by the lookup)."""
+    if layout.forward_db is None:
+        return []
+    low = layout.forward_db < S_FLOOR_DB
+    if not low.any():
+        return []
+    k = int(np.argmin(layout.forward_db))
+    return [
+        f"{rel}: |{layout.forward}| below {S_FLOOR_DB:g} dB at {int(low.sum())} point(s) (lowest "
+        f"{layout.forward_db[k]:.4g} dB at line {layout.lines[k]}): held at {S_FLOOR_DB:g} dB, "
+        "less rejection than the file states, never more"
+    ]

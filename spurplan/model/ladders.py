@@ -553,3 +553,23 @@ class SParameterTable:
             lo, hi = self.data_range_hz
             h = np.where((f < lo) | (f > hi), 1.0 + 0j, h)
         return h
+
+
+@dataclass(frozen=True)
+class SMatrixTable:
+    """All four S-parameters of a file, interpolated like S21 (for linear sections)."""
+
+    freq_hz: np.ndarray
+    s: np.ndarray
+    beyond: str
+
+    def __call__(self, freq_hz) -> np.ndarray:
+        f = np.asarray(freq_hz, dtype=float)
+        out = np.empty((*f.shape, 2, 2), dtype=complex)
+        for i in range(2):
+            for j in range(2):
+                out[..., i, j] = SParameterTable.from_s21(self.freq_hz, self.s[:, i, j], self.beyond)(f)
+        if self.beyond == "no_rejection":
+            outside = (f < self.freq_hz[0]) | (f > self.freq_hz[-1])
+            out[outside] = np.array([[0, 1], [1, 0]], dtype=complex)
+        return out

@@ -12,16 +12,11 @@ from typing import TYPE_CHECKING, Literal
 
 import numpy as np
 
-from spurplan.engine import torus as engine
-from spurplan.engine.products import (
+from spurplan.errors import LineupError
+from spurplan.model.products import (
     default_tone_names,
-    label,
-    mixing_vectors,
-    product_freqs_hz,
     product_index,
 )
-from spurplan.engine.sections import with_sections
-from spurplan.errors import LineupError, OutOfDataRange
 from spurplan.units import dbm_to_vpeak
 
 if TYPE_CHECKING:  # annotations only: masks and Monte Carlo load when a lineup uses them
@@ -336,45 +331,8 @@ class Lineup:
         -------
         Result
         """
-        from spurplan.engine.result import Result
+        # The one upward door of the model wing besides presentation: computing is the
+        # engine's (spurplan.engine.run), imported on use so the model stays below it.
+        from spurplan.engine.run import run
 
-        mix = mixing_vectors(self.n_tones, self.analysis.max_order)
-        if tone_freqs_hz is None:
-            tone_freqs_hz = self.tone_freqs_hz
-        tones = np.atleast_2d(np.asarray(tone_freqs_hz, dtype=float))
-        offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
-        batch = max(len(tones), len(offset))
-        tones = np.broadcast_to(tones, (batch, self.n_tones))
-        x_in = self.input_phasors(mix, np.broadcast_to(offset, (batch,)))
-        freqs = product_freqs_hz(mix, tones)
-        stages = self.stages
-        if self.analysis.linear_sections == "cascade":
-            stages = with_sections(stages, self.r_ohm)
-        prop = engine.propagate(stages, x_in, mix, freqs, self.stage_reference_hz(tones))
-        if self.analysis.beyond_data == "error":
-            self._raise_beyond_data(prop, mix, freqs)
-        return Result(lineup=self, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)
-
-    def _raise_beyond_data(self, prop, mix: np.ndarray, freqs: np.ndarray) -> None:
-        """The default policy: a product outside a stage's data range is an error."""
-        hits = np.argwhere(prop.beyond)
-        if hits.size == 0:
-            return
-        # Report the lowest-order product of the first stage concerned.
-        first_stage = hits[:, 0].min()
-        hits = hits[hits[:, 0] == first_stage]
-        order = np.abs(mix[hits[:, 2]]).sum(axis=1)
-        s, b, p = hits[np.argmin(order)]
-        f = float(freqs[b, p])
-        stage = self.stages[s]
-        lo, hi = stage.data_range_hz
-        raise OutOfDataRange(
-            stage=stage.name,
-            freq_hz=abs(f),
-            data_start_hz=lo,
-            data_stop_hz=hi,
-            product=label(mix[p] * (1 if f >= 0 else -1), self.tone_names),
-            hint='set [analysis] beyond_data = "hold" or "no_rejection" to proceed, or extend the data',
-            file=None if self.source is None else str(self.source),
-            data_file=getattr(stage, "source", None),
-        )
+        return run(self, drive_offset_db, tone_freqs_hz)

@@ -35,25 +35,12 @@ import tempfile
 from pathlib import Path
 
 from spurplan.errors import OutputError  # re-exported (lives in errors.py)
+from spurplan.fields import file_kind
 
 # Errors of open(O_TMPFILE) that mean "not supported here" (open(2) man page): the
 # kernel does not know the flag (EISDIR: it sees O_DIRECTORY with O_WRONLY) or the
 # file system does not support it (EOPNOTSUPP); fall back to a named file then.
 _NO_TMPFILE = {errno.EISDIR, errno.EOPNOTSUPP, errno.EINVAL, getattr(errno, "ENOTSUP", errno.EOPNOTSUPP)}
-
-_KINDS = (
-    (stat.S_ISDIR, "a folder"),
-    (stat.S_ISCHR, "a character device"),
-    (stat.S_ISBLK, "a block device"),
-    (stat.S_ISFIFO, "a named pipe (FIFO)"),
-    (stat.S_ISSOCK, "a socket"),
-    (stat.S_ISLNK, "a symbolic link"),
-)
-
-
-def file_kind(mode: int) -> str:
-    """What a ``st_mode`` is, in words for messages ("a named pipe (FIFO)", "a folder" ...)."""
-    return next((name for test, name in _KINDS if test(mode)), "not a regular file")
 
 
 def _reason(exc: OSError) -> str:

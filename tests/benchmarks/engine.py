@@ -36,7 +36,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/: the refe
 
 from reference import Generating, Tone, exact_length, simulate, zone_weight
 
-from spurplan.engine.products import mixing_vectors
+from spurplan.model.products import mixing_vectors
 from spurplan.io.lineup_file import from_dict
 
 FLOOR_DBC = -150.0

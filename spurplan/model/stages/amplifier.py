@@ -516,9 +516,7 @@ class Amplifier:
         fields.raw("touchstone")
         if not fields.has("touchstone"):
             return amp
-        from spurplan.model.stages.filter import read_touchstone
-
-        table, _, notes = read_touchstone(fields, context)
+        table, _, notes = context.read_touchstone(fields)
         lo, hi = table.data_range_hz
         if not lo <= context.ref_freq_hz <= hi:
             raise fields.error(

@@ -2,9 +2,10 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING, Protocol
+from typing import TYPE_CHECKING, Any, Protocol
 
 import numpy as np
 
@@ -31,12 +32,36 @@ class LoadContext:
         Frequency of the reference carrier (the strongest; of equal powers the higher
         frequency, :func:`spurplan.model.lineup.reference_carrier_index`): where amplifier
         figures are referred.
+    touchstone_reader : callable or None
+        ``reader(fields, context) -> (S21 table, S lookup, notes)``: reads the file a
+        stage's ``touchstone`` key names.  The input wing passes
+        :func:`spurplan.io.touchstone.read_touchstone`; stage kinds stay free of file
+        reading (the model wing imports no reader).
     """
 
     r_ohm: float
     base_dir: Path
     beyond_data: str = "error"
     ref_freq_hz: float = 0.0
+    touchstone_reader: Callable[[Fields, LoadContext], Any] | None = None
+
+    def read_touchstone(self, fields: Fields):
+        """The Touchstone file of a stage's table, read by :attr:`touchstone_reader`.
+
+        Parameters
+        ----------
+        fields : Fields
+            Reader of the stage's table (``touchstone``, ``input_port``, ``kind``).
+
+        Returns
+        -------
+        tuple
+            ``(SParameterTable, SMatrixTable, list of str)``: the S21 lookup, the full
+            2-port lookup and notes to show.
+        """
+        if self.touchstone_reader is None:
+            raise fields.error("touchstone", "no Touchstone reader in this context: load the lineup file")
+        return self.touchstone_reader(fields, self)
 
 
 class Stage(Protocol):

@@ -88,7 +88,10 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from spurplan.engine.torus import (
+from spurplan.fields import CARRIER_FREQ, Fields, Within
+from spurplan.model.nonlinear import per_sample
+from spurplan.model.stages.base import LoadContext
+from spurplan.model.torus_grid import (
     CONVERGENCE_FLOOR,
     CONVERGENCE_RTOL,
     MAX_GRID_POINTS,
@@ -96,9 +99,6 @@ from spurplan.engine.torus import (
     torus_analytic,
     torus_coefficients,
 )
-from spurplan.fields import CARRIER_FREQ, Fields, Within
-from spurplan.model.nonlinear import per_sample
-from spurplan.model.stages.base import LoadContext
 from spurplan.units import dbm_to_vpeak, parse_dbc, parse_freq_hz, parse_gain_db, parse_power_dbm
 
 # Matched against the stripped label with fullmatch.  Each run of spaces can go to one
