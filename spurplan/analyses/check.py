@@ -432,7 +432,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         out["limit_dbm"].append(float(ev.limit_dbm[0, g]) if rule else None)
         out["margin_db"].append(float(ev.margin_db[0, g]) if rule else None)
         out["pass"].append(bool(ev.margin_db[0, g] >= 0) if rule else None)
-        out["rule"].append(f"{rule.origin}: {rule.name}" if rule else None)
+        out["rule"].append(rule.label if rule else None)
         out["limit_form"].append(rule.describe if rule else None)
         out["rbw_hz"].append(rule.rbw_hz if rule else None)
         out["rule_source"].append(f"{rule.source} [{rule.status}]" if rule else None)

@@ -38,12 +38,11 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.analyses.check import evaluate
-from spurplan.engine.result import Result
-from spurplan.engine.torus import propagate
+from spurplan.engine.run import run
 from spurplan.errors import LineupError, UnitError, YieldError  # YieldError: re-exported (lives in errors.py)
 from spurplan.fields import Fields, _did_you_mean
 from spurplan.model.ladders import ladder_s21
-from spurplan.model.products import labels, mixing_vectors, product_freqs_hz
+from spurplan.model.products import labels
 from spurplan.model.stages import Amplifier, Attenuator, Filter, Mixer
 from spurplan.model.stages.amplifier import sampled_model
 from spurplan.units import parse_gain_db
@@ -459,37 +458,21 @@ def evaluate_batch(
     """
     deltas = draw(tolerances, n, seed, batch)
     corners = tolerances.corners or (None,)
-    tones = np.atleast_2d(
-        lineup.tone_freqs_hz if channels_hz is None else _channel_tones(lineup, channels_hz)
-    )
+    tones = np.atleast_2d(lineup.tone_freqs_hz if channels_hz is None else lineup.tuned_tones_hz(channels_hz))
     worst = np.full(n, np.inf)
     labels = np.full(n, "", dtype=object)
     rules = np.full(n, "", dtype=object)
-    mix = mixing_vectors(lineup.n_tones, lineup.analysis.max_order)
     for corner in corners:
         stages = sampled_stages(lineup, deltas, corner, n)
         for t in tones:
-            x_in = lineup.input_phasors(mix, np.zeros(n))
-            freqs = product_freqs_hz(mix, np.broadcast_to(t, (n, len(t))))
-            tone_b = np.broadcast_to(t, (n, len(t)))
-            prop = propagate(stages, x_in, mix, freqs, lineup.stage_reference_hz(tone_b))
-            result = Result(
-                lineup=lineup,
-                mix=mix,
-                freqs_hz=freqs,
-                propagation=prop,
-                tone_freqs_hz=np.broadcast_to(t, (n, len(t))),
-            )
+            result = run(lineup, tone_freqs_hz=np.broadcast_to(t, (n, len(t))), stages=stages)
             levels = result.levels(None, combine)
             ev = evaluate(lineup, result, levels)
             w = ev.worst_margin_db
             slot = ev.worst_slot
             names = _slot_names(result, levels, slot)
             rule = [
-                ""
-                if ev.rule[b, slot[b]] < 0
-                else f"{ev.rules[ev.rule[b, slot[b]]][0].origin}: {ev.rules[ev.rule[b, slot[b]]][0].name}"
-                for b in range(n)
+                "" if ev.rule[b, slot[b]] < 0 else ev.rules[ev.rule[b, slot[b]]][0].label for b in range(n)
             ]
             better = w < worst
             worst = np.where(better, w, worst)
@@ -505,16 +488,6 @@ def _slot_names(result, levels, slot: np.ndarray) -> np.ndarray:
     rep = levels.rep[rows, slot]
     sign = levels.sign[rows, slot]
     return np.array([plus[r] if s > 0 else minus[r] for r, s in zip(rep, sign, strict=True)], dtype=object)
-
-
-def _channel_tones(lineup, channels_hz) -> np.ndarray:
-    """Base-tone frequencies for each channel (the tuning rule of spurplan.analyses.sweep)."""
-    base = lineup.tone_freqs_hz
-    if lineup.mixers:
-        shift, ref = np.eye(len(base))[0], base[0]
-    else:
-        shift, ref = np.ones(len(base)), base[len(lineup.mixers) + lineup.reference_carrier_index]
-    return base[None, :] + (np.asarray(channels_hz, dtype=float)[:, None] - ref) * shift[None, :]
 
 
 def wilson_interval(passed: int, n: int, z: float = Z_95) -> tuple[float, float]:

@@ -368,7 +368,7 @@ def drive_sweep(
     if status != "fails at the lowest drive" and first_bad.size and first_bad[0] > 0 and ok[first_bad[0] - 1]:
         status = "limited"
         lo, hi = offsets[first_bad[0] - 1], offsets[first_bad[0]]
-        edge = _bisect(lambda x: _worst_at(lineup, x, combine) >= 0, lo, hi, DRIVE_TOL_DB)
+        edge, _ = _bisect(lambda x: _worst_at(lineup, x, combine) >= 0, lo, hi, DRIVE_TOL_DB)
         x_in = nominal + edge
         x_out, limiting = _limiting(lineup, edge, min(edge + DRIVE_TOL_DB, hi), combine)
     elif status == "compliant throughout" and valid.any():
@@ -411,15 +411,20 @@ def _limiting(lineup, ok_offset: float, bad_offset: float, combine) -> tuple[flo
     return float(out[0]), worst
 
 
-def _bisect(good, lo: float, hi: float, tol: float) -> float:
-    """Largest x in [lo, hi] with good(x), given good(lo) and not good(hi)."""
-    while hi - lo > tol:
-        mid = 0.5 * (lo + hi)
+def _bisect(good, good_x: float, bad_x: float, tol: float) -> tuple[float, float]:
+    """The edge between ``good_x`` (``good`` holds) and ``bad_x`` (it does not), to ``tol``.
+
+    Either may be the larger.  Returns the last good and the first bad point found; the
+    drive search keeps the good side (a drive that passes), the channel search the bad
+    one (where a product starts to fail).
+    """
+    while abs(bad_x - good_x) > tol:
+        mid = 0.5 * (good_x + bad_x)
         if good(mid):
-            lo = mid
+            good_x = mid
         else:
-            hi = mid
-    return lo
+            bad_x = mid
+    return good_x, bad_x
 
 
 # Input offsets around the nominal drive searched for a target output (dB).
@@ -553,22 +558,12 @@ def tune_sweep(
         one run may do.
     """
     mask = require_mask(lineup)
-    base = lineup.tone_freqs_hz
     carrier_hz = np.asarray(carrier_hz, dtype=float)
     if carrier_hz.size == 0:
         raise SweepError("no channels: expected at least one carrier frequency")
-    if lineup.mixers:
-        shift = np.zeros(len(base))
-        shift[0] = 1.0
-        ref = base[0]
-    else:
-        shift = np.ones(len(base))
-        ref = base[len(lineup.mixers) + lineup.reference_carrier_index]
-    if np.any(carrier_hz[:, None] + (base - ref)[None, :] * shift <= 0):
+    tones_for = lineup.tuned_tones_hz
+    if np.any(tones_for(carrier_hz) <= 0):
         raise SweepError("a channel puts a tone at or below 0 Hz: expected positive frequencies")
-
-    def tones_for(f):
-        return base[None, :] + (f[:, None] - ref) * shift[None, :]
 
     _check_channels(lineup, carrier_hz, tones_for(carrier_hz))
     if why := work_refusal(lineup, carrier_hz.size, "channels"):
@@ -600,7 +595,7 @@ def tune_sweep(
         rows["freq_hz"].append(float(freq[i, g]))
         rows["label"].append(str(label[i, g]))
         rows["band"].append(bands_at(mask, float(freq[i, g])))
-        rows["rule"].append(None if j < 0 else f"{rules[j][0].origin}: {rules[j][0].name}")
+        rows["rule"].append(None if j < 0 else rules[j][0].label)
         rows["margin_db"].append(None if j < 0 else float(margin[i, g]))
         rows["pass"].append(None if j < 0 else bool(margin[i, g] >= 0))
     failing = _failing_ranges(
@@ -695,17 +690,14 @@ def _fails_at(lineup, name: str, rule_name: str, f_hz: float, tones_for, combine
         j = int(ev.rule[0, g])
         if n == name and j >= 0 and ev.margin_db[0, g] < 0:
             rule = ev.rules[j][0]
-            if f"{rule.origin}: {rule.name}" == rule_name:
+            if rule.label == rule_name:
                 return True
     return False
 
 
 def _bisect_edge(lineup, name, rule, good_hz: float, bad_hz: float, tones_for, combine) -> float:
     """The frequency between a passing and a failing channel where ``name`` starts to fail."""
-    while abs(bad_hz - good_hz) > FREQ_TOL_HZ:
-        mid = 0.5 * (good_hz + bad_hz)
-        if _fails_at(lineup, name, rule, mid, tones_for, combine):
-            bad_hz = mid
-        else:
-            good_hz = mid
-    return bad_hz
+    _, edge_hz = _bisect(
+        lambda f: not _fails_at(lineup, name, rule, f, tones_for, combine), good_hz, bad_hz, FREQ_TOL_HZ
+    )
+    return edge_hz

@@ -23,7 +23,7 @@ if TYPE_CHECKING:
     from spurplan.model.lineup import Lineup
 
 
-def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None) -> Result:
+def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None) -> Result:
     """Compute every product at every stage of ``lineup``.
 
     Parameters
@@ -35,6 +35,11 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None) -> Result:
     tone_freqs_hz : ndarray (B, K) or (K,), optional
         Base-tone frequencies (Hz) per batch element (a tuning sweep), in the order of
         :attr:`Lineup.tone_freqs_hz` (LOs, then carriers); default the lineup's own.
+    stages : sequence of stages, optional
+        Stages to propagate instead of the lineup's own: a Monte Carlo batch's per-sample
+        copies.  They are propagated as given (no linear-section cascade), and the
+        beyond-data policy is left to the nominal run, which
+        :func:`spurplan.analyses.montecarlo.run_yield` makes first.
 
     Returns
     -------
@@ -55,11 +60,13 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None) -> Result:
     tones = np.broadcast_to(tones, (batch, lineup.n_tones))
     x_in = lineup.input_phasors(mix, np.broadcast_to(offset, (batch,)))
     freqs = product_freqs_hz(mix, tones)
-    stages = lineup.stages
-    if lineup.analysis.linear_sections == "cascade":
-        stages = with_sections(stages, lineup.r_ohm)
+    nominal = stages is None
+    if nominal:
+        stages = lineup.stages
+        if lineup.analysis.linear_sections == "cascade":
+            stages = with_sections(stages, lineup.r_ohm)
     prop = propagate(stages, x_in, mix, freqs, lineup.stage_reference_hz(tones))
-    if lineup.analysis.beyond_data == "error":
+    if nominal and lineup.analysis.beyond_data == "error":
         _raise_beyond_data(lineup, prop, mix, freqs)
     return Result(lineup=lineup, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)
 

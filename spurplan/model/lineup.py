@@ -181,6 +181,30 @@ class Lineup:
         ifs = ["IF"] if len(self.carriers) == 1 else [f"IF{k + 1}" for k in range(len(self.carriers))]
         return los + ifs
 
+    def tuned_tones_hz(self, tuned_hz) -> np.ndarray:
+        """Base-tone frequencies (Hz) with the lineup tuned to each of ``tuned_hz``.
+
+        The tuning rule: with mixers, the first LO moves to each frequency (an
+        upconverting transmitter tunes its LO; the IF stays); without, every carrier
+        moves together so that the reference carrier lands on it (their spacing stays).
+
+        Parameters
+        ----------
+        tuned_hz : array_like, shape (B,)
+            The swept frequency (Hz): the first LO's, or the reference carrier's.
+
+        Returns
+        -------
+        ndarray, shape (B, K)
+            Base-tone frequencies (Hz) in the order of :attr:`tone_freqs_hz`.
+        """
+        base = self.tone_freqs_hz
+        if self.mixers:
+            shift, ref = np.eye(len(base))[0], base[0]
+        else:
+            shift, ref = np.ones(len(base)), base[self.reference_carrier_index]
+        return base[None, :] + (np.asarray(tuned_hz, dtype=float)[:, None] - ref) * shift[None, :]
+
     def carrier_vectors(self, node: int | None = None) -> np.ndarray:
         """Mixing vectors (K_c, K) of the carriers at the output of stage ``node``.
 

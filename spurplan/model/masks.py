@@ -92,6 +92,11 @@ class Rule:
     status: str = "user"
     origin: str = "lineup"
 
+    @property
+    def label(self) -> str:
+        """How outputs name the rule: ``"origin: name"`` (``"lineup: 47 CFR 80.211(f)"``)."""
+        return f"{self.origin}: {self.name}"
+
     def holds_for(self, carrier_hz, carrier_dbm):
         """Whether the rule's carrier conditions hold (arrays broadcast: one per batch element).
 
