@@ -69,17 +69,40 @@ class _Group(click.Group):
             click.echo(f"spurplan: error: {exc.format_message()}", err=True)
             sys.exit(2)
         except SpurplanError as exc:
-            # One line, whatever the message holds (a name with a line break, say).
-            click.echo("spurplan: error: " + " ".join(str(exc).split()), err=True)
+            # One line, whatever the message holds (a name with a line break, say); the
+            # library's argument names shown as this command's options.
+            shown = exc.shown(getattr(exc, "options", None))
+            click.echo("spurplan: error: " + " ".join(shown.split()), err=True)
             sys.exit(2)
 
     def invoke(self, ctx):
         # Ctrl-C in a command: click would print an empty line and "Aborted!"; spurplan
         # prints one line (in _main) and exits 130.
+        from spurplan.errors import SpurplanError
+
         try:
             return super().invoke(ctx)
         except KeyboardInterrupt:
             raise _Interrupted() from None
+        except SpurplanError as exc:
+            exc.options = _options_of(self.commands.get(ctx.invoked_subcommand or ""))
+            raise
+
+
+# Library parameters named in errors -> the command's own parameter, where they differ.
+_OPTION_ALIASES = {
+    "remedy": {"path": "write_file", "margin_db": "margin", "at": "at_stage"},
+    "report": {"path": "out_file"},
+}
+
+
+def _options_of(command) -> dict[str, str]:
+    """Library parameter name -> this command's option (``"step"`` -> ``"--step"``)."""
+    if command is None:
+        return {}
+    options = {p.name: p.opts[0] for p in command.params if isinstance(p, click.Option) and p.name}
+    aliases = _OPTION_ALIASES.get(command.name or "", {})
+    return {**options, **{lib: options[opt] for lib, opt in aliases.items() if opt in options}}
 
 
 class _Interrupted(Exception):

@@ -16,11 +16,45 @@ The modules that raise an error re-export its name where it used to live
 
 from __future__ import annotations
 
+import re
+from collections.abc import Mapping
 from dataclasses import dataclass, fields
+
+# A call's argument named in a message: "{@step}" is the parameter ``step``.
+_ARGUMENT = re.compile(r"\{@([A-Za-z_][A-Za-z0-9_]*)\}")
 
 
 class SpurplanError(Exception):
-    """Root of all errors raised for bad input."""
+    """Root of all errors raised for bad input.
+
+    A message about the arguments of a call names each one as ``{@name}``, ``name``
+    being the parameter of the library function (``{@step}``, ``{@margin_db}``).  The
+    library shows the parameter's own name (``str(error)``); the command line shows its
+    option instead (:meth:`shown` with its options), so that no library module needs
+    to know the command line's spelling.
+    """
+
+    def shown(self, names: Mapping[str, str] | None = None) -> str:
+        """The message with each argument named by ``names`` (its own name where absent).
+
+        Parameters
+        ----------
+        names : mapping of str to str, optional
+            Parameter name to the name to show, e.g. ``{"step": "--step"}``.
+
+        Returns
+        -------
+        str
+            The message.
+        """
+        names = names or {}
+        return _ARGUMENT.sub(lambda m: names.get(m.group(1), m.group(1)), self._template())
+
+    def _template(self) -> str:
+        return super().__str__()
+
+    def __str__(self) -> str:
+        return self.shown()
 
 
 class _Fields:
@@ -49,7 +83,7 @@ class UnitError(_Fields, SpurplanError, ValueError):
     expected: str
     hint: str = ""
 
-    def __str__(self) -> str:
+    def _template(self) -> str:
         return f"{self.value!r}: expected {self.expected}{self.hint}"
 
 
@@ -66,7 +100,7 @@ class LineupError(_Fields, SpurplanError, ValueError):
     stage: str | None = None
     field: str | None = None
 
-    def __str__(self) -> str:
+    def _template(self) -> str:
         parts = [p for p in (self.file, self.stage) if p]
         if self.field:
             parts.append(f"field '{self.field}'")
@@ -89,7 +123,7 @@ class OutOfDataRange(_Fields, SpurplanError, ValueError):
     file: str | None = None
     data_file: str | None = None
 
-    def __str__(self) -> str:
+    def _template(self) -> str:
         what = f"product {self.product} at " if self.product else ""
         tail = f"; {self.hint}" if self.hint else ""
         head = f"{self.file}: " if self.file else ""

@@ -13,6 +13,8 @@ import importlib
 import inspect
 import pickle
 import pkgutil
+import re
+from pathlib import Path
 
 import pytest
 from helpers import assert_one_error_line, run_in_process
@@ -160,3 +162,60 @@ def test_missing_data_folder_is_a_resource_error(monkeypatch, tmp_path):
     monkeypatch.setattr(resources, "_PACKAGE", tmp_path / "spurplan")
     with pytest.raises(errors.ResourceError, match="bands/ folder is missing"):
         resources.data_dir("bands")
+
+
+# --- Library messages name parameters; the command line shows its options -------------
+
+
+def test_library_error_names_the_parameter_and_the_cli_its_option(tmp_path):
+    # Rule of this package (DEVELOPERS.md, "Errors"): the library says "step", the
+    # command line "--step"; the value and expectation are the same words in both.
+    from spurplan.analyses.sweep import sweep_points
+
+    with pytest.raises(errors.SweepError) as caught:
+        sweep_points(0.0, 1.0, 0.0, "drive", "dB")
+    assert str(caught.value).startswith("step 0 dB: expected a step > 0")
+    assert "--" not in str(caught.value)
+    assert caught.value.shown({"step": "--step"}).startswith("--step 0 dB: expected a step > 0")
+    again = pickle.loads(pickle.dumps(caught.value))  # errors come back from Dask workers
+    assert again.shown({"step": "--step"}) == caught.value.shown({"step": "--step"})
+    code, _, stderr, _, _ = run_in_process(
+        ["drive", "--start", "-10 dBm", "--stop", "0 dBm", "--step", "0 dB"]
+    )
+    assert code == 2
+    assert "--step 0 dB: expected a step > 0" in stderr
+
+
+def test_no_library_module_spells_a_command_line_option():
+    # Every option of every command, as click declares it; no module but the CLI may
+    # write one in a message (docstrings, which document the CLI, are not messages).
+    import ast
+
+    from spurplan.cli import main
+
+    spelled = {
+        o
+        for c in main.commands.values()
+        for p in c.params
+        for o in getattr(p, "opts", ())
+        if o.startswith("-")
+    }
+    package = Path(spurplan.__file__).parent
+    found = []
+    for path in package.rglob("*.py"):
+        if path.name == "cli.py":
+            continue
+        tree = ast.parse(path.read_text(encoding="utf-8"))
+        docstrings = {
+            id(node.body[0].value)
+            for node in ast.walk(tree)
+            if isinstance(node, (ast.Module, ast.ClassDef, ast.FunctionDef, ast.AsyncFunctionDef))
+            and node.body
+            and isinstance(node.body[0], ast.Expr)
+            and isinstance(node.body[0].value, ast.Constant)
+        }
+        for node in ast.walk(tree):
+            if isinstance(node, ast.Constant) and isinstance(node.value, str) and id(node) not in docstrings:
+                words = set(re.findall(r"(?<![\w-])--?[a-z][\w-]*", node.value))
+                found += [f"{path.name}:{node.lineno}: {w}" for w in words & spelled]
+    assert found == []

@@ -104,15 +104,15 @@ def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
         argument is out of range.
     """
     if isinstance(samples, bool) or not isinstance(samples, (int, np.integer)):
-        raise YieldError(f"--samples {samples!r}: expected a whole number from 1 to {MAX_SAMPLES}")
+        raise YieldError(f"{{@samples}} {samples!r}: expected a whole number from 1 to {MAX_SAMPLES}")
     if not 1 <= samples <= MAX_SAMPLES:
-        raise YieldError(f"--samples {samples}: expected a whole number from 1 to {MAX_SAMPLES}")
+        raise YieldError(f"{{@samples}} {samples}: expected a whole number from 1 to {MAX_SAMPLES}")
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or not 0 <= seed <= MAX_SEED:
         shown = (
             f"{seed}" if isinstance(seed, (int, np.integer)) and abs(int(seed)) < 10**30 else f"{seed!r}"[:40]
         )
         raise YieldError(
-            f"--seed {shown}: expected a whole number from 0 to 2^64 - 1 (numpy seeds are non-negative)"
+            f"{{@seed}} {shown}: expected a whole number from 0 to 2^64 - 1 (numpy seeds are non-negative)"
         )
     channels, corners = max(1, n_channels), max(1, n_corners)
     points = int(samples) * channels * corners
@@ -130,14 +130,14 @@ def check_scheduler_address(address) -> str:
     """``address`` as a dask scheduler address (``tcp://HOST:PORT``), or a YieldError."""
     expected = "expected a dask scheduler address such as tcp://127.0.0.1:8786"
     if not isinstance(address, str):
-        raise YieldError(f"--scheduler {address!r}: {expected}")
+        raise YieldError(f"{{@scheduler}} {address!r}: {expected}")
     text = address.strip()
     shown = repr(text[:60] + ("..." if len(text) > 60 else ""))
     m = _SCHEDULER_ADDRESS.fullmatch(text) if len(text) <= 300 else None
     if m is None:
-        raise YieldError(f"--scheduler {shown}: {expected}")
+        raise YieldError(f"{{@scheduler}} {shown}: {expected}")
     if not 1 <= int(m.group(2)) <= 65535:
-        raise YieldError(f"--scheduler {shown}: {expected} (a port from 1 to 65535)")
+        raise YieldError(f"{{@scheduler}} {shown}: {expected} (a port from 1 to 65535)")
     return text if "://" in text else f"tcp://{text}"
 
 
@@ -616,7 +616,7 @@ def run_yield(
     if why := work_refusal(lineup, points, "evaluated points"):
         raise YieldError(why)
     if scheduler is not None and workers is not None:
-        raise YieldError("--scheduler and --workers: expected one of them, not both")
+        raise YieldError("{@scheduler} and {@workers}: expected one of them, not both")
     if scheduler is not None:
         scheduler = check_scheduler_address(scheduler)
     if workers is not None and (
@@ -624,7 +624,7 @@ def run_yield(
         or not isinstance(workers, (int, np.integer))
         or not 1 <= workers <= MAX_WORKERS
     ):
-        raise YieldError(f"--workers {workers!r}: expected a whole number from 1 to {MAX_WORKERS}")
+        raise YieldError(f"{{@workers}} {workers!r}: expected a whole number from 1 to {MAX_WORKERS}")
     if lineup.mask is None:
         raise LineupError("no emission limits: expected a [mask] table", file=str(lineup.source))
     # The nominal run first: it applies the lineup's beyond-data policy (an error by
@@ -681,7 +681,7 @@ def _on_dask(jobs, scheduler, workers, progress):
         from dask.distributed import Client, LocalCluster
     except ImportError:
         raise LineupError(
-            "dask.distributed is not installed: expected pip install 'spurplan[dask]' for --scheduler/--workers"
+            "dask.distributed is not installed: expected pip install 'spurplan[dask]' for {@scheduler}/{@workers}"
         ) from None
     cluster = client = None
     with _quiet_dask_logs():
@@ -862,14 +862,14 @@ def _probe_scheduler(address: str, timeout_s: float = SCHEDULER_TIMEOUT_S) -> No
         reply = asyncio.run(asyncio.wait_for(identity(), timeout_s))
     except TimeoutError:
         raise YieldError(
-            f"--scheduler {address}: no dask scheduler answered within {timeout_s:g} s: "
+            f"{{@scheduler}} {address}: no dask scheduler answered within {timeout_s:g} s: "
             "expected the address of a running scheduler"
         ) from None
     except Exception as exc:  # anything the peer sends or does is data, not a crash
         raise YieldError(_cannot_use(address, exc)) from None
     if not (isinstance(reply, dict) and reply.get("type") == "Scheduler"):
         raise YieldError(
-            f"--scheduler {address}: answered, but not as a dask scheduler: expected the address of a running scheduler"
+            f"{{@scheduler}} {address}: answered, but not as a dask scheduler: expected the address of a running scheduler"
         )
 
 
@@ -879,6 +879,6 @@ def _cannot_use(address: str, exc: Exception) -> str:
         "cannot connect" if isinstance(exc, OSError) and "connect" in str(exc).lower() else "no usable answer"
     )
     return (
-        f"--scheduler {address}: {what} ({exc.__class__.__name__}): expected the address of a running "
+        f"{{@scheduler}} {address}: {what} ({exc.__class__.__name__}): expected the address of a running "
         f"dask scheduler (waited at most {SCHEDULER_TIMEOUT_S:g} s)"
     )

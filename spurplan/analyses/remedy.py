@@ -198,7 +198,7 @@ def remedy(
         The filter found (or why none was), its table to paste and the re-check.
     """
     if margin_db not in MARGIN_TARGET:
-        raise LineupError(f"{margin_db:g} dB: {MARGIN_TARGET.expected()}", field="--margin")
+        raise LineupError(f"{margin_db:g} dB: {MARGIN_TARGET.expected()}", field="{@margin_db}")
     before = check(lineup)
     needed = rejection_needed(before, margin_db)
     position = _position(lineup, at)
@@ -318,7 +318,7 @@ def _mhz(hz: float) -> str:
 
 def _position(lineup, at: str | None) -> int:
     if at is not None:
-        return lineup.stage_index(at, option="--at")
+        return lineup.stage_index(at, argument="at")
     amps = [i for i, s in enumerate(lineup.stages, start=1) if isinstance(s, Amplifier)]
     return amps[-1] if amps else len(lineup.stages)
 
@@ -377,19 +377,19 @@ def write_fixed(lineup, found: Remedy, path):
 
     target = Path(path)
     if found.snippet is None:  # found.found, spelled so that the type narrows
-        raise LineupError("no filter was found: nothing to write", file=str(target), field="--write")
+        raise LineupError("no filter was found: nothing to write", file=str(target), field="{@path}")
     if lineup.source is None:
         raise LineupError(
             "the lineup was not read from a file: expected a lineup file to edit",
             file=str(target),
-            field="--write",
+            field="{@path}",
         )
     folder = target.parent if str(target.parent) else Path(".")
     if not folder.is_dir():  # before re-reading: data paths would be looked for there
         raise LineupError(
             f"the folder {folder} does not exist: expected an existing folder",
             file=str(target),
-            field="--write",
+            field="{@path}",
         )
     edited = insert_stage(lineup.source, target, found.position, found.snippet)
     try:
@@ -399,7 +399,7 @@ def write_fixed(lineup, found: Remedy, path):
         raise LineupError(
             f"the lineup with the filter would not load ({exc}): nothing written",
             file=str(target),
-            field="--write",
+            field="{@path}",
         ) from None
     _same_as_checked(written, outcome, found, target)
     write_atomic(target, edited.data)
@@ -419,7 +419,7 @@ def _same_as_checked(written, outcome: CheckResult, found: Remedy, target: Path)
         return [(s.name, type(s).__name__.lower()) for s in lu_stages]
 
     def refuse(what: str) -> LineupError:
-        return LineupError(f"{what}: nothing written", file=str(target), field="--write")
+        return LineupError(f"{what}: nothing written", file=str(target), field="{@path}")
 
     if stages(written.stages) != stages(checked):
         names = ", ".join(f"{n!r}" for n, _ in stages(written.stages))

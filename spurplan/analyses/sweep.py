@@ -68,16 +68,19 @@ def sweep_points(
     """
     step_unit = step_unit or unit
     if not (math.isfinite(start) and math.isfinite(stop) and math.isfinite(step)):
-        raise SweepError(f"--start/--stop/--step: expected finite {what}s")
+        raise SweepError(f"{{@start}}/{{@stop}}/{{@step}}: expected finite {what}s")
     if step <= 0:
-        raise SweepError(f"--step {step:g} {step_unit}: expected a step > 0")
+        raise SweepError(f"{{@step}} {step:g} {step_unit}: expected a step > 0")
     if stop < start:
-        raise SweepError(f"--stop {stop:g} {unit} is below --start {start:g} {unit}: expected stop >= start")
+        raise SweepError(
+            f"{{@stop}} {stop:g} {unit} is below {{@start}} {start:g} {unit}: expected stop >= start"
+        )
     count = (stop - start) / step
     if not count < MAX_POINTS:
         shown = f"{count:.3g}" if math.isfinite(count) else "too many"
         raise SweepError(
-            f"--step {step:g} {step_unit} makes {shown} {what} points: expected at most {MAX_POINTS} (use a larger --step)"
+            f"{{@step}} {step:g} {step_unit} makes {shown} {what} points: expected at most {MAX_POINTS} "
+            "(use a larger {@step})"
         )
     n = math.floor(count * (1 + 1e-12)) + 1
     return start + step * np.arange(n)
@@ -125,7 +128,8 @@ def check_within(value: float, within, option: str, unit: str) -> None:
     within : Within
         The plausible range, in the same unit.
     option : str
-        The command-line option, for the message (``"--start"``).
+        The argument, as the library names it (``"start"``); shown as ``{@start}``
+        (:meth:`spurplan.errors.SpurplanError.shown`).
     unit : str
         The unit shown in the message (dBm, Hz ...).
 
@@ -135,15 +139,15 @@ def check_within(value: float, within, option: str, unit: str) -> None:
         ``value`` is outside the range.
     """
     if value not in within:
-        raise SweepError(f"{option} {value:g} {unit}: {within.expected()}")
+        raise SweepError(f"{{@{option}}} {value:g} {unit}: {within.expected()}")
 
 
 def _drive_range(start_dbm: float, stop_dbm: float, target_output: bool) -> None:
     """Both ends of a drive sweep within the carrier power range (input or output)."""
     which = "output" if target_output else "input"
     within = replace(CARRIER_POWER, what=f"a carrier {which} power")
-    check_within(start_dbm, within, "--start", "dBm")
-    check_within(stop_dbm, within, "--stop", "dBm")
+    check_within(start_dbm, within, "start", "dBm")
+    check_within(stop_dbm, within, "stop", "dBm")
 
 
 def read_channels(path) -> np.ndarray:
@@ -449,14 +453,14 @@ def _inputs_for_outputs(lineup, targets_dbm: np.ndarray, combine) -> np.ndarray:
     inside = (targets_dbm >= o[0]) & (targets_dbm <= o[-1])
     if not inside.all():
         bad = float(targets_dbm[~inside][-1] if targets_dbm[-1] > o[-1] else targets_dbm[~inside][0])
-        option = "--stop" if bad > o[-1] else "--start"
+        option = "{@stop}" if bad > o[-1] else "{@start}"
         why = (
             "the output saturates there"
             if bad > o[-1]
             else f"the lowest input searched, {-_TARGET_SEARCH_DB[0]:g} dB below the nominal drive"
         )
         raise SweepError(
-            f"{option} {bad:+g} dBm (--target-output) is unreachable: the modelled output of the strongest "
+            f"{option} {bad:+g} dBm ({{@target_output}}) is unreachable: the modelled output of the strongest "
             f"carrier runs from {o[0]:+.2f} to {o[-1]:+.2f} dBm ({why}); expected target outputs in that range"
         )
     return np.interp(targets_dbm, o, g)

@@ -128,7 +128,7 @@ def _parse(source: Path):
     from tomlkit.exceptions import TOMLKitError
 
     text, bom = _read(source)
-    by_hand = "run remedy without --write and paste its snippet by hand"
+    by_hand = "run remedy without {@path} and paste its snippet by hand"
     try:
         original = tomllib.loads(text)
         doc = tomlkit.parse(text)
@@ -166,7 +166,7 @@ def _read(source: Path) -> tuple[str, bool]:
 
 
 def _refusal(source: Path, message: str) -> LineupError:
-    return LineupError(message, file=str(source), field="--write")
+    return LineupError(message, file=str(source), field="{@path}")
 
 
 def _aligned(text: str, render: str) -> bool:
@@ -300,7 +300,7 @@ def _moves(doc: dict, source: Path, target: Path) -> list[tuple[tuple, str, str]
             new = str(file)
         if (target.parent / new).resolve() != file:
             raise _refusal(
-                target, f"{rel[:200]!r} cannot be named from {there}: expected --write to a file in {here}"
+                target, f"{rel[:200]!r} cannot be named from {there}: expected {{@path}} to a file in {here}"
             )
         moves.append((where, rel, new))
     return moves

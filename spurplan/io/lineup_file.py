@@ -277,7 +277,7 @@ def _report(table, file: str) -> ReportSpec:
         try:
             sweep_points(start, stop, step, what, unit, "dB" if key == "drive" else unit)
         except SweepError as exc:
-            raise f.error(key, str(exc).replace("--", "")) from None
+            raise f.error(key, str(exc)) from None
         out[key] = (start, stop, step)
     f.finish()
     return ReportSpec(**out)

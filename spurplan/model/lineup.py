@@ -252,16 +252,17 @@ class Lineup:
         vecs = [self.carrier_vectors(i)[k].astype(float) for i in range(len(self.stages))]
         return np.stack([np.abs(tones @ v) for v in vecs]) if vecs else np.zeros((0, len(tones)))
 
-    def stage_index(self, name: str, option: str = "--stage") -> int:
-        """1-based position of the stage called ``name`` (node number); ``option`` names
-        the command-line option that gave it, for the error.
+    def stage_index(self, name: str, argument: str = "stage") -> int:
+        """1-based position of the stage called ``name`` (node number); ``argument`` names
+        the parameter that gave it, for the error.
 
         Parameters
         ----------
         name : str
             The stage's name as in the lineup file.
-        option : str
-            The command-line option that gave the name, named as the error's field.
+        argument : str
+            The parameter that gave the name (``"stage"``), the error's field (shown as
+            the command line's option there: :meth:`spurplan.errors.SpurplanError.shown`).
 
         Returns
         -------
@@ -280,10 +281,10 @@ class Lineup:
         raise LineupError(
             f"no stage named {name!r}: expected one of {known}",
             file=None if self.source is None else str(self.source),
-            field=option,
+            field=f"{{@{argument}}}",
         )
 
-    def stage_of_kind(self, name: str, kind: type, option: str = "--stage"):
+    def stage_of_kind(self, name: str, kind: type, argument: str = "stage"):
         """The stage called ``name``, which must be a ``kind`` (one-line error otherwise).
 
         Parameters
@@ -292,8 +293,9 @@ class Lineup:
             The stage's name as in the lineup file.
         kind : type
             The stage class required (e.g. ``Mixer``).
-        option : str
-            The command-line option that gave the name, named as the error's field.
+        argument : str
+            The parameter that gave the name (``"stage"``), the error's field (shown as
+            the command line's option there: :meth:`spurplan.errors.SpurplanError.shown`).
 
         Returns
         -------
@@ -305,13 +307,13 @@ class Lineup:
         LineupError
             When no stage has that name or it is of another kind.
         """
-        stage = self.stages[self.stage_index(name, option) - 1]
+        stage = self.stages[self.stage_index(name, argument) - 1]
         if not isinstance(stage, kind):
             have, want = type(stage).__name__.lower(), kind.__name__.lower()
             raise LineupError(
                 f"{name!r} is {'an' if have[0] in 'aeiou' else 'a'} {have} stage: expected a {want} stage",
                 file=None if self.source is None else str(self.source),
-                field=option,
+                field=f"{{@{argument}}}",
             )
         return stage
 

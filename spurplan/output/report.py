@@ -484,7 +484,7 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
     Raises
     ------
     LineupError
-        For an unknown suffix (field ``-o``), before anything is built.
+        For an unknown suffix (field ``path``), before anything is built.
     OutputError
         For a target (or, for Markdown, a figure folder) that cannot be written, also
         before anything is built.
@@ -496,7 +496,7 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
     suffix = path.suffix.lower()
     if suffix not in (".html", ".htm", ".md"):
         raise LineupError(
-            f"{path}: unknown report format {suffix or '(none)'!r}: expected .html or .md", field="-o"
+            f"{path}: unknown report format {suffix or '(none)'!r}: expected .html or .md", field="{@path}"
         )
     folder = f"{path.stem}_files"
     if suffix == ".md":
