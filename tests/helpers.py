@@ -23,9 +23,9 @@ import pytest
 from click.testing import CliRunner
 
 from spurplan.cli import main
-from spurplan.model.products import mixing_vectors
 from spurplan.engine.torus import apply_memoryless
 from spurplan.io.lineup_file import from_dict
+from spurplan.model.products import mixing_vectors
 
 try:
     import resource

@@ -36,8 +36,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/: the refe
 
 from reference import Generating, Tone, exact_length, simulate, zone_weight
 
-from spurplan.model.products import mixing_vectors
 from spurplan.io.lineup_file import from_dict
+from spurplan.model.products import mixing_vectors
 
 FLOOR_DBC = -150.0
 TOL_DB = 0.01
