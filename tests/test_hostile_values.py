@@ -616,3 +616,18 @@ def test_remedy_refuses_a_negative_margin_from_python():
     }
     with pytest.raises(SpurplanError, match="margin target from 0 to"):
         remedy(from_dict(doc, name="failing.toml"), margin_db=-300.0)
+
+
+def test_a_polynomial_driven_far_past_its_figures_is_refused_before_it_overflows(tmp_path):
+    # Found by the CLI fuzz test: three stages stated only by a 7th harmonic (no
+    # compression figure) at +33 dBm make a composed polynomial of degree 7^2 in the
+    # second stage; its output (far above 1e9 V peak, which is +220 dBm into 50 ohm:
+    # no transmitter, common practice, no source) overflowed when a node's levels
+    # squared it, instead of being one located error.
+    stage = 'kind = "amplifier"\ngain = "0.5 dB"\nh7 = "-60 dBc @ +20 dBm"\n'
+    text = '[[carrier]]\nfreq = "455 MHz"\npower = "+3 dBW"\n' + "".join(
+        f'[[stage]]\nname = "a{i}"\n{stage}' for i in (1, 2, 3)
+    )
+    (tmp_path / "l.toml").write_text(text, encoding="utf-8")
+    code, out, err, detail, _ = run_in_process(["spectrum", str(tmp_path / "l.toml")])
+    assert_one_error_line(code, out, err, ("stage 'a2'", "1e+09 V peak", "p1db or psat"), detail=detail)

@@ -36,6 +36,10 @@ from spurplan.model.torus_grid import (  # re-exported: the engine's grid rules
     torus_coefficients,
 )
 
+# A product above this (V peak; +220 dBm into 50 ohm) is no stage's output: a polynomial
+# model driven far past where its figures hold.  Refused, before the next stage raises it
+# to a power that overflows (a node's levels square it).
+ABSURD_PEAK_V = 1e9
 # The largest array (points) evaluated at once; batches are chunked to respect it.
 _CHUNK_POINTS = 2**22
 
@@ -336,6 +340,15 @@ def propagate(
             raise LineupError(
                 "the model's output is not a finite number at this drive: expected figures and drive "
                 "that a real stage could have",
+                stage=f"stage {stage.name!r}",
+            )
+        if np.any(np.abs(y) > ABSURD_PEAK_V):
+            from spurplan.errors import LineupError
+
+            raise LineupError(
+                f"the model's output exceeds {ABSURD_PEAK_V:.0e} V peak at this drive (a polynomial "
+                "with no compression figure grows without bound): expected figures and drive that a "
+                "real stage could have, e.g. state p1db or psat",
                 stage=f"stage {stage.name!r}",
             )
         beyond.append(_beyond_data(stage.data_range_hz, freqs_hz, x, y))
