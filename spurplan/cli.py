@@ -475,7 +475,8 @@ def _parse(kind, text, option, within=None):
 @_plot_size_option
 def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
-    from spurplan.analyses.sweep import drive_sweep, sweep_points
+    from spurplan.analyses.sweep import drive_sweep
+    from spurplan.io.channels import sweep_points
     from spurplan.output.formatting import text_table
     from spurplan.output.provenance import provenance
 
@@ -547,7 +548,8 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 @_plot_size_option
 def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
-    from spurplan.analyses.sweep import read_channels, sweep_points, tune_sweep
+    from spurplan.analyses.sweep import tune_sweep
+    from spurplan.io.channels import read_channels, sweep_points
     from spurplan.output.formatting import text_table
     from spurplan.output.provenance import provenance
 
@@ -818,7 +820,7 @@ CAUSE_TABLE = [
 def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
     """Monte Carlo yield of LINEUP over its part tolerances and corners."""
     from spurplan.analyses.montecarlo import check_scheduler_address, run_yield
-    from spurplan.analyses.sweep import read_channels
+    from spurplan.io.channels import read_channels
     from spurplan.output.formatting import text_table, to_json
 
     if scheduler is not None and workers is not None:

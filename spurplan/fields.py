@@ -46,7 +46,7 @@ def file_kind(mode: int) -> str:
 # document reach the parser's recursion limit or the readers behind it.
 MAX_TOML_BYTES = 1 << 20
 MAX_TOML_DEPTH = 32
-# A channel file of 200,000 channels (spurplan.analyses.sweep.MAX_POINTS) with a comment on each
+# A channel file of 200,000 channels (spurplan.io.channels.MAX_POINTS) with a comment on each
 # line fits in 8 MiB.
 MAX_CHANNEL_FILE_BYTES = 8 << 20
 

@@ -170,7 +170,7 @@ def test_missing_data_folder_is_a_resource_error(monkeypatch, tmp_path):
 def test_library_error_names_the_parameter_and_the_cli_its_option(tmp_path):
     # Rule of this package (DEVELOPERS.md, "Errors"): the library says "step", the
     # command line "--step"; the value and expectation are the same words in both.
-    from spurplan.analyses.sweep import sweep_points
+    from spurplan.io.channels import sweep_points
 
     with pytest.raises(errors.SweepError) as caught:
         sweep_points(0.0, 1.0, 0.0, "drive", "dB")

@@ -24,8 +24,9 @@ from pathlib import Path
 from typing import cast
 
 from spurplan.analyses.montecarlo import Tolerance, Tolerances, read_corners, read_tolerance
-from spurplan.errors import LineupError
+from spurplan.errors import LineupError, SweepError
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER, Fields, Within, read_toml
+from spurplan.io.channels import sweep_points
 from spurplan.io.mask_files import read_mask
 from spurplan.io.touchstone import read_touchstone
 from spurplan.model.ladders import BEYOND_POLICIES
@@ -257,8 +258,6 @@ def _analysis(table, file: str) -> Analysis:
 
 def _report(table, file: str) -> ReportSpec:
     """``[report]``: optional sweeps, ``drive = {start, stop, step}``, ``tune = {start, stop, step}``."""
-    from spurplan.analyses.sweep import SweepError, sweep_points
-
     f = Fields(table, file, "[report]")
     out = {}
     for key, parse, unit, what in (

@@ -343,7 +343,8 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
 
 
 def _tune_section(lineup, tune, tune_figure) -> Section:
-    from spurplan.analyses.sweep import sweep_points, tune_sweep
+    from spurplan.analyses.sweep import tune_sweep
+    from spurplan.io.channels import sweep_points
 
     start, stop, step = tune
     sw = tune_sweep(lineup, sweep_points(start, stop, step, "channel", "Hz"))
