@@ -1,4 +1,4 @@
-"""Filters as scikit-rf networks: synthesized LC ladders and Touchstone data.
+"""Filter networks: synthesized LC ladders (numpy ABCD, or scikit-rf) and Touchstone lookups.
 
 Synthesized ladders
 -------------------
@@ -21,9 +21,12 @@ geometric centre and ``D = BW / f0``: series arm ``L = g R0 / (w0 D)`` with
 
 Finite unloaded Q adds a series resistance ``w L / Q_L`` to every inductor and
 ``1 / (w C Q_C)`` to every capacitor (common practice, no source), so passband loss
-is realistic.  The ladder is built from ``skrf.media.DefinedGammaZ0`` elements (a
-series impedance and its shunt form) and cascaded with ``**``, evaluated directly
-at the frequencies asked for: nothing is interpolated.
+is realistic.  The engine evaluates the ladder with numpy ABCD matrices
+(:func:`ladder_s21`, vectorised over frequencies and Monte Carlo samples); the same
+circuit built from ``skrf.media.DefinedGammaZ0`` elements (a series impedance and its
+shunt form) and cascaded with ``**`` (:func:`ladder_network`) gives the full S-matrix
+for linear sections and Touchstone export, and is held equal to it by the tests.
+Both evaluate at the frequencies asked for: nothing is interpolated.
 
 Stopband floor
 --------------
