@@ -15,8 +15,6 @@ from __future__ import annotations
 
 import math
 
-from spurplan.model.stages.amplifier import Amplifier, output_p1db_dbm
-from spurplan.model.stages.amplifier_fit import model_psat_dbm
 from spurplan.units import ratio_db, vpeak_to_dbm
 
 BUDGET_COLUMNS = [
@@ -91,15 +89,16 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     reference = lineup.reference_carrier_index
     # The carrier's product index at each node (a mixer moves it to the wanted product).
     col = [result.carrier_columns(i)[reference] for i in range(len(stages) + 1)]
-    # Small-signal gain at the carrier: the figure for amplifiers and mixers (conversion
-    # gain), |S21| for filters.
+    # Small-signal gain at the carrier: the conversion gain of a converter (which has no
+    # linear passage), |S21| (or the amplifier's gain figure) for the others.
     gains = [
-        float(s.conversion_gain_db)
-        if hasattr(s, "conversion_gain_db")
+        float(s.conversion.gain_db)
+        if s.conversion is not None
         else float(ratio_db(result.propagation.response[i, batch, col[i]]))
         for i, s in enumerate(stages)
     ]
-    oip3 = [s.figures.oip3_dbm if isinstance(s, Amplifier) else None for s in stages]
+    figures = [s.cascade_figures(lineup.r_ohm) for s in stages]
+    oip3 = [f.oip3_dbm for f in figures]
     iip3 = cascade_iip3_dbm(gains, oip3)
     cols: dict[str, list] = {c: [] for c in BUDGET_COLUMNS}
     cum = 0.0
@@ -109,9 +108,9 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         p_in = float(vpeak_to_dbm(node_in[col[i]], lineup.r_ohm))
         p_out = float(vpeak_to_dbm(node_out[col[i + 1]], lineup.r_ohm))
         cum += gains[i]
-        p1db = _model_p1db(stage, lineup.r_ohm)
+        p1db = figures[i].p1db_model_dbm
         cols["stage"].append(stage.name)
-        cols["kind"].append(type(stage).__name__.lower())
+        cols["kind"].append(stage.kind)
         cols["gain_db"].append(gains[i])
         cols["cum_gain_db"].append(cum)
         cols["carrier_in_dbm"].append(p_in)
@@ -121,29 +120,19 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         cols["cascade_iip3_dbm"].append(iip3[i])
         cols["cascade_oip3_dbm"].append(iip3[i] + cum)
         cols["p1db_dbm"].append(p1db)
-        cols["p1db_stated_dbm"].append(stage.figures.p1db_dbm if isinstance(stage, Amplifier) else None)
+        cols["p1db_stated_dbm"].append(figures[i].p1db_stated_dbm)
         cols["headroom_db"].append(None if p1db is None else p1db - p_out)
-        cols["psat_dbm"].append(
-            model_psat_dbm(stage.transfer, lineup.r_ohm) if isinstance(stage, Amplifier) else None
-        )
+        cols["psat_dbm"].append(figures[i].psat_model_dbm)
         cols["figures"].append(_figures_state(stage))
     return cols
-
-
-def _model_p1db(stage, r_ohm: float) -> float | None:
-    """The model's own output P1dB (dBm) of an amplifier: what headroom is measured from,
-    whatever the datasheet says (a miss is in the ``figures`` column)."""
-    if not isinstance(stage, Amplifier):
-        return None
-    return output_p1db_dbm(stage.transfer, r_ohm)
 
 
 def _figures_state(stage) -> str:
     """Stated figures the model misses, and missing figure classes, in a few words."""
     parts = [
         f"{c.figure} misses by {c.miss_db:+.2f} dB" if c.model is not None else f"{c.figure} not reached"
-        for c in getattr(stage, "checks", ())
+        for c in stage.checks
         if not c.met
     ]
-    parts += [f"no {what.split(' (')[0]}" for what in getattr(stage, "missing_figures", lambda: ())()]
-    return "; ".join(parts) if parts else ("all met" if getattr(stage, "checks", ()) else "")
+    parts += [f"no {what.split(' (')[0]}" for what in stage.missing_figures()]
+    return "; ".join(parts) if parts else ("all met" if stage.checks else "")

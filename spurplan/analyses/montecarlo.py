@@ -45,21 +45,13 @@ from spurplan.analyses.cluster import (  # re-exported: check_scheduler_address 
 from spurplan.engine.run import run
 from spurplan.errors import LineupError, UnitError, YieldError  # YieldError: re-exported (lives in errors.py)
 from spurplan.fields import Fields, _did_you_mean
-from spurplan.model.ladders import ladder_s21
 from spurplan.model.products import labels
-from spurplan.model.stages import Amplifier, Attenuator, Filter, Mixer
-from spurplan.model.stages.amplifier import sampled_model
+from spurplan.model.stages.base import PERCENT
 from spurplan.units import parse_gain_db
 
 if TYPE_CHECKING:  # annotations only (lineup_file imports this module's readers)
     from spurplan.model.lineup import Lineup
 
-DB_FIGURES = {
-    Amplifier: ("gain", "oip3", "oip2", "psat", "p1db", *(f"ohip{n}" for n in range(2, 10))),
-    Attenuator: ("loss",),
-    Mixer: ("conversion_gain",),
-}
-PERCENT_FIGURES = ("cutoff", "center", "q_inductor", "q_capacitor", "elements")
 BATCH_SAMPLES = 2000
 Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (standard tables)
 
@@ -148,15 +140,6 @@ class Tolerances:
     corners: tuple[Corner, ...] = field(default=())
 
 
-def _figures_of(stage) -> tuple[tuple[str, ...], bool]:
-    for kind, names in DB_FIGURES.items():
-        if isinstance(stage, kind):
-            return names, False
-    if isinstance(stage, Filter) and stage.prototype is not None:
-        return PERCENT_FIGURES, True
-    return (), False
-
-
 def _amount(text, f: Fields, key: str, percent: bool) -> float:
     if percent:
         if isinstance(text, str) and text.strip().endswith("%"):
@@ -202,7 +185,8 @@ def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Toler
     LineupError
         A figure that cannot spread, a malformed amount or a negative one.
     """
-    names, percent = _figures_of(stage)
+    units = stage.spread_figures()
+    names = tuple(units)
     f = Fields(raw, file, f"{where} tolerance")
     out = []
     for key in list(raw):
@@ -220,7 +204,7 @@ def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Toler
                 raise sub.error(None, f"{value!r}: expected {{ normal = ... }} or {{ uniform = ... }}")
             kind = kinds[0]
             value = value[kind]
-        amount = _amount(value, f, key, percent)
+        amount = _amount(value, f, key, units[key] == PERCENT)
         if amount < 0:
             raise f.error(key, f"{raw[key]!r}: expected a spread >= 0")
         f.raw(key)
@@ -269,12 +253,12 @@ def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
             if stage_name not in names:
                 raise f.error("shift", f"{key!r}: expected 'stage.figure' naming a stage of the lineup")
             i = names[stage_name]
-            allowed, percent = _figures_of(stages[i])
-            if figure not in allowed:
+            units = stages[i].spread_figures()
+            if figure not in units:
                 raise f.error(
-                    "shift", f"{key!r}: {figure!r} cannot shift; expected one of {', '.join(allowed)}"
+                    "shift", f"{key!r}: {figure!r} cannot shift; expected one of {', '.join(units)}"
                 )
-            shifts.append((i, figure, _amount(text, f, "shift", percent)))
+            shifts.append((i, figure, _amount(text, f, "shift", units[figure] == PERCENT)))
         f.finish()
         out.append(Corner(name=name, shifts=tuple(shifts)))
     return tuple(out)
@@ -339,68 +323,13 @@ def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
     out = []
     for i, stage in enumerate(lineup.stages):
         d = {}
-        names, _ = _figures_of(stage)
-        for fig in names:
+        for fig in stage.spread_figures():
             value = deltas.get((i, fig), 0.0) + shift.get((i, fig), 0.0)
             if np.ndim(value) or value:
                 d[fig] = np.broadcast_to(value, (n,) if fig != "elements" else np.shape(value) or (n,))
-        out.append(_sampled(stage, d, n, lineup.r_ohm))
+        # A stage with nothing moved is its nominal self.
+        out.append(stage.sampled(d, n, lineup.r_ohm) if d else stage)
     return out
-
-
-@dataclass(frozen=True)
-class _Sampled:
-    """A stage seen by the engine with per-sample parameters."""
-
-    name: str
-    transfer: object
-    response_fn: object
-    data_range_hz: object = None
-
-    def response(self, freq_hz):
-        return self.response_fn(freq_hz)
-
-
-@dataclass(frozen=True)
-class _SampledAmplifier(_Sampled):
-    """An amplifier with per-sample model and harmonic-zone weights."""
-
-    amplifier: Amplifier | None = None
-    weights_db: dict | None = None
-
-    def generated_weight(self, freq_hz, ref_hz=None):
-        return self.amplifier.generated_weight(freq_hz, ref_hz, self.weights_db)
-
-
-def _sampled(stage, d: dict, n: int, r_ohm: float):
-    if not d:
-        return stage
-    if isinstance(stage, Amplifier):
-        transfer, weights = sampled_model(stage, d, r_ohm)
-        gain = 10 ** (d.get("gain", 0.0) / 20)
-
-        def amp_response(f):
-            return stage.response(f) * np.reshape(gain, (-1, 1))
-
-        return _SampledAmplifier(stage.name, transfer, amp_response, stage.data_range_hz, stage, weights)
-    if isinstance(stage, Attenuator):
-        k = 10 ** (-d["loss"] / 20)
-        return _Sampled(stage.name, None, lambda f: stage.response(f) * np.reshape(k, (-1, 1)))
-    if isinstance(stage, Mixer):
-        return _Sampled(stage.name, stage.transfer.scaled(d["conversion_gain"]), stage.response)
-    proto = stage.prototype
-    scale = 1.0 + d.get("cutoff", 0.0) + d.get("center", 0.0)
-    q_scale = (1.0 + d.get("q_inductor", 0.0), 1.0 + d.get("q_capacitor", 0.0))
-    parts = d.get("elements")
-    if parts is not None:
-        parts = 1.0 + np.asarray(parts)[:, : proto.order]
-
-    def filter_response(f):
-        return ladder_s21(
-            proto, f, stage.r_ohm, scale=np.broadcast_to(scale, (n,)), q_scale=q_scale, part_scale=parts
-        )
-
-    return _Sampled(stage.name, None, filter_response)
 
 
 def evaluate_batch(

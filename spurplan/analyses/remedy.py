@@ -416,7 +416,7 @@ def _same_as_checked(written, outcome: CheckResult, found: Remedy, target: Path)
     checked = (*found.lineup.stages[:pos], flt, *found.lineup.stages[pos:])
 
     def stages(lu_stages) -> list:
-        return [(s.name, type(s).__name__.lower()) for s in lu_stages]
+        return [(s.name, s.kind) for s in lu_stages]
 
     def refuse(what: str) -> LineupError:
         return LineupError(f"{what}: nothing written", file=str(target), field="{@path}")

@@ -544,7 +544,7 @@ def _check_channels(lineup, carrier_hz: np.ndarray, tones_hz: np.ndarray) -> Non
     what = "LO" if lineup.mixers else "carrier"
     checks = [("a tone", tones_hz)]
     for node, stage in enumerate(lineup.stages, start=1):
-        if getattr(stage, "lo_freq_hz", None) is not None:
+        if stage.conversion is not None:
             wanted = np.abs(tones_hz @ lineup.carrier_vectors(node).T.astype(float))
             checks.append((f"the wanted product of '{stage.name}'", wanted))
     for name, freqs in checks:

@@ -92,5 +92,5 @@ def _raise_beyond_data(lineup: Lineup, prop: Propagation, mix: np.ndarray, freqs
         product=label(mix[p] * (1 if f >= 0 else -1), lineup.tone_names),
         hint='set [analysis] beyond_data = "hold" or "no_rejection" to proceed, or extend the data',
         file=None if lineup.source is None else str(lineup.source),
-        data_file=getattr(stage, "source", None),
+        data_file=stage.data_file,
     )

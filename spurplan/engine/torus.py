@@ -314,7 +314,7 @@ def propagate(
             y = h * x
             extrap.append(np.zeros(len(x), dtype=bool))
             conv.append(np.ones(len(x), dtype=bool))
-        elif hasattr(transfer, "convert"):
+        elif stage.conversion is not None:
             # A frequency converter (mixer): it makes a new spectrum from its input and
             # its own LO, with no linear passage (h = 0).
             y = transfer.convert(x, mix, freqs_hz)
@@ -323,7 +323,7 @@ def propagate(
         else:
             res = apply_memoryless(x, mix, transfer)
             a1 = np.reshape(transfer.gain, (-1, 1))
-            weight_of = getattr(stage, "generated_weight", None)
+            weight_of = stage.generated_weight
             if weight_of is None:
                 y = res.spectrum * (h / a1)
             else:

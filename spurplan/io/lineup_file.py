@@ -151,14 +151,11 @@ def from_dict(
         raise LineupError(f"{len(stage_tables)} [[stage]] tables: expected at most {MAX_STAGES}", file=name)
     for i, table in enumerate(stage_tables, start=1):
         stage = _stage(table, name, i, context)
-        lo_hz = getattr(stage, "lo_freq_hz", None)
-        if lo_hz is not None:
+        if stage.conversion is not None:
             carried_hz = _converted(stage, carried_hz, name, i)
             # Past a mixer the carrier is its wanted product: later stages' figures are
             # referred there.
-            ref = context.ref_freq_hz
-            moved = lo_hz + ref if stage.sideband == "upper" else abs(lo_hz - ref)
-            context = replace(context, ref_freq_hz=moved)
+            context = replace(context, ref_freq_hz=stage.conversion.wanted_hz(context.ref_freq_hz))
         if isinstance(table, dict) and "tolerance" in table:
             where = f"stage {i} {stage.name!r}"
             if not isinstance(table["tolerance"], dict):
@@ -177,11 +174,11 @@ def from_dict(
         stages.append(stage)
     lo_index = 0
     for i, stage in enumerate(stages):
-        if getattr(stage, "lo_freq_hz", None) is not None:
+        if stage.conversion is not None:
             stages[i] = stage.with_lo_index(lo_index)
             lo_index += 1
     _check_size(stages, len(carriers) + lo_index, analysis, name)
-    notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in getattr(s, "notes", ()))
+    notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in s.notes)
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
     corners = read_corners(doc["corner"], name, stages) if "corner" in doc else ()
     tolerances = Tolerances(items=tuple(spreads), corners=corners)
@@ -301,23 +298,24 @@ def _stage(table, file: str, index: int, context: LoadContext):
 
 
 def _converted(mixer, freqs_hz: list[float], file: str, index: int) -> list[float]:
-    """Each carrier's wanted product at ``mixer``'s output; refused when one lands near 0 Hz.
+    """Each carrier's wanted product at the output of ``mixer`` (a converting stage); refused when one lands near 0 Hz.
 
     A lower-sideband mixer whose LO equals the IF puts the wanted product at DC: no
     transmission, no limit applies, and dBc against it has no meaning.  Such a product
     (or one below :data:`~spurplan.fields.CARRIER_FREQ`'s lower end) is an input error.
     """
-    lo = mixer.lo_freq_hz
-    out = [lo + f if mixer.sideband == "upper" else abs(lo - f) for f in freqs_hz]
+    conv = mixer.conversion
+    lo = conv.lo_freq_hz
+    out = [conv.wanted_hz(f) for f in freqs_hz]
     wanted = replace(CARRIER_FREQ, what="a wanted product")
     for k, (f_in, f_out) in enumerate(zip(freqs_hz, out, strict=True), start=1):
         if f_out not in wanted:
             raise LineupError(
-                f"LO {format_freq(lo)} with the {mixer.sideband} sideband puts carrier {k} ({format_freq(f_in)} "
+                f"LO {format_freq(lo)} with the {conv.sideband} sideband puts carrier {k} ({format_freq(f_in)} "
                 f"at the mixer input) at {format_freq(f_out)}: {wanted.expected()}",
                 file=file,
                 stage=f"stage {index} {mixer.name!r}",
-                field="sideband" if mixer.sideband == "lower" else "lo",
+                field="sideband" if conv.sideband == "lower" else "lo",
             )
     return out
 
@@ -332,7 +330,7 @@ def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
     Parameters
     ----------
     stages : sequence of stage
-        The lineup's stages; linear ones (``transfer`` None) add nothing.
+        The lineup's stages; linear ones (``grid_degree`` None) add nothing.
     n_tones : int
         Number of base tones K (carriers and LOs), the torus dimension.
     max_order : int
@@ -341,14 +339,10 @@ def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
     Returns
     -------
     tuple of (int, int)
-        Grid points ``N ** K`` and the largest model degree (8 assumed for a non-polynomial
-        model; ``m + |n|`` of a mixer's terms).
+        Grid points ``N ** K`` and the largest model degree (each stage's ``grid_degree``:
+        8 assumed for a non-polynomial model; ``m + |n|`` of a mixer's terms).
     """
-    degrees = [s.transfer.degree or 8 for s in stages if s.transfer is not None]
-    degrees += [
-        max(abs(n) + m for m, n, _ in s.transfer.terms) for s in stages if hasattr(s.transfer, "terms")
-    ]
-    degree = max(degrees, default=1)
+    degree = max((s.grid_degree for s in stages if s.grid_degree is not None), default=1)
     return alias_free_grid(degree, max_order, max_order) ** n_tones, degree
 
 

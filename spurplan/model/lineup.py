@@ -23,6 +23,7 @@ if TYPE_CHECKING:  # annotations only: masks and Monte Carlo load when a lineup 
     from spurplan.analyses.montecarlo import Tolerances
     from spurplan.model.masks import Mask
     from spurplan.model.stages.amplifier_fit import FigureCheck
+    from spurplan.model.stages.base import StageDefaults
 
 Combine = Literal["worst", "power", "phase"]
 COMBINE_MODES: tuple[str, ...] = ("worst", "power", "phase")
@@ -156,7 +157,7 @@ class Lineup:
     @property
     def mixers(self) -> list:
         """Mixer stages in signal order; mixer i owns base tone i (its LO)."""
-        return [s for s in self.stages if getattr(s, "lo_freq_hz", None) is not None]
+        return [s for s in self.stages if s.conversion is not None]
 
     @property
     def reference_carrier_index(self) -> int:
@@ -170,7 +171,7 @@ class Lineup:
 
     @property
     def tone_freqs_hz(self) -> np.ndarray:
-        return np.array([m.lo_freq_hz for m in self.mixers] + [c.freq_hz for c in self.carriers])
+        return np.array([m.conversion.lo_freq_hz for m in self.mixers] + [c.freq_hz for c in self.carriers])
 
     @property
     def tone_names(self) -> list[str]:
@@ -217,11 +218,11 @@ class Lineup:
         vecs[np.arange(len(self.carriers)), n_lo + np.arange(len(self.carriers))] = 1
         lo_i = 0
         for stage in self.stages[:node]:
-            if getattr(stage, "lo_freq_hz", None) is None:
+            if stage.conversion is None:
                 continue
             lo = np.zeros(self.n_tones, dtype=np.int64)
             lo[lo_i] = 1
-            vecs = lo + vecs if stage.sideband == "upper" else lo - vecs
+            vecs = lo + vecs if stage.conversion.sideband == "upper" else lo - vecs
             lo_i += 1
         return vecs
 
@@ -229,14 +230,12 @@ class Lineup:
         """``(stage name, figure)`` for every figure class a stage will produce but no
         figure states: the model leaves those products out (or, for compression, runs
         linear), so results that rely on them are incomplete."""
-        return tuple(
-            (s.name, what) for s in self.stages for what in getattr(s, "missing_figures", lambda: ())()
-        )
+        return tuple((s.name, what) for s in self.stages for what in s.missing_figures())
 
     def figure_checks(self) -> tuple[tuple[str, FigureCheck], ...]:
         """``(stage name, FigureCheck)`` for every stated large-signal figure: the datasheet
         value beside what the fitted model gives at the same point."""
-        return tuple((s.name, c) for s in self.stages for c in getattr(s, "checks", ()))
+        return tuple((s.name, c) for s in self.stages for c in s.checks)
 
     def figures_missed(self) -> tuple[tuple[str, FigureCheck], ...]:
         """The :meth:`figure_checks` whose figure the model does not meet."""
@@ -284,7 +283,7 @@ class Lineup:
             field=f"{{@{argument}}}",
         )
 
-    def stage_of_kind(self, name: str, kind: type, argument: str = "stage"):
+    def stage_of_kind(self, name: str, kind: type[StageDefaults], argument: str = "stage"):
         """The stage called ``name``, which must be a ``kind`` (one-line error otherwise).
 
         Parameters
@@ -292,7 +291,7 @@ class Lineup:
         name : str
             The stage's name as in the lineup file.
         kind : type
-            The stage class required (e.g. ``Mixer``).
+            The stage class required (e.g. ``Mixer``); its ``kind`` names it in the error.
         argument : str
             The parameter that gave the name (``"stage"``), the error's field (shown as
             the command line's option there: :meth:`spurplan.errors.SpurplanError.shown`).
@@ -309,7 +308,7 @@ class Lineup:
         """
         stage = self.stages[self.stage_index(name, argument) - 1]
         if not isinstance(stage, kind):
-            have, want = type(stage).__name__.lower(), kind.__name__.lower()
+            have, want = stage.kind, kind.kind
             raise LineupError(
                 f"{name!r} is {'an' if have[0] in 'aeiou' else 'a'} {have} stage: expected a {want} stage",
                 file=None if self.source is None else str(self.source),

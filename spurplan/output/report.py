@@ -24,7 +24,6 @@ from pathlib import Path
 
 from spurplan.analyses.budget import budget_rows
 from spurplan.analyses.check import check, figure_check_rows
-from spurplan.model.ladders import describe_parts
 from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
 from spurplan.output.files import check_folder, check_target, write_atomic, write_with_folder
 from spurplan.output.provenance import provenance
@@ -249,52 +248,10 @@ def _lineup_section(lineup) -> Section:
     for i, s in enumerate(lineup.stages, start=1):
         stages["position"].append(i)
         stages["name"].append(s.name)
-        stages["kind"].append(type(s).__name__.lower())
-        stages["figures"].append(_figures_text(s))
+        stages["kind"].append(s.kind)
+        stages["figures"].append(s.describe_figures())
     sec.parts.append(_table(stages, STAGE_TABLE))
     return sec
-
-
-def _figures_text(stage) -> str:
-    from spurplan.model.stages import Amplifier, Attenuator, Filter, Mixer
-
-    if isinstance(stage, Amplifier):
-        f = stage.figures
-        parts = [f"gain {f.gain_db:g} dB"]
-        parts += [f"OIP3 {f.oip3_dbm:+g} dBm"] if f.oip3_dbm is not None else []
-        parts += [f"OIP2 {f.oip2_dbm:+g} dBm"] if f.oip2_dbm is not None else []
-        parts += [f"OHIP{n} {v:+.2f} dBm" for n, v in sorted(f.ohip_dbm.items())]
-        parts += [f"H{n} {dbc:+g} dBc @ {at:+g} dBm" for n, (dbc, at) in sorted(f.harmonics.items())]
-        parts += [f"P1dB {f.p1db_dbm:+g} dBm"] if f.p1db_dbm is not None else []
-        parts += [f"Psat {f.psat_dbm:+g} dBm"] if f.psat_dbm is not None else []
-        if stage.band is not None:
-            b = stage.band
-            edges = [
-                f"{b.low_hz / 1e6:g} MHz" if b.low_hz else "DC",
-                f"{b.high_hz / 1e6:g} MHz" if b.high_hz else "-",
-            ]
-            parts.append(f"pass band {edges[0]} to {edges[1]} (order {b.order})")
-        return ", ".join(parts)
-    if isinstance(stage, Attenuator):
-        return f"loss {stage.loss_db:g} dB"
-    if isinstance(stage, Mixer):
-        return (
-            f"LO {stage.lo_freq_hz / 1e6:g} MHz at {stage.lo_power_dbm:+g} dBm, conversion gain "
-            f"{stage.conversion_gain_db:+g} dB, {stage.sideband} sideband wanted, {len(stage.table)} spur-table terms "
-            f"at {stage.spur_drive_dbm:+g} dBm IF"
-        )
-    if isinstance(stage, Filter):
-        if stage.prototype is not None:
-            p = stage.prototype
-            edge = (
-                f"centre {p.edge_hz / 1e6:g} MHz, bandwidth {p.bandwidth_hz / 1e6:g} MHz"
-                if p.bandwidth_hz
-                else f"cutoff {p.edge_hz / 1e6:g} MHz"
-            )
-            rip = f", ripple {p.ripple_db:g} dB" if p.ripple_db else ""
-            return f"{p.family} {p.response}, order {p.order}, {edge}{rip}; {describe_parts(p)}"
-        return f"Touchstone {stage.source}"
-    return ""
 
 
 def _budget_section(result) -> Section:

@@ -96,17 +96,20 @@ class FigureCheck:
         )
 
 
-def one_tone(transfer, amps_v, n_max: int) -> np.ndarray:
+def one_tone(transfer, amps_v, n_max: int, points: int = ONE_TONE_POINTS) -> np.ndarray:
     """Output harmonic phasors (V) for cosine inputs of peak ``amps_v``.
 
     Parameters
     ----------
     transfer : callable
-        A model from :mod:`spurplan.model.nonlinear` (V in, V out).
+        A model from :mod:`spurplan.model.nonlinear` (V in, V out); with per-sample
+        parameters (B,), ``amps_v`` holds one amplitude per sample.
     amps_v : float or array_like
         Input cosine peak amplitudes (V).
     n_max : int
         Highest harmonic returned.
+    points : int, optional
+        Samples of the period (default :data:`ONE_TONE_POINTS`).
 
     Returns
     -------
@@ -114,10 +117,10 @@ def one_tone(transfer, amps_v, n_max: int) -> np.ndarray:
         Column n is the n-th harmonic (column 0 the DC value).
     """
     amps_v = np.atleast_1d(np.asarray(amps_v, dtype=float))
-    theta = 2.0 * np.pi * np.arange(ONE_TONE_POINTS) / ONE_TONE_POINTS
+    theta = 2.0 * np.pi * np.arange(points) / points
     with np.errstate(over="ignore", invalid="ignore"):
         y = transfer(amps_v[:, None] * np.cos(theta)[None, :])
-    spec = np.fft.rfft(y, axis=1) / ONE_TONE_POINTS
+    spec = np.fft.rfft(y, axis=1) / points
     spec[:, 1:] *= 2.0
     return spec[:, : n_max + 1]
 

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from spurplan.fields import Fields, Within
-from spurplan.model.stages.base import LoadContext, flat_response
+from spurplan.model.stages.base import DB, LoadContext, SampledStage, StageDefaults, flat_response
 from spurplan.units import parse_gain_db
 
 # A negative loss would be a gain (an amplifier stage); beyond 100 dB no pad exists
@@ -17,14 +17,42 @@ LOSS = Within("an attenuator loss", 0.0, 100.0, "dB")
 
 
 @dataclass(frozen=True)
-class Attenuator:
+class Attenuator(StageDefaults):
     """A matched pad of ``loss_db`` (dB, >= 0)."""
 
     name: str
     loss_db: float
 
+    kind = "attenuator"
     transfer = None
     data_range_hz = None
+
+    def describe_figures(self) -> str:
+        """The loss as stated."""
+        return f"loss {self.loss_db:g} dB"
+
+    def spread_figures(self) -> dict[str, str]:
+        """The loss, in dB."""
+        return {"loss": DB}
+
+    def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float) -> SampledStage:
+        """The pad with every sample's loss.
+
+        Parameters
+        ----------
+        deltas : dict of str -> ndarray (n,)
+            ``loss`` shift per sample (dB).
+        n : int
+            Samples in the batch.
+        r_ohm : float
+            System impedance (ohm).
+
+        Returns
+        -------
+        SampledStage
+        """
+        k = 10 ** (-deltas["loss"] / 20)
+        return SampledStage(self.name, None, lambda f: self.response(f) * np.reshape(k, (-1, 1)))
 
     @property
     def gain_db(self) -> float:

@@ -43,12 +43,13 @@ from spurplan.model.ladders import (
     Response,
     SMatrixTable,
     SParameterTable,
+    describe_parts,
     floor_amplitude,
     ladder_elements,
     ladder_network,
     ladder_s21,
 )
-from spurplan.model.stages.base import LoadContext
+from spurplan.model.stages.base import PERCENT, LoadContext, SampledStage, StageDefaults
 from spurplan.units import parse_freq_hz, parse_gain_db
 
 # Below this (Hz) a filter edge or bandwidth is a typing mistake, and its element
@@ -56,10 +57,14 @@ from spurplan.units import parse_freq_hz, parse_gain_db
 MIN_EDGE_HZ = 1.0
 # Unloaded Q of real inductors and capacitors lies well inside this.
 Q_RANGE = (0.5, 1e12)
+# Figures of a synthesized ladder a tolerance or corner may move, by a relative amount:
+# the whole response in frequency (cutoff or center), the unloaded Q of each part type,
+# every element on its own.
+SPREAD_FIGURES = ("cutoff", "center", "q_inductor", "q_capacitor", "elements")
 
 
 @dataclass(frozen=True)
-class Filter:
+class Filter(StageDefaults):
     """A linear filter stage.
 
     Exactly one of ``prototype`` (synthesized ladder) and ``table`` (Touchstone S21
@@ -75,7 +80,62 @@ class Filter:
     notes: tuple[str, ...] = ()
     _cache: dict = field(default_factory=dict, compare=False, repr=False)
 
+    kind = "filter"
     transfer = None
+
+    @property
+    def data_file(self) -> str | None:
+        """The Touchstone file as the lineup names it (``None`` for a prototype)."""
+        return self.source
+
+    def describe_figures(self) -> str:
+        """The prototype (family, response, order, edges, ripple, parts) or the Touchstone file."""
+        if self.prototype is not None:
+            p = self.prototype
+            edge = (
+                f"centre {p.edge_hz / 1e6:g} MHz, bandwidth {p.bandwidth_hz / 1e6:g} MHz"
+                if p.bandwidth_hz
+                else f"cutoff {p.edge_hz / 1e6:g} MHz"
+            )
+            rip = f", ripple {p.ripple_db:g} dB" if p.ripple_db else ""
+            return f"{p.family} {p.response}, order {p.order}, {edge}{rip}; {describe_parts(p)}"
+        return f"Touchstone {self.source}"
+
+    def spread_figures(self) -> dict[str, str]:
+        """A synthesized ladder's figures, each by a relative amount; none for Touchstone data."""
+        return dict.fromkeys(SPREAD_FIGURES, PERCENT) if self.prototype is not None else {}
+
+    def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float) -> SampledStage:
+        """The ladder with every sample's edge, part Q and element values (:func:`ladder_s21`).
+
+        Parameters
+        ----------
+        deltas : dict of str -> ndarray
+            Relative shifts (fractions) of :data:`SPREAD_FIGURES`, (n,); ``elements`` (n, 64),
+            of which a ladder of order N uses the first N columns.
+        n : int
+            Samples in the batch.
+        r_ohm : float
+            System impedance (ohm); the filter's own is used.
+
+        Returns
+        -------
+        SampledStage
+        """
+        proto = self.prototype
+        assert proto is not None  # only a synthesized ladder has figures that spread
+        scale = 1.0 + deltas.get("cutoff", 0.0) + deltas.get("center", 0.0)
+        q_scale = (1.0 + deltas.get("q_inductor", 0.0), 1.0 + deltas.get("q_capacitor", 0.0))
+        parts = deltas.get("elements")
+        if parts is not None:
+            parts = 1.0 + np.asarray(parts)[:, : proto.order]
+
+        def filter_response(f):
+            return ladder_s21(
+                proto, f, self.r_ohm, scale=np.broadcast_to(scale, (n,)), q_scale=q_scale, part_scale=parts
+            )
+
+        return SampledStage(self.name, None, filter_response)
 
     @property
     def data_range_hz(self) -> tuple[float, float] | None:

@@ -90,7 +90,14 @@ import numpy as np
 
 from spurplan.fields import CARRIER_FREQ, Fields, Within
 from spurplan.model.nonlinear import per_sample
-from spurplan.model.stages.base import LoadContext
+from spurplan.model.stages.base import (
+    DB,
+    NONPOLYNOMIAL_DEGREE,
+    Conversion,
+    LoadContext,
+    SampledStage,
+    StageDefaults,
+)
 from spurplan.model.torus_grid import (
     CONVERGENCE_FLOOR,
     CONVERGENCE_RTOL,
@@ -363,7 +370,7 @@ class MixerModel:
 
 
 @dataclass(frozen=True)
-class Mixer:
+class Mixer(StageDefaults):
     """An upconverting mixer stage.
 
     Attributes
@@ -402,7 +409,53 @@ class Mixer:
     iip3_dbm: float | None = None
     tabulated: frozenset = frozenset()
 
+    kind = "mixer"
     data_range_hz = None
+
+    @property
+    def conversion(self) -> Conversion:
+        """LO, wanted sideband and conversion gain."""
+        return Conversion(self.lo_freq_hz, self.sideband, self.conversion_gain_db)
+
+    @property
+    def grid_degree(self) -> int:
+        """The highest ``m + |n|`` of the conversion terms, at least :data:`NONPOLYNOMIAL_DEGREE`."""
+        return max(NONPOLYNOMIAL_DEGREE, max(abs(n) + m for m, n, _ in self.transfer.terms))
+
+    def describe_figures(self) -> str:
+        """LO, conversion gain, sideband and spur table as stated, in one line."""
+        return (
+            f"LO {self.lo_freq_hz / 1e6:g} MHz at {self.lo_power_dbm:+g} dBm, conversion gain "
+            f"{self.conversion_gain_db:+g} dB, {self.sideband} sideband wanted, {len(self.table)} spur-table terms "
+            f"at {self.spur_drive_dbm:+g} dBm IF"
+        )
+
+    def spread_figures(self) -> dict[str, str]:
+        """The conversion gain, in dB."""
+        return {"conversion_gain": DB}
+
+    def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float) -> SampledStage:
+        """The mixer with every sample's conversion gain (:meth:`MixerModel.scaled`).
+
+        Parameters
+        ----------
+        deltas : dict of str -> ndarray (n,)
+            ``conversion_gain`` shift per sample (dB).
+        n : int
+            Samples in the batch.
+        r_ohm : float
+            System impedance (ohm).
+
+        Returns
+        -------
+        SampledStage
+        """
+        return SampledStage(
+            self.name,
+            self.transfer.scaled(deltas["conversion_gain"]),
+            self.response,
+            conversion=self.conversion,
+        )
 
     def missing_figures(self) -> tuple[str, ...]:
         """The figure classes this mixer's file does not state (what is then assumed is in
