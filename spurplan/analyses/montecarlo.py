@@ -563,24 +563,14 @@ class YieldResult:
     def interval(self) -> tuple[float, float]:
         return wilson_interval(self.passed, self.samples)
 
-    def summary(self) -> dict:
-        from spurplan.output.provenance import provenance
-
-        lo, hi = self.interval
-        return {
-            "lineup": self.lineup.name,
-            "samples": self.samples,
-            "seed": self.seed,
-            "passed": self.passed,
-            "yield": self.yield_fraction,
-            "interval_95": [lo, hi],
-            "interval_method": "Wilson score",
-            "causes": self.causes,
-            "ran_on": self.where,
-            **provenance(self.lineup),
-        }
+    @property
+    def rows(self) -> dict[str, list]:
+        """:attr:`causes` as columns: ``label``, ``rule``, ``samples`` and ``fraction``."""
+        return {c: [r[c] for r in self.causes] for c in ("label", "rule", "samples", "fraction")}
 
     def plot(self, size_px=(1000, 600)):
+        """Histogram of the samples' worst margins; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import yield_figure
 
         return yield_figure(self, size_px)

@@ -218,6 +218,8 @@ class DriveSweep:
     status : str
         "limited", "compliant throughout", "fails throughout" or "fails at the lowest
         drive" (some higher drive passes, but no stretch from the low end does).
+    target_output : bool
+        Whether the swept drive was the carrier's output power (else its input power).
     """
 
     lineup: Lineup
@@ -234,6 +236,7 @@ class DriveSweep:
     limiting: dict | None
     status: str
     extrapolated: np.ndarray
+    target_output: bool = False
 
     @property
     def rows(self) -> dict[str, list]:
@@ -261,6 +264,7 @@ class DriveSweep:
 
     def plot(self, size_px=(1200, 700)):
         """Products and limits against drive; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import drive_figure
 
         return drive_figure(self, size_px)
@@ -270,23 +274,6 @@ class DriveSweep:
         import pandas as pd
 
         return pd.DataFrame(self.rows)
-
-    def _repr_html_(self) -> str:
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import DRIVE_TABLE, drive_display
-
-        return f"<p><b>{self.status}</b>: {self.summary()}</p>" + html_table(
-            drive_display(self.rows), DRIVE_TABLE
-        )
-
-    def summary(self) -> dict:
-        return {
-            "lineup": self.lineup.name,
-            "status": self.status,
-            "max_compliant_input_dbm": self.max_compliant_input_dbm,
-            "max_compliant_output_dbm": self.max_compliant_output_dbm,
-            "limiting": self.limiting,
-        }
 
 
 def drive_sweep(
@@ -389,6 +376,7 @@ def drive_sweep(
         limiting=limiting,
         status=status,
         extrapolated=extrap,
+        target_output=target_output,
     )
 
 
@@ -484,6 +472,7 @@ class TuneSweep:
 
     def plot(self, size_px=(1200, 700)):
         """Product frequency against carrier frequency; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import tune_figure
 
         return tune_figure(self, size_px)
@@ -494,26 +483,15 @@ class TuneSweep:
 
         return pd.DataFrame(self.rows)
 
-    def _repr_html_(self) -> str:
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import TUNE_TABLE, tune_display
-
-        head = "every channel passes" if not self.failing else f"{len(self.failing)} failing range(s)"
-        return f"<p><b>{head}</b></p>" + html_table(tune_display(self.rows), TUNE_TABLE)
-
     @property
     def variable(self) -> str:
         """What was swept: "LO" (first mixer's LO) or "carrier"."""
         return "LO" if self.lineup.mixers else "carrier"
 
-    def summary(self) -> dict:
-        return {
-            "lineup": self.lineup.name,
-            "swept": self.variable,
-            "channels": len(self.carrier_hz),
-            "pass": not self.failing,
-            "failing_ranges": self.failing,
-        }
+    @property
+    def passed(self) -> bool:
+        """Whether every channel meets the mask (no failing range)."""
+        return not self.failing
 
 
 def tune_sweep(
