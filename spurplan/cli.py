@@ -1,4 +1,5 @@
-"""Command line: parse, call the library, format.  Nothing else lives here.
+"""Command line: parse, call the library, print.  Nothing else lives here: the texts,
+tables and documents it prints are built in the output wing (:mod:`spurplan.output`).
 
 Only click is imported at module level so that ``spurplan --help`` starts fast;
 numpy and the rest load when a command runs.
@@ -12,25 +13,6 @@ import click
 
 from spurplan import __version__
 from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
-from spurplan.output.tables import (
-    BANDS_TABLE,
-    BUDGET_TABLE,
-    CHECK_TABLE,
-    DRIVE_TABLE,
-    ELEMENT_TABLE,
-    NEEDED_TABLE,
-    PRODUCT_TABLE,
-    RESPONSE_TABLE,
-    RULES_TABLE,
-    SPUR_TABLE,
-    TUNE_TABLE,
-    check_display,
-    element_display,
-    mhz,
-    product_display,
-    spur_display,
-    tune_display,
-)
 
 EPILOG = f"{PLANNING_NOTICE} {POWER_NOTICE}"
 FORMATS = ("table", "csv", "json")
@@ -121,17 +103,21 @@ def main():
     """
 
 
-def _machine_output(fmt: str, summary: dict, rows_key: str, rows: dict) -> bool:
-    """Print JSON or CSV for ``--format json|csv``; False when the caller prints a table."""
-    from spurplan.output.formatting import to_csv, to_json
-
+def _machine_output(fmt: str, doc) -> bool:
+    """Print a :class:`~spurplan.output.documents.Document` for ``--format json|csv``;
+    False when the caller prints a table."""
     if fmt == "json":
-        click.echo(to_json(summary, rows_key, rows), nl=False)
+        click.echo(doc.json(), nl=False)
     elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
+        click.echo(doc.csv(), nl=False)
     else:
         return False
     return True
+
+
+def _echo_lines(lines, err: bool = False) -> None:
+    for line in lines:
+        click.echo(line, err=err)
 
 
 def _lineup_arg(f):
@@ -183,38 +169,17 @@ def _load(path):
 
 
 def _warn_model(lineup) -> None:
-    """The lineup's model notes and, where figures are missing, the incomplete-model warning:
-    every command that reports a result prints them, so that no answer rests silently on a
-    figure nobody gave."""
-    from spurplan.analyses.check import model_gaps
+    """The lineup's model notes and warnings on stderr (:func:`spurplan.output.terminal.model_warnings`)."""
+    from spurplan.output.terminal import model_warnings
 
-    for note in lineup.notes:
-        click.echo(f"spurplan: note: {note}", err=True)
-    missing = lineup.missing_figures()
-    if missing:
-        click.echo(
-            f"spurplan: warning: model incomplete, {model_gaps(missing, ())}: the products those figures "
-            "describe are left out (compression: the stage stays linear). Give the figures, or run "
-            "check with --strict to treat this as a failure.",
-            err=True,
-        )
+    _echo_lines(model_warnings(lineup), err=True)
 
 
 def _warn(result) -> None:
-    _warn_model(result.lineup)
-    problems = (
-        (
-            result.extrapolated_stages,
-            "polynomial model driven past where it holds (1 dB gain deviation)",
-            "model_extrapolated. Add p1db or psat for a saturating model",
-        ),
-        (result.unconverged_stages, "model did not converge on the largest grid", "not_converged"),
-    )
-    for stages, what, flag in problems:
-        if stages:
-            click.echo(
-                f"spurplan: warning: {what} in {', '.join(stages)}; rows are flagged {flag}.", err=True
-            )
+    """:func:`_warn_model`, then the stages driven past their model (stderr)."""
+    from spurplan.output.terminal import run_warnings
+
+    _echo_lines(run_warnings(result), err=True)
 
 
 @main.command(epilog=EPILOG)
@@ -224,19 +189,16 @@ def _warn(result) -> None:
 @_combine_option
 def spectrum(lineup, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
-    from spurplan.output.formatting import text_table
+    from spurplan.output.documents import products_document
+    from spurplan.output.terminal import products_text
 
     result = _load(lineup).run()
     if stage is not None:
         result.node_index(stage)
-    rows = result.product_rows(stage, combine)
-    summary = result.summary(stage, combine)
+    doc = products_document(result, stage, combine)
     _warn(result)
-    if not _machine_output(fmt, summary, "products", rows):
-        shown = product_display(rows)
-        click.echo(f"{summary['lineup']}: products at {summary['node']} (combine = {summary['combine']})")
-        click.echo(text_table(shown, PRODUCT_TABLE), nl=False)
-        click.echo(PLANNING_NOTICE)
+    if not _machine_output(fmt, doc):
+        click.echo(products_text(result, doc.rows, stage, combine), nl=False)
 
 
 @main.command(epilog=EPILOG)
@@ -244,22 +206,14 @@ def spectrum(lineup, stage, fmt, combine):
 @_format_option
 def budget(lineup, fmt):
     """Print the cascade budget of LINEUP: levels, gains, cascaded IP3, P1dB headroom."""
-    from spurplan.analyses.budget import budget_rows
-    from spurplan.output.formatting import text_table, to_csv, to_json
-    from spurplan.output.provenance import provenance
+    from spurplan.output.documents import budget_document
+    from spurplan.output.terminal import budget_text
 
     result = _load(lineup).run()
-    rows = budget_rows(result)
+    doc = budget_document(result)
     _warn(result)
-    if fmt == "json":
-        summary = {"lineup": result.lineup.name, **provenance(result.lineup)}
-        click.echo(to_json(summary, "stages", rows), nl=False)
-    elif fmt == "csv":
-        click.echo(to_csv(rows), nl=False)
-    else:
-        click.echo(f"{result.lineup.name}: cascade budget (strongest carrier)")
-        click.echo(text_table(rows, BUDGET_TABLE), nl=False)
-        click.echo(PLANNING_NOTICE)
+    if not _machine_output(fmt, doc):
+        click.echo(budget_text(result, doc.rows), nl=False)
 
 
 @main.command("filter", epilog=EPILOG)
@@ -305,7 +259,8 @@ def filter_cmd(
     command line (--family, --order, --cutoff ...).
     """
     from spurplan.analyses.filter_view import prototype_view, stage_view
-    from spurplan.output.formatting import text_table, to_json
+    from spurplan.output.documents import filter_document
+    from spurplan.output.terminal import filter_text, note_lines
 
     if family is not None:
         spec = {
@@ -331,25 +286,18 @@ def filter_cmd(
             )
         view = stage_view(_load(lineup), stage)
     if plot_file:
-        view.save_plot(plot_file)
-    if ts_file:
-        view.save_touchstone(ts_file)
-    if fmt == "json":
-        click.echo(to_json(view.summary(), "products", view.response), nl=False)
-        return
-    if fmt == "csv":
-        from spurplan.output.formatting import to_csv
+        from spurplan.output.plots import save_filter_plot
 
-        click.echo(to_csv(view.response), nl=False)
+        save_filter_plot(view, plot_file)
+    if ts_file:
+        from spurplan.output.files import save_touchstone
+
+        save_touchstone(view, ts_file)
+    if fmt != "table":
+        _machine_output(fmt, filter_document(view))
         return
-    click.echo(view.title)
-    if view.elements["position"]:
-        click.echo(text_table(view.element_display(), ELEMENT_TABLE), nl=False)
-    if view.response["freq_hz"]:
-        click.echo("")
-        click.echo(text_table(view.response_display(), RESPONSE_TABLE), nl=False)
-    for note in view.notes:
-        click.echo(f"spurplan: note: {note}", err=True)
+    click.echo(filter_text(view), nl=False)
+    _echo_lines(note_lines(view.notes), err=True)
     click.echo(PLANNING_NOTICE)
 
 
@@ -386,29 +334,19 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
     UNCERTAIN), 2 bad input.
     """
     from spurplan.analyses.check import check as run_check
-    from spurplan.output.formatting import text_table
+    from spurplan.output.documents import check_document
+    from spurplan.output.terminal import check_text, note_lines
 
     size = _size(plot_size)
     outcome = run_check(_load(lineup), combine=combine)
     _warn(outcome.result)
-    for note in outcome.notes:
-        click.echo(f"spurplan: note: {note}", err=True)
+    _echo_lines(note_lines(outcome.notes), err=True)
     if plot_file:
         from spurplan.output.plots import save_check_plot
 
         save_check_plot(outcome, plot_file, size)
-    rows = outcome.rows
-    if not _machine_output(fmt, outcome.summary(), "products", rows):
-        click.echo(f"{outcome.result.lineup.name}: products at the output against the mask")
-        click.echo(text_table(check_display(rows), CHECK_TABLE), nl=False)
-        summary = outcome.summary()
-        tail = (
-            f"; {summary['failing']} of {summary['checked']} checked products fail"
-            if outcome.worst is not None
-            else ""
-        )
-        click.echo(f"VERDICT: {outcome.verdict}{tail}")
-        click.echo(PLANNING_NOTICE)
+    if not _machine_output(fmt, check_document(outcome)):
+        click.echo(check_text(outcome), nl=False)
     sys.exit(1 if outcome.strict_failure(True if strict else None) else 0)
 
 
@@ -417,23 +355,16 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
 @_format_option
 def bands(name, fmt):
     """List the shipped rule sets and band lists, or show NAME with its sources."""
-    from spurplan.analyses.bands_view import band_rows, catalogue_rows, describe
-    from spurplan.output.formatting import text_table
+    from spurplan.analyses.bands_view import band_rows, catalogue_rows
+    from spurplan.output.documents import bands_document
+    from spurplan.output.terminal import catalogue_text, ruleset_text
 
     if name is None:
-        rows = catalogue_rows()
-        table, title, summary = (
-            BANDS_TABLE,
-            "Shipped rule sets and band lists (use them in [mask] use = [...])",
-            {},
-        )
+        rows, summary = catalogue_rows(), {}
     else:
         rows, summary = band_rows(name)
-        table, title = RULES_TABLE, describe(summary)
-    if not _machine_output(fmt, summary, "entries", rows):
-        click.echo(title)
-        click.echo(text_table(rows, table), nl=False)
-        click.echo(PLANNING_NOTICE)
+    if not _machine_output(fmt, bands_document(rows, summary)):
+        click.echo(catalogue_text(rows) if name is None else ruleset_text(rows, summary), nl=False)
 
 
 def _progress(total: int, label: str):
@@ -477,8 +408,8 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
     from spurplan.analyses.sweep import drive_sweep
     from spurplan.io.channels import sweep_points
-    from spurplan.output.formatting import text_table
-    from spurplan.output.provenance import provenance
+    from spurplan.output.documents import drive_document
+    from spurplan.output.terminal import drive_text
 
     lo, hi = _parse("power", start, "--start"), _parse("power", stop, "--stop")
     dstep = _parse("db", step, "--step")
@@ -500,35 +431,8 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
         from spurplan.output.plots import save_drive_plot
 
         save_drive_plot(sw, plot_file, size)
-    rows = sw.rows
-    summary = {**sw.summary(), **provenance(lu)}
-    if not _machine_output(fmt, summary, "points", rows):
-        shown = dict(rows)
-        shown["verdict"] = ["FAIL" if p is False else ("pass" if p else "-") for p in rows["pass"]]
-        click.echo(
-            f"{lu.name}: drive sweep ({'output' if target_output else 'input'} of the strongest carrier)"
-        )
-        click.echo(text_table(shown, DRIVE_TABLE), nl=False)
-        if sw.status == "limited":
-            lim = sw.limiting
-            click.echo(
-                f"HIGHEST COMPLIANT DRIVE: input {sw.max_compliant_input_dbm:+.2f} dBm, output "
-                f"{sw.max_compliant_output_dbm:+.2f} dBm; above it {lim['label']} at {lim['freq_hz'] / 1e6:.6f} MHz "
-                f"fails {lim['rule']}" + (f" (in {lim['band']})" if lim["band"] else "")
-            )
-        elif sw.status == "fails throughout":
-            click.echo("HIGHEST COMPLIANT DRIVE: none in the range (the mask is violated at every drive)")
-        elif sw.status == "fails at the lowest drive":
-            click.echo(
-                "HIGHEST COMPLIANT DRIVE: none from the bottom of the range (the mask is violated at the "
-                f"lowest drive, {sw.input_dbm[0]:+.2f} dBm in; some higher drives pass, which is no compliant "
-                "range to sign)"
-            )
-        else:
-            click.echo(
-                f"HIGHEST COMPLIANT DRIVE: the mask is met over the whole range (up to {sw.max_compliant_input_dbm:+.2f} dBm in)"
-            )
-        click.echo(PLANNING_NOTICE)
+    if not _machine_output(fmt, drive_document(sw)):
+        click.echo(drive_text(sw), nl=False)
 
 
 @main.command(epilog=EPILOG)
@@ -550,8 +454,8 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
     from spurplan.analyses.sweep import tune_sweep
     from spurplan.io.channels import read_channels, sweep_points
-    from spurplan.output.formatting import text_table
-    from spurplan.output.provenance import provenance
+    from spurplan.output.documents import tune_document
+    from spurplan.output.terminal import tune_text
 
     size = _size(plot_size)
     if channel_file:
@@ -571,22 +475,9 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
         from spurplan.output.plots import save_tune_plot
 
         save_tune_plot(sw, plot_file, size)
-    summary = {**sw.summary(), **provenance(lu)}
-    rows = sw.rows
-    if not _machine_output(fmt, summary, "rows", rows):
-        shown = tune_display(rows)
-        click.echo(f"{lu.name}: {len(freqs)} channels, products that fail or land in a protected band")
-        click.echo(text_table(shown, TUNE_TABLE), nl=False)
-        if not sw.failing:
-            click.echo("TUNING RANGE: every channel meets the mask")
-        for r in sw.failing:
-            click.echo(
-                f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
-                + (f" (in {r['band']})" if r["band"] else "")
-                + f", worst margin {r['worst_margin_db']:+.2f} dB"
-            )
-        click.echo(PLANNING_NOTICE)
-    sys.exit(1 if sw.failing else 0)
+    if not _machine_output(fmt, tune_document(sw)):
+        click.echo(tune_text(sw), nl=False)
+    sys.exit(0 if sw.passed else 1)
 
 
 @main.command(epilog=EPILOG)
@@ -631,11 +522,12 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
     filter up to the highest order is enough, 2 bad input.
     """
-    from spurplan.analyses.remedy import MARGIN_TARGET, write_fixed
+    from spurplan.analyses.remedy import MARGIN_TARGET
     from spurplan.analyses.remedy import remedy as find_remedy
-    from spurplan.model.ladders import parts_text
     from spurplan.model.stages.filter import parse_floor_db, parse_q
-    from spurplan.output.formatting import text_table, to_json
+    from spurplan.output.documents import remedy_document
+    from spurplan.output.remedy_file import write_fixed
+    from spurplan.output.terminal import remedy_text
 
     target = _parse("db", margin, "--margin", MARGIN_TARGET)
     parts = {}
@@ -665,43 +557,11 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     edited = write_fixed(lu, found, write_file) if write_file and found.found else None
     _warn_model(lu)
     if fmt == "json":
-        click.echo(to_json(found.summary(), "needed", found.needed), nl=False)
-        sys.exit(0 if found.found or not found.needed["freq_hz"] else 1)
-    click.echo(f"{lu.name}: remedy for a {target:g} dB margin")
-    click.echo(
-        f"Filter parts assumed: {parts_text(**found.parts)} (set with --q-inductor, --q-capacitor, --floor)"
-    )
-    if not found.needed["freq_hz"]:
-        click.echo(f"Nothing to do: {found.reason}.")
-        click.echo(PLANNING_NOTICE)
-        return
-    shown = dict(found.needed)
-    shown["freq_mhz"] = mhz(shown["freq_hz"])
-    click.echo(text_table(shown, NEEDED_TABLE), nl=False)
-    if not found.found:
-        click.echo(f"NO FILTER FOUND: {found.reason}.")
-        click.echo(PLANNING_NOTICE)
-        sys.exit(1)
-    out = found.outcome
-    click.echo("")
-    where = f"after stage '{found.after}'" if found.after else "at the lineup input"
-    click.echo(f"Insert {where}:")
-    click.echo(found.snippet)
-    click.echo(text_table(element_display(found.filter.elements()), ELEMENT_TABLE), nl=False)
-    word = "PASS" if out.passed else "FAIL"
-    worst = out.rows
-    i = out.worst
-    click.echo(
-        f"RE-CHECKED WITH THE FILTER: {word}, worst margin {out.worst_margin_db:+.2f} dB ({worst['label'][i]} at "
-        f"{worst['freq_hz'][i] / 1e6:.6f} MHz); carrier at the output {out.carrier_dbm:+.2f} dBm "
-        f"(was {found.before.carrier_dbm:+.2f} dBm)"
-    )
-    if edited is not None:
-        moved = "; ".join(f"{old!r} -> {new!r}" for old, new in edited.moved)
-        click.echo(
-            f"wrote {write_file}" + (f" (data paths rewritten for its folder: {moved})" if moved else "")
-        )
-    click.echo(PLANNING_NOTICE)
+        click.echo(remedy_document(found).json(), nl=False)
+    else:
+        click.echo(remedy_text(found, edited, write_file), nl=False)
+    # Exit 1 only when products fall short and no filter is enough.
+    sys.exit(1 if found.needed["freq_hz"] and not found.found else 0)
 
 
 @main.command(epilog=EPILOG)
@@ -742,20 +602,14 @@ def report(lineup, out_file):
 @_plot_size_option
 def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
-    from spurplan.analyses.spur_chart import spur_chart
-    from spurplan.output.formatting import text_table
+    from spurplan.analyses.spur_chart import LO_SPAN, spur_chart
+    from spurplan.output.documents import spur_document
+    from spurplan.output.terminal import spurs_text
 
     size = _size(plot_size)
     lu = _load(lineup)
     chart = spur_chart(lu, stage, max_order)
-    rows = chart.rows
-    if not show_all:
-        keep = [
-            i
-            for i, (t, v) in enumerate(zip(rows["table_dbc"], rows["model_dbm"], strict=True))
-            if t is not None or v is not None
-        ]
-        rows = {c: [vals[i] for i in keep] for c, vals in rows.items()}
+    rows = chart.rows if show_all else chart.rows_with_levels
     if plot_file:
         from spurplan.model.stages.mixer import LO_FREQ
         from spurplan.output.plots import save_spur_plot
@@ -763,8 +617,8 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
 
         lo = chart.mixer.lo_freq_hz
         span = (
-            _parse("freq", lo_start, "--lo-start", LO_FREQ) if lo_start else 0.8 * lo,
-            _parse("freq", lo_stop, "--lo-stop", LO_FREQ) if lo_stop else 1.2 * lo,
+            _parse("freq", lo_start, "--lo-start", LO_FREQ) if lo_start else LO_SPAN[0] * lo,
+            _parse("freq", lo_stop, "--lo-stop", LO_FREQ) if lo_stop else LO_SPAN[1] * lo,
         )
         if not span[0] < span[1]:
             raise click.BadParameter(
@@ -773,24 +627,8 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
                 param_hint="--lo-start/--lo-stop",
             )
         save_spur_plot(chart, span, plot_file, size)
-    if not _machine_output(fmt, chart.summary(), "products", rows):
-        m = chart.mixer
-        click.echo(
-            f"{lu.name}: mixer '{m.name}', LO {m.lo_freq_hz / 1e6:.6g} MHz, {m.sideband} sideband wanted; "
-            f"passband of '{chart.filter_name or 'no filter after the mixer'}'"
-        )
-        click.echo(text_table(spur_display(rows), SPUR_TABLE), nl=False)
-        hits = chart.summary()["in_passband"]
-        click.echo("IN THE PASSBAND: " + (", ".join(hits) if hits else "no product besides the wanted one"))
-        click.echo(PLANNING_NOTICE)
-
-
-CAUSE_TABLE = [
-    ("label", "product", None),
-    ("rule", "rule", None),
-    ("samples", "failing samples", "d"),
-    ("fraction", "fraction", ".4f"),
-]
+    if not _machine_output(fmt, spur_document(chart, rows)):
+        click.echo(spurs_text(chart, rows), nl=False)
 
 
 @main.command("yield", epilog=EPILOG)
@@ -821,7 +659,8 @@ def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot
     """Monte Carlo yield of LINEUP over its part tolerances and corners."""
     from spurplan.analyses.montecarlo import check_scheduler_address, run_yield
     from spurplan.io.channels import read_channels
-    from spurplan.output.formatting import text_table, to_json
+    from spurplan.output.documents import yield_document
+    from spurplan.output.terminal import yield_text
 
     if scheduler is not None and workers is not None:
         raise click.UsageError("give either --scheduler or --workers")
@@ -844,19 +683,10 @@ def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot
         from spurplan.output.plots import save_yield_plot
 
         save_yield_plot(res, plot_file)
-    causes = {c: [r[c] for r in res.causes] for c in ("label", "rule", "samples", "fraction")}
     if fmt == "json":
-        click.echo(to_json(res.summary(), "causes", causes), nl=False)
-        return
-    lo, hi = res.interval
-    click.echo(f"{lu.name}: Monte Carlo yield, {samples} samples, seed {seed}, {res.where}")
-    click.echo(
-        f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {samples} pass); 95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
-    )
-    if res.causes:
-        click.echo("What fails the rest (worst product of each failing sample):")
-        click.echo(text_table(causes, CAUSE_TABLE), nl=False)
-    click.echo(PLANNING_NOTICE)
+        click.echo(yield_document(res).json(), nl=False)
+    else:
+        click.echo(yield_text(res), nl=False)
 
 
 if __name__ == "__main__":  # pragma: no cover

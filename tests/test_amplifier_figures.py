@@ -247,8 +247,10 @@ def test_missing_figures_never_pass(figures, missing):
     # A compliance verdict may not rest on a figure nobody gave (common practice, no
     # source: an unstated figure is unknown, not zero): the verdict says INCOMPLETE and
     # names what is missing; the JSON summary says complete: false with the list.
+    from spurplan.output.documents import check_summary
+
     outcome = check(from_dict(_doc(amp("pa", gain="20 dB", **figures))))
-    summary = outcome.summary()
+    summary = check_summary(outcome)
     named = {m["figure"].split()[0] for m in summary["missing_figures"]}
     assert named == missing
     assert summary["complete"] is (not missing)

@@ -187,8 +187,10 @@ def test_library_error_names_the_parameter_and_the_cli_its_option(tmp_path):
 
 
 def test_no_library_module_spells_a_command_line_option():
-    # Every option of every command, as click declares it; no module but the CLI may
-    # write one in a message (docstrings, which document the CLI, are not messages).
+    # Every option of every command, as click declares it; no module but the CLI and the
+    # text it prints (output/terminal.py, which may point at an option: "check with
+    # --strict") may write one in a message (docstrings, which document the CLI, are not
+    # messages).
     import ast
 
     from spurplan.cli import main
@@ -203,7 +205,7 @@ def test_no_library_module_spells_a_command_line_option():
     package = Path(spurplan.__file__).parent
     found = []
     for path in package.rglob("*.py"):
-        if path.name == "cli.py":
+        if path.name == "cli.py" or path.relative_to(package).as_posix() == "output/terminal.py":
             continue
         tree = ast.parse(path.read_text(encoding="utf-8"))
         docstrings = {

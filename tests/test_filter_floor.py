@@ -17,9 +17,10 @@ from test_sweeps import _failing_lineup_text
 
 import spurplan
 from spurplan.analyses.check import check
-from spurplan.analyses.remedy import remedy, write_fixed
+from spurplan.analyses.remedy import remedy
 from spurplan.io.lineup_file import from_dict
 from spurplan.model.ladders import Prototype, chebyshev_g, ladder_s21
+from spurplan.output.remedy_file import write_fixed
 
 R0 = 50.0
 LOSSLESS = {"q_inductor": "lossless", "q_capacitor": "lossless"}

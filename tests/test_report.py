@@ -155,8 +155,10 @@ def test_repr_html_of_a_check_has_the_verdict_and_the_worst_row(example):
 def test_notebook_objects_give_frames_and_figures(example):
     import matplotlib.figure
 
+    from spurplan.output.documents import products_html
+
     result = example.run()
-    assert "<table>" in result._repr_html_()
+    assert "<table>" in products_html(result) and result._repr_html_() == products_html(result)
     assert list(result.products().columns)[:3] == ["freq_hz", "level_dbm", "dbc"]
     outcome = check(example, result)
     assert len(outcome.table()) == len(outcome.rows["freq_hz"])
@@ -164,6 +166,36 @@ def test_notebook_objects_give_frames_and_figures(example):
         assert isinstance(fig, matplotlib.figure.Figure)
         from spurplan.output.plots import close
 
+        close(fig)
+
+
+def test_sweep_views_have_one_html_row_per_point_and_every_result_a_figure(example):
+    # An HTML table has one <tr> for its header and one per row (HTML Living Standard,
+    # "The tr element"; from memory); every result object draws itself.
+    import matplotlib.figure
+
+    from spurplan.analyses.filter_view import prototype_view
+    from spurplan.analyses.spur_chart import spur_chart
+    from spurplan.analyses.sweep import drive_sweep, tune_sweep
+    from spurplan.output.documents import drive_html, tune_html
+    from spurplan.output.plots import close
+
+    sweep = drive_sweep(example, -20.0, -18.0, 1.0)
+    text = drive_html(sweep)
+    assert text.count("<tr>") == 1 + 3 and f"<b>{sweep.status}</b>" in text
+    assert sweep._repr_html_() == text
+    tuned = tune_sweep(example, np.array([455.0125e6, 456.0125e6]))
+    text = tune_html(tuned)
+    assert tuned._repr_html_() == text
+    assert text.count("<tr>") == 1 + len(tuned.rows["carrier_hz"])
+    assert ("every channel passes" in text) is tuned.passed
+    view = prototype_view({"family": "butterworth", "order": 3, "cutoff": "520 MHz"}, "50 ohm", "455 MHz")
+    chart = spur_chart(spurplan.load(example_path("upconverter_low_side.toml")), "mixer", 3)
+    # m + |n| <= 3 with m >= 0 and no n <= 0 at m = 0 gives 3 + 5 + 3 + 1 = 12 products
+    # (counting the (m, n) pairs; arithmetic).
+    assert len(chart.rows["m"]) == 12
+    for fig in (sweep.plot(), tuned.plot(), view.plot(), chart.plot()):
+        assert isinstance(fig, matplotlib.figure.Figure)
         close(fig)
 
 
@@ -175,3 +207,16 @@ def test_build_report_lists_rule_set_sources(example):
     html = report.to_html("now")
     for s in example.mask.sets:
         assert s.name in html
+
+
+def test_notebook_views_escape_a_lineup_name(example):
+    # A name from the user's file is text, never markup (README: "written as text, never
+    # as markup"); html.escape of "<b>" is "&lt;b&gt;" (Python standard library docs).
+    import dataclasses
+    import html
+
+    from spurplan.analyses.sweep import drive_sweep
+
+    lineup = dataclasses.replace(example, name="<b>x</b>")
+    for view in (lineup.run()._repr_html_(), drive_sweep(lineup, -20.0, -19.0, 1.0)._repr_html_()):
+        assert "<b>x</b>" not in view and html.escape("<b>x</b>") in view

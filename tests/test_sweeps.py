@@ -12,10 +12,11 @@ from helpers import amp
 
 import spurplan
 from spurplan.analyses.check import check
-from spurplan.analyses.remedy import FAMILIES_TRIED, remedy, write_fixed
+from spurplan.analyses.remedy import FAMILIES_TRIED, remedy
 from spurplan.analyses.sweep import drive_sweep, tune_sweep
 from spurplan.cli import main
 from spurplan.io.lineup_file import from_dict
+from spurplan.output.remedy_file import write_fixed
 
 FLAT = {"rule": [{"start": "9 kHz", "stop": "20 GHz", "limit": "-60 dBm", "name": "flat"}]}
 
@@ -64,6 +65,23 @@ def test_highest_compliant_output_matches_the_analytic_solution(n, ohip, limit):
     assert sweep.status == "limited"
     assert sweep.max_compliant_output_dbm == pytest.approx((limit + (n - 1) * ohip) / n, abs=0.02)
     assert sweep.limiting["label"] == f"{n}f1"
+
+
+def test_terminal_and_report_state_the_same_highest_compliant_drive():
+    # The analytic case above (h2 from OHIP2 +50 dBm, L = -40 dBm: P = +5 dBm out,
+    # arithmetic): the terminal line and the report sentence give the same edge, to 0.02 dB.
+    from spurplan.output.verdicts import drive_verdict
+
+    stages = [amp(gain="20 dB", ohip2="+50.0 dBm")]
+    mask = {"rule": [{"start": "9 kHz", "stop": "20 GHz", "limit": "-40 dBm"}]}
+    sweep = drive_sweep(_lineup(stages, [{"freq": "100 MHz", "power": "-30 dBm"}], mask), -30, 20, 1.0)
+    line, sentence = drive_verdict(sweep, "terminal"), drive_verdict(sweep, "report")
+    edge_out = float(sentence.split(" dBm out")[0].split(", ")[-1])
+    assert edge_out == pytest.approx(5.0, abs=0.02)
+    assert line.startswith("HIGHEST COMPLIANT DRIVE: ") and f"output {edge_out:+.2f} dBm" in line
+    assert "2f1" in line and "2f1" in sentence
+    with pytest.raises(ValueError, match="style"):
+        drive_verdict(sweep, "html")
 
 
 def test_target_output_sweep_inverts_the_transfer():

@@ -70,10 +70,3 @@ def _conditions(rule) -> str:
     if rule.floor_dbm is not None:
         parts.append(f"need not be below {rule.floor_dbm:.2f} dBm")
     return f" ({', '.join(parts)})" if parts else ""
-
-
-def describe(summary: dict) -> str:
-    text = f"{summary['name']}: {summary['title']}\nsource: {summary['source']}"
-    if summary.get("notes"):
-        text += f"\nnotes: {summary['notes']}"
-    return text

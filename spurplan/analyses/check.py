@@ -21,7 +21,6 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.errors import LineupError
-from spurplan.notices import PLANNING_NOTICE
 
 if TYPE_CHECKING:  # annotations only; the check runs on a Result it is handed
     from spurplan.engine.result import Result
@@ -139,50 +138,41 @@ class CheckResult:
         strict = self.result.lineup.analysis.strict if strict is None else strict
         return not self.passed or (strict and self.status != "PASS")
 
-    def summary(self) -> dict:
-        from spurplan.output.provenance import provenance
+    @property
+    def n_failing(self) -> int:
+        """Products that fail their rule."""
+        return sum(1 for p in self.rows["pass"] if p is False)
 
-        lineup = self.result.lineup
-        mask = lineup.mask
-        assert mask is not None  # check() made this result, and it refuses a lineup without one
-        worst = None if self.worst is None else {c: self.rows[c][self.worst] for c in CHECK_COLUMNS}
-        failing = sum(1 for p in self.rows["pass"] if p is False)
-        return {
-            "lineup": lineup.name,
-            "status": self.status,
-            "pass": self.passed,
-            "complete": self.complete,
-            "missing_figures": [{"stage": st, "figure": what} for st, what in self.missing_figures],
-            "figures_met": not self.figures_missed,
-            "figure_checks": figure_check_rows(lineup),
-            "worst_margin_db": self.worst_margin_db,
-            "worst": worst,
-            "failing": failing,
-            "checked": sum(1 for p in self.rows["pass"] if p is not None),
-            "carrier_total_dbm": self.carrier_dbm,
-            "rule_sets": [{"name": s.name, "title": s.title, "source": s.source} for s in mask.sets],
-            "notes": list(self.notes) + list(lineup.notes),
-            "model_extrapolated": self.result.extrapolated_stages,
-            **provenance(lineup),
-            "notice": PLANNING_NOTICE,
-        }
+    @property
+    def n_checked(self) -> int:
+        """Products a rule applies to."""
+        return sum(1 for p in self.rows["pass"] if p is not None)
+
+    def limit_line_dbm(self, freq_hz: np.ndarray) -> np.ndarray:
+        """The most stringent limit (dBm) at ``freq_hz``, as :func:`limit_line` gives it.
+
+        Parameters
+        ----------
+        freq_hz : ndarray
+            Frequencies (Hz), any shape.
+
+        Returns
+        -------
+        ndarray, same shape as ``freq_hz``
+            The limit (dBm, each in its own RBW), NaN where no rule covers the frequency.
+        """
+        return limit_line(self, freq_hz)
 
     def _repr_html_(self) -> str:
         """Jupyter: the verdict, then the product table with failing rows marked."""
-        import html
+        # the one upward door: presentation, imported on use
+        from spurplan.output.documents import check_html
 
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import CHECK_TABLE, check_display
-
-        s = self.summary()
-        verdict = self.verdict
-        failing = [p is False for p in self.rows["pass"]]
-        table = html_table(check_display(self.rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None)
-        style = "<style>tr.fail td {background: #fde2e2; font-weight: bold}</style>"
-        return f"{style}<p><b>{html.escape(s['lineup'])}</b></p><p><b>{html.escape(verdict)}</b></p>{table}"
+        return check_html(self)
 
     def plot(self, size_px=(1200, 700)):
         """The output spectrum against the mask; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import check_figure
 
         return check_figure(self, size_px)

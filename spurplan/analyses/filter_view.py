@@ -8,19 +8,13 @@ a carrier, if one is given).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
 
 from spurplan.errors import LineupError, UnitError
 from spurplan.fields import Fields
-from spurplan.model.ladders import describe_parts
 from spurplan.model.stages.filter import Filter, assumed_notes, read_prototype
-from spurplan.output import escaping
-from spurplan.output.files import save_figure, write_atomic
-from spurplan.output.provenance import provenance
-from spurplan.output.tables import element_display, mhz
 from spurplan.units import parse_freq_hz, parse_impedance_ohm
 
 if TYPE_CHECKING:  # annotations only
@@ -34,62 +28,50 @@ PROTOTYPE_HARMONICS = 10
 
 @dataclass(frozen=True)
 class FilterView:
-    """A filter with the product frequencies it is asked about."""
+    """A filter with the product frequencies it is asked about.
 
-    title: str
+    Attributes
+    ----------
+    stage : Filter
+        The filter (a lineup's stage, or a prototype on its own).
+    response : dict of str -> list
+        Its response at the products: ``freq_hz, label, order, level_in_dbm, s21_db,
+        s21_deg, beyond_data`` (Hz, dBm, dB, degrees).
+    notes : tuple of str
+    lineup : Lineup or None
+        The lineup of a stage; ``None`` for a prototype on its own.
+    """
+
     stage: Filter
     response: dict[str, list]
     notes: tuple[str, ...]
     lineup: Lineup | None = None
 
     @property
+    def rows(self) -> dict[str, list]:
+        """:attr:`response`: one row per product the filter is asked about."""
+        return self.response
+
+    @property
     def elements(self) -> dict[str, list]:
         return self.stage.elements()
 
-    def element_display(self) -> dict[str, list]:
-        return element_display(self.elements)
-
-    def response_display(self) -> dict[str, list]:
-        """The response rows for a terminal; FLOOR marks rows where the stopband floor,
-        not the ladder, sets |S21|."""
-        cols = dict(self.response)
-        cols["freq_mhz"] = mhz(cols["freq_hz"])
-        floor = self.stage.ideal_below_floor(np.asarray(cols["freq_hz"], dtype=float))
-        cols["flags"] = [
-            " ".join(w for w, on in (("BEYOND-DATA", b), ("FLOOR", bool(fl))) if on)
-            for b, fl in zip(cols["beyond_data"], floor, strict=True)
-        ]
-        return cols
-
-    def summary(self) -> dict:
-        proto = self.stage.prototype
-        out = {
-            "stage": self.stage.name,
-            "source": self.stage.source,
-            "prototype": None
-            if proto is None
-            else {k: getattr(proto, k) for k in proto.__dataclass_fields__},
-            "parts": None if proto is None else describe_parts(proto),
-            "elements": self.elements,
-            "notes": list(self.notes),
-        }
-        if self.lineup is not None:
-            out.update(provenance(self.lineup))
-        return out
-
-    def save_plot(self, path: str | Path) -> Path:
+    def plot(self):
+        """|S21| against frequency with the products marked; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import filter_response
 
-        fig = filter_response(self.stage, self.response)
-        try:
-            return save_figure(fig, path)
-        finally:
-            import matplotlib.pyplot as plt
+        return filter_response(self.stage, self.response)
 
-            plt.close(fig)
+    def network(self):
+        """The filter as a scikit-rf 2-port on its data grid, or a dense grid for a ladder.
 
-    def save_touchstone(self, path: str | Path) -> Path:
-        """Write the network as a 2-port Touchstone file (its data grid, or a dense one)."""
+        Returns
+        -------
+        skrf.Network
+            :data:`TOUCHSTONE_POINTS` points up to 1.15 times the highest product or three
+            times the passband edge for a ladder (Hz); a table's own frequencies otherwise.
+        """
         table, proto = self.stage.table, self.stage.prototype
         if table is not None:
             f = table.freq_hz
@@ -100,13 +82,7 @@ class FilterView:
             edge = proto.edge_hz + (proto.bandwidth_hz or 0.0)
             stop = 1.15 * max(top, 3.0 * edge)
             f = np.linspace(stop / TOUCHSTONE_POINTS, stop, TOUCHSTONE_POINTS)
-        net = self.stage.network(f)
-        net.frequency.unit = "MHz"
-        text = net.write_touchstone(return_string=True, skrf_comment=False)
-        # A comment is one line: a name's line breaks or control characters must not end it.
-        name = " ".join(escaping.terminal(self.stage.name).split())
-        header = f"! {name}: written by spurplan (planning estimate, not a measurement)\n"
-        return write_atomic(path, header + text)
+        return self.stage.network(f)
 
 
 def stage_view(lineup, name: str) -> FilterView:
@@ -132,9 +108,7 @@ def stage_view(lineup, name: str) -> FilterView:
     """
     stage = lineup.stage_of_kind(name, Filter)
     result = lineup.run()
-    what = stage.source or f"synthesized ladder; {describe_parts(stage.prototype)}"
     return FilterView(
-        title=f"{lineup.name}: filter '{name}' ({what}) at the products reaching it",
         stage=stage,
         response=result.stage_response(name),
         notes=tuple(getattr(stage, "notes", ())),
@@ -188,5 +162,4 @@ def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterVie
             response["s21_db"] = [float(v) for v in 20 * np.log10(np.abs(h))]
         response["s21_deg"] = [float(v) for v in np.degrees(np.angle(h))]
         response["beyond_data"] = [False] * PROTOTYPE_HARMONICS
-    title = f"{proto.family} {proto.response}, order {proto.order}, {r_ohm:g} ohm; {describe_parts(proto)}"
-    return FilterView(title=title, stage=stage, response=response, notes=notes)
+    return FilterView(stage=stage, response=response, notes=notes)

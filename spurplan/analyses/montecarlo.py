@@ -31,7 +31,7 @@ Yield is reported with the Wilson score interval (95 %) for a binomial proportio
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -43,13 +43,11 @@ from spurplan.analyses.cluster import (  # re-exported: check_scheduler_address 
     map_on_dask,
 )
 from spurplan.engine.run import run
-from spurplan.errors import LineupError, UnitError, YieldError  # YieldError: re-exported (lives in errors.py)
-from spurplan.fields import Fields, _did_you_mean
+from spurplan.errors import LineupError, YieldError  # YieldError: re-exported (lives in errors.py)
 from spurplan.model.products import labels
-from spurplan.model.stages.base import PERCENT
-from spurplan.units import parse_gain_db
+from spurplan.model.tolerances import Corner, Tolerances
 
-if TYPE_CHECKING:  # annotations only (lineup_file imports this module's readers)
+if TYPE_CHECKING:  # annotations only (the yield takes a loaded lineup)
     from spurplan.model.lineup import Lineup
 
 BATCH_SAMPLES = 2000
@@ -111,157 +109,6 @@ def check_yield_request(samples, seed, n_channels: int, n_corners: int) -> int:
             "(use fewer samples or channels)"
         )
     return points
-
-
-@dataclass(frozen=True)
-class Tolerance:
-    """One figure of one stage: ``kind`` "normal" (value = sigma) or "uniform" (+/- value).
-
-    ``value`` is in dB for level figures and a fraction (0.02 = 2 %) for filter figures.
-    """
-
-    stage: int
-    figure: str
-    kind: str
-    value: float
-
-
-@dataclass(frozen=True)
-class Corner:
-    name: str
-    shifts: tuple[tuple[int, str, float], ...] = ()
-
-
-@dataclass(frozen=True)
-class Tolerances:
-    """Everything the lineup says about spread: per-figure distributions and corners."""
-
-    items: tuple[Tolerance, ...] = ()
-    corners: tuple[Corner, ...] = field(default=())
-
-
-def _amount(text, f: Fields, key: str, percent: bool) -> float:
-    if percent:
-        if isinstance(text, str) and text.strip().endswith("%"):
-            try:
-                value = float(text.strip()[:-1])
-            except ValueError:
-                value = math.nan
-            if math.isfinite(value) and abs(value) < 100:
-                return value / 100.0
-        raise f.error(key, f"{text!r}: expected a relative amount in %, e.g. '2 %'")
-
-    try:
-        return parse_gain_db(text)
-    except UnitError as exc:
-        raise f.error(key, str(exc)) from None
-
-
-def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Tolerance, ...]:
-    """A stage's ``tolerance = {...}`` table.
-
-    Parameters
-    ----------
-    raw : dict
-        The parsed table: figure name to an amount, ``{ normal = ... }`` or
-        ``{ uniform = ... }``.
-    file : str
-        The lineup file's name, for messages.
-    where : str
-        The stage, for messages (``"stage 2 'pa'"``).
-    index : int
-        Position of the stage in the lineup (from 0).
-    stage : Stage
-        The stage, which says what figures can spread.
-
-    Returns
-    -------
-    tuple of Tolerance
-        One per figure: in dB for level figures, a fraction (from "2 %") for filter
-        figures; a bare amount is a normal sigma.
-
-    Raises
-    ------
-    LineupError
-        A figure that cannot spread, a malformed amount or a negative one.
-    """
-    units = stage.spread_figures()
-    names = tuple(units)
-    f = Fields(raw, file, f"{where} tolerance")
-    out = []
-    for key in list(raw):
-        if key not in names:
-            f.raw(key)
-            allowed = ", ".join(names) or "none (this stage has no figures that spread)"
-
-            raise f.error(key, f"cannot spread{_did_you_mean(key, names)}: expected one of {allowed}")
-        value = raw[key]
-        kind = "normal"
-        if isinstance(value, dict):
-            sub = Fields(value, file, f"{where} tolerance {key}")
-            kinds = [k for k in ("normal", "uniform") if k in value]
-            if len(kinds) != 1 or len(value) != 1:
-                raise sub.error(None, f"{value!r}: expected {{ normal = ... }} or {{ uniform = ... }}")
-            kind = kinds[0]
-            value = value[kind]
-        amount = _amount(value, f, key, units[key] == PERCENT)
-        if amount < 0:
-            raise f.error(key, f"{raw[key]!r}: expected a spread >= 0")
-        f.raw(key)
-        out.append(Tolerance(stage=index, figure=key, kind=kind, value=amount))
-    f.finish()
-    return tuple(out)
-
-
-def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
-    """The lineup's ``[[corner]]`` tables.
-
-    Parameters
-    ----------
-    raw : list of dict
-        The parsed ``[[corner]]`` tables.
-    file : str
-        The lineup file's name, for messages.
-    stages : sequence of Stage
-        The lineup's stages, which ``"stage.figure"`` keys name.
-
-    Returns
-    -------
-    tuple of Corner
-        Each with its shifts ``(stage index, figure, amount)``, the amount in dB or as
-        a fraction as :func:`read_tolerance`.
-
-    Raises
-    ------
-    LineupError
-        Not an array of tables, or a shift naming an unknown stage or figure or with
-        a malformed amount.
-    """
-    if not isinstance(raw, list):
-        raise LineupError("'corner' must be an array of tables ([[corner]])", file=file)
-    names = {s.name: i for i, s in enumerate(stages)}
-    out = []
-    for c, table in enumerate(raw, start=1):
-        f = Fields(table, file, f"corner {c}")
-        name = f.text("name") or f"corner {c}"
-        shifts = []
-        raw_shift = f.raw("shift", {})
-        if not isinstance(raw_shift, dict):
-            raise f.error("shift", f'{raw_shift!r}: expected a table {{ "stage.figure" = "-1 dB" }}')
-        for key, text in raw_shift.items():
-            stage_name, _, figure = key.rpartition(".")
-            if stage_name not in names:
-                raise f.error("shift", f"{key!r}: expected 'stage.figure' naming a stage of the lineup")
-            i = names[stage_name]
-            units = stages[i].spread_figures()
-            if figure not in units:
-                raise f.error(
-                    "shift", f"{key!r}: {figure!r} cannot shift; expected one of {', '.join(units)}"
-                )
-            shifts.append((i, figure, _amount(text, f, "shift", units[figure] == PERCENT)))
-        f.finish()
-        out.append(Corner(name=name, shifts=tuple(shifts)))
-    return tuple(out)
 
 
 def draw(tolerances: Tolerances, n: int, seed: int, batch: int) -> dict:
@@ -445,24 +292,14 @@ class YieldResult:
     def interval(self) -> tuple[float, float]:
         return wilson_interval(self.passed, self.samples)
 
-    def summary(self) -> dict:
-        from spurplan.output.provenance import provenance
-
-        lo, hi = self.interval
-        return {
-            "lineup": self.lineup.name,
-            "samples": self.samples,
-            "seed": self.seed,
-            "passed": self.passed,
-            "yield": self.yield_fraction,
-            "interval_95": [lo, hi],
-            "interval_method": "Wilson score",
-            "causes": self.causes,
-            "ran_on": self.where,
-            **provenance(self.lineup),
-        }
+    @property
+    def rows(self) -> dict[str, list]:
+        """:attr:`causes` as columns: ``label``, ``rule``, ``samples`` and ``fraction``."""
+        return {c: [r[c] for r in self.causes] for c in ("label", "rule", "samples", "fraction")}
 
     def plot(self, size_px=(1000, 600)):
+        """Histogram of the samples' worst margins; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import yield_figure
 
         return yield_figure(self, size_px)

@@ -24,9 +24,10 @@ product that needs more rejection than the floor allows (:func:`spurplan.model.l
 max_rejection_db`) cannot be fixed by one filter: the search is not run and the
 reason says so.
 
-``--write`` (:func:`write_fixed`) edits the user's file as a TOML document
-(:mod:`spurplan.io.lineup_edit`), re-reads the result with the project's loader and
-writes it only when it is the lineup that was re-checked, numbers included.
+``--write`` (:func:`fixed_lineup`, written by :func:`spurplan.output.remedy_file.write_fixed`)
+edits the user's file as a TOML document (:mod:`spurplan.io.lineup_edit`), re-reads the
+result with the project's loader and writes it only when it is the lineup that was
+re-checked, numbers included.
 """
 
 from __future__ import annotations
@@ -109,25 +110,10 @@ class Remedy:
     def found(self) -> bool:
         return self.snippet is not None
 
-    def summary(self) -> dict:
-        from spurplan.output.provenance import provenance
-
-        out = {
-            "lineup": self.lineup.name,
-            "margin_target_db": self.margin_target_db,
-            "found": self.found,
-            "reason": self.reason,
-            "insert_after": self.after,
-            "snippet": self.snippet,
-            "parts": self.parts,
-            "before": {"pass": self.before.passed, "worst_margin_db": self.before.worst_margin_db},
-            "tried": self.tried,
-        }
-        # remedy() sets filter and outcome together, with the snippet, when it finds a filter.
-        if self.filter is not None and self.outcome is not None:
-            out["after"] = {"pass": self.outcome.passed, "worst_margin_db": self.outcome.worst_margin_db}
-            out["elements"] = self.filter.elements()
-        return {**out, **provenance(self.lineup)}
+    @property
+    def rows(self) -> dict[str, list]:
+        """:attr:`needed`: the products short of the margin target, one row each."""
+        return self.needed
 
 
 def rejection_needed(outcome: CheckResult, margin_db: float) -> dict[str, list]:
@@ -344,18 +330,17 @@ def _filter_from_snippet(snippet: str, lineup) -> Filter:
     return Filter.from_fields(f, context)
 
 
-def write_fixed(lineup, found: Remedy, path):
-    """Write the lineup file with the remedy's filter inserted (atomically).
+def fixed_lineup(lineup, found: Remedy, path):
+    """The lineup file with the remedy's filter inserted, checked, ready to be written.
 
     The file is edited as a TOML document (:func:`spurplan.io.lineup_edit.insert_stage`):
     the filter's table goes into the ``stage`` array at ``found.position``, everything
-    else stays as the user wrote it.  Before anything is written the new document is
-    read back with the project's own loader and must be the lineup that was checked:
-    the same stages in the same order, the same filter, and the same re-check numbers
-    (so the numbers remedy prints are the written file's).  Relative data paths are
-    rewritten when the file goes to another folder.  Any mismatch is a one-line
-    :class:`~spurplan.errors.LineupError` and nothing is written; over the input
-    itself the write is atomic, so the input is intact on any failure.
+    else stays as the user wrote it.  The new document is read back with the project's
+    own loader and must be the lineup that was checked: the same stages in the same
+    order, the same filter, and the same re-check numbers (so the numbers remedy prints
+    are the written file's).  Relative data paths are rewritten for the folder of
+    ``path``.  Any mismatch is a one-line :class:`~spurplan.errors.LineupError`.
+    Nothing is written here (:func:`spurplan.output.remedy_file.write_fixed` writes it).
 
     Parameters
     ----------
@@ -364,16 +349,16 @@ def write_fixed(lineup, found: Remedy, path):
     found : Remedy
         What :func:`remedy` found; it must hold a filter.
     path : str or Path
-        The file to write (may be the lineup's own file).
+        The file it is meant for (may be the lineup's own file).
 
     Returns
     -------
     EditedLineup
-        What was written (``moved`` lists the rewritten data paths).
+        The edited document and its bytes (``data``); ``moved`` lists the rewritten data
+        paths.
     """
     from spurplan.io.lineup_edit import insert_stage
     from spurplan.io.lineup_file import from_dict
-    from spurplan.output.files import write_atomic
 
     target = Path(path)
     if found.snippet is None:  # found.found, spelled so that the type narrows
@@ -402,7 +387,6 @@ def write_fixed(lineup, found: Remedy, path):
             field="{@path}",
         ) from None
     _same_as_checked(written, outcome, found, target)
-    write_atomic(target, edited.data)
     return edited
 
 

@@ -24,33 +24,68 @@ if TYPE_CHECKING:  # annotations only
     from spurplan.model.lineup import Lineup
 
 PASSBAND_DB = 3.0
+# LO range of a chart's figure, as factors of the LO, when none is asked for.
+LO_SPAN = (0.8, 1.2)
 
 
 @dataclass(frozen=True)
 class SpurChart:
+    """What :func:`spur_chart` found: one row per ``(m, n)`` product of a mixer.
+
+    Attributes
+    ----------
+    rows : dict of str -> list
+        ``m, n, label, freq_hz, table_dbc, model_dbm, model_dbc, in_passband, band, wanted``.
+    filter_name : str or None
+        The first filter after the mixer, whose passband the rows are marked against.
+    """
+
     lineup: Lineup
     mixer: Mixer
     rows: dict
     filter_name: str | None
 
-    def summary(self) -> dict:
-        from spurplan.output.provenance import provenance
-
+    @property
+    def in_passband(self) -> list[str]:
+        """Labels of the products besides the wanted one that the model puts in the passband."""
         r = self.rows
-        in_pass = [
+        return [
             lab
             for lab, p, w, lv in zip(r["label"], r["in_passband"], r["wanted"], r["model_dbm"], strict=True)
             if p and not w and lv is not None
         ]
-        return {
-            "lineup": self.lineup.name,
-            "mixer": self.mixer.name,
-            "lo_hz": self.mixer.lo_freq_hz,
-            "sideband": self.mixer.sideband,
-            "following_filter": self.filter_name,
-            "in_passband": in_pass,
-            **provenance(self.lineup),
-        }
+
+    @property
+    def rows_with_levels(self) -> dict[str, list]:
+        """:attr:`rows` of the products with a datasheet level or a modelled one."""
+        keep = [
+            i
+            for i, (t, v) in enumerate(zip(self.rows["table_dbc"], self.rows["model_dbm"], strict=True))
+            if t is not None or v is not None
+        ]
+        return {c: [vals[i] for i in keep] for c, vals in self.rows.items()}
+
+    def plot(self, lo_span_hz=None, size_px=(1200, 700)):
+        """Product frequency against LO frequency; returns a matplotlib Figure.
+
+        Parameters
+        ----------
+        lo_span_hz : tuple of float, optional
+            First and last LO frequency (Hz); default the LO -20 % to +20 %
+            (:data:`LO_SPAN`).
+        size_px : tuple of int, optional
+            Figure size (width, height) in pixels.
+
+        Returns
+        -------
+        matplotlib.figure.Figure
+        """
+        # the one upward door: presentation, imported on use
+        from spurplan.output.plots import spur_figure
+
+        lo = self.mixer.lo_freq_hz
+        span = lo_span_hz if lo_span_hz is not None else (LO_SPAN[0] * lo, LO_SPAN[1] * lo)
+        return spur_figure(self, span, size_px)
 
 
 def spur_chart(lineup, stage: str, max_order: int = 7) -> SpurChart:

@@ -138,6 +138,8 @@ class DriveSweep:
     status : str
         "limited", "compliant throughout", "fails throughout" or "fails at the lowest
         drive" (some higher drive passes, but no stretch from the low end does).
+    target_output : bool
+        Whether the swept drive was the carrier's output power (else its input power).
     """
 
     lineup: Lineup
@@ -154,6 +156,7 @@ class DriveSweep:
     limiting: dict | None
     status: str
     extrapolated: np.ndarray
+    target_output: bool = False
 
     @property
     def rows(self) -> dict[str, list]:
@@ -179,8 +182,16 @@ class DriveSweep:
             "model_extrapolated": self.extrapolated.tolist(),
         }
 
+    def _repr_html_(self) -> str:
+        """Jupyter: the status and verdict data, then one row per drive point."""
+        # the one upward door: presentation, imported on use
+        from spurplan.output.documents import drive_html
+
+        return drive_html(self)
+
     def plot(self, size_px=(1200, 700)):
         """Products and limits against drive; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import drive_figure
 
         return drive_figure(self, size_px)
@@ -190,23 +201,6 @@ class DriveSweep:
         import pandas as pd
 
         return pd.DataFrame(self.rows)
-
-    def _repr_html_(self) -> str:
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import DRIVE_TABLE, drive_display
-
-        return f"<p><b>{self.status}</b>: {self.summary()}</p>" + html_table(
-            drive_display(self.rows), DRIVE_TABLE
-        )
-
-    def summary(self) -> dict:
-        return {
-            "lineup": self.lineup.name,
-            "status": self.status,
-            "max_compliant_input_dbm": self.max_compliant_input_dbm,
-            "max_compliant_output_dbm": self.max_compliant_output_dbm,
-            "limiting": self.limiting,
-        }
 
 
 def drive_sweep(
@@ -309,6 +303,7 @@ def drive_sweep(
         limiting=limiting,
         status=status,
         extrapolated=extrap,
+        target_output=target_output,
     )
 
 
@@ -407,8 +402,16 @@ class TuneSweep:
     rows: dict
     failing: list
 
+    def _repr_html_(self) -> str:
+        """Jupyter: how many ranges fail, then the rows that fail or land in a band."""
+        # the one upward door: presentation, imported on use
+        from spurplan.output.documents import tune_html
+
+        return tune_html(self)
+
     def plot(self, size_px=(1200, 700)):
         """Product frequency against carrier frequency; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import tune_figure
 
         return tune_figure(self, size_px)
@@ -419,26 +422,15 @@ class TuneSweep:
 
         return pd.DataFrame(self.rows)
 
-    def _repr_html_(self) -> str:
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import TUNE_TABLE, tune_display
-
-        head = "every channel passes" if not self.failing else f"{len(self.failing)} failing range(s)"
-        return f"<p><b>{head}</b></p>" + html_table(tune_display(self.rows), TUNE_TABLE)
-
     @property
     def variable(self) -> str:
         """What was swept: "LO" (first mixer's LO) or "carrier"."""
         return "LO" if self.lineup.mixers else "carrier"
 
-    def summary(self) -> dict:
-        return {
-            "lineup": self.lineup.name,
-            "swept": self.variable,
-            "channels": len(self.carrier_hz),
-            "pass": not self.failing,
-            "failing_ranges": self.failing,
-        }
+    @property
+    def passed(self) -> bool:
+        """Whether every channel meets the mask (no failing range)."""
+        return not self.failing
 
 
 def tune_sweep(

@@ -33,12 +33,6 @@ if TYPE_CHECKING:  # annotations only: lineup imports the engine, which result m
 REPORT_FLOOR_DBC = -200.0
 
 
-def _escape(text) -> str:
-    import html
-
-    return html.escape(str(text))
-
-
 PRODUCT_COLUMNS = [
     "freq_hz",
     "level_dbm",
@@ -239,17 +233,15 @@ class Result:
         }
 
     def _repr_html_(self) -> str:
-        """Jupyter: the products at the output as an HTML table."""
-        from spurplan.output.formatting import html_table
-        from spurplan.output.tables import PRODUCT_TABLE, product_display
+        """Jupyter: the products at the lineup output, under the lineup's name."""
+        # the one upward door: presentation, imported on use
+        from spurplan.output.documents import products_html
 
-        rows = self.product_rows()
-        s = self.summary()
-        head = f"<p><b>{_escape(s['lineup'])}</b>: products at the output (combine = {s['combine']})</p>"
-        return head + html_table(product_display(rows), PRODUCT_TABLE)
+        return products_html(self)
 
     def plot(self, stage: str | None = None):
         """The spectrum at a node as stems; returns a matplotlib Figure."""
+        # the one upward door: presentation, imported on use
         from spurplan.output.plots import spectrum_figure
 
         return spectrum_figure(self, stage)
@@ -264,44 +256,6 @@ class Result:
     def unconverged_stages(self) -> list[str]:
         flags = ~self.propagation.converged[:, 0]
         return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]
-
-    def summary(self, stage: str | None = None, combine: str | None = None, batch: int = 0) -> dict:
-        """Headline figures of a node: carriers, strongest product, flags, provenance.
-
-        Parameters
-        ----------
-        stage : str or None
-            Stage whose output to summarise; ``None`` for the lineup output.
-        combine : {"worst", "power", "phase"} or None
-            ``None`` uses the lineup's analysis setting.
-        batch : int
-            Batch element (drive or tuning point).
-
-        Returns
-        -------
-        dict
-            Lineup name, node, combining mode, carrier levels (dBm), product count, the
-            strongest product (Hz, dBm, dBc), flagged stages, notes and provenance.
-        """
-        from spurplan.output.provenance import provenance
-
-        rows = self.product_rows(stage, combine, batch)
-        products = [i for i, kind in enumerate(rows["kind"]) if kind == "product"]
-        worst = max(products, key=lambda i: rows["level_dbm"][i]) if products else None
-        return {
-            "lineup": self.lineup.name,
-            "node": stage or "output",
-            "combine": combine or self.lineup.analysis.combine,
-            "carrier_dbm": [float(v) for v in self.carrier_levels_dbm(stage, batch)],
-            "n_products": len(products),
-            "strongest": None
-            if worst is None
-            else {c: rows[c][worst] for c in ("label", "freq_hz", "level_dbm", "dbc", "stage")},
-            "model_extrapolated": self.extrapolated_stages,
-            "not_converged": self.unconverged_stages,
-            "notes": list(self.lineup.notes),
-            **provenance(self.lineup),
-        }
 
     def stage_response(self, stage: str, batch: int = 0) -> dict[str, list]:
         """A linear stage's response at every product present at its input.

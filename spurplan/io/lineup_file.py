@@ -23,11 +23,11 @@ from dataclasses import replace
 from pathlib import Path
 from typing import cast
 
-from spurplan.analyses.montecarlo import Tolerance, Tolerances, read_corners, read_tolerance
 from spurplan.errors import LineupError, SweepError
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER, Fields, Within, read_toml
 from spurplan.io.channels import sweep_points
 from spurplan.io.mask_files import read_mask
+from spurplan.io.tolerances import read_corners, read_tolerance
 from spurplan.io.touchstone import read_touchstone
 from spurplan.model.ladders import BEYOND_POLICIES
 from spurplan.model.lineup import (
@@ -42,6 +42,7 @@ from spurplan.model.lineup import (
     reference_carrier_index,
 )
 from spurplan.model.stages import KINDS, LoadContext
+from spurplan.model.tolerances import Tolerance, Tolerances
 from spurplan.model.torus_grid import MAX_GRID_POINTS, alias_free_grid
 from spurplan.units import (
     format_freq,

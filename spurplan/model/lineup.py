@@ -19,11 +19,11 @@ from spurplan.model.products import (
 )
 from spurplan.units import dbm_to_vpeak
 
-if TYPE_CHECKING:  # annotations only: masks and Monte Carlo load when a lineup uses them
-    from spurplan.analyses.montecarlo import Tolerances
+if TYPE_CHECKING:  # annotations only
     from spurplan.model.masks import Mask
     from spurplan.model.stages.amplifier_fit import FigureCheck
     from spurplan.model.stages.base import StageDefaults
+    from spurplan.model.tolerances import Tolerances
 
 Combine = Literal["worst", "power", "phase"]
 COMBINE_MODES: tuple[str, ...] = ("worst", "power", "phase")
@@ -356,8 +356,8 @@ class Lineup:
         -------
         Result
         """
-        # The one upward door of the model wing besides presentation: computing is the
-        # engine's (spurplan.engine.run), imported on use so the model stays below it.
+        # the other upward door: computing, imported on use (the model describes, the
+        # engine computes: spurplan.engine.run; the model stays below it)
         from spurplan.engine.run import run
 
         return run(self, drive_offset_db, tone_freqs_hz)

@@ -401,3 +401,30 @@ def save_figure(fig, path: str | Path, dpi: int = 120) -> Path:
     except ValueError as exc:
         raise OutputError(f"{path}: {exc}") from None
     return write_atomic(path, buf.getvalue())
+
+
+def save_touchstone(view, path: str | Path) -> Path:
+    """Write a filter view's network as a 2-port Touchstone file, atomically.
+
+    Parameters
+    ----------
+    view : FilterView
+        The filter; :meth:`~spurplan.analyses.filter_view.FilterView.network` gives the
+        network on its data grid (or a dense grid for a ladder).
+    path : str or Path
+        The ``.s2p`` file.
+
+    Returns
+    -------
+    Path
+        The file written (frequencies in MHz).
+    """
+    from spurplan.output.escaping import terminal
+
+    net = view.network()
+    net.frequency.unit = "MHz"
+    text = net.write_touchstone(return_string=True, skrf_comment=False)
+    # A comment is one line: a name's line breaks or control characters must not end it.
+    name = " ".join(terminal(view.stage.name).split())
+    header = f"! {name}: written by spurplan (planning estimate, not a measurement)\n"
+    return write_atomic(path, header + text)

@@ -98,7 +98,8 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     Parameters
     ----------
     outcome : CheckResult
-        What :func:`spurplan.analyses.check.check` found (levels dBm, limits dBm).
+        What :func:`spurplan.analyses.check.check` found (levels dBm, limits dBm); its
+        :meth:`~spurplan.analyses.check.CheckResult.limit_line_dbm` gives the limit line.
     size_px : tuple of int, optional
         Figure size (width, height) in pixels.
     dpi : int, optional
@@ -109,8 +110,6 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     matplotlib.figure.Figure
         The figure; release it with :func:`close`.
     """
-    from spurplan.analyses.check import limit_line
-
     plt = _pyplot()
     rows = outcome.rows
     freq = np.asarray(rows["freq_hz"], dtype=float)
@@ -123,7 +122,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     scale, unit = _freq_axis(np.array([top]))
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     grid = np.linspace(0.0, top, 4000)
-    line = limit_line(outcome, grid)
+    line = outcome.limit_line_dbm(grid)
     ax.plot(grid / scale, line, color="black", lw=1.4, drawstyle="steps-mid", label="limit (most stringent)")
     mask = outcome.result.lineup.mask
     shown_bands = [b for b in mask.bands if b.start_hz < top]
@@ -582,3 +581,30 @@ def save_yield_plot(result, path, size_px=(1000, 600)):
         The file written (as :func:`spurplan.output.files.save_figure`).
     """
     return _save(yield_figure(result, size_px), path)
+
+
+def save_filter_plot(view, path):
+    """Draw :func:`filter_response` of a filter view to ``path`` atomically.
+
+    Parameters
+    ----------
+    view : FilterView
+        What :func:`spurplan.analyses.filter_view.stage_view` or
+        :func:`~spurplan.analyses.filter_view.prototype_view` made: the filter and the
+        products (Hz) to mark.
+    path : str or pathlib.Path
+        The image file; its suffix chooses the format.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written (as :func:`spurplan.output.files.save_figure`, at its default
+        resolution).
+    """
+    from spurplan.output.files import save_figure
+
+    fig = filter_response(view.stage, view.rows)
+    try:
+        return save_figure(fig, path)
+    finally:
+        close(fig)

@@ -28,6 +28,7 @@ from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
 from spurplan.output.files import check_folder, check_target, write_atomic, write_with_folder
 from spurplan.output.provenance import provenance
 from spurplan.output.tables import BUDGET_TABLE, CHECK_TABLE, check_display
+from spurplan.output.verdicts import drive_verdict
 
 # Above this output power the report adds the RF-exposure and hot-parts caution
 # prominently (common practice, no source: a few watts is where burns and exposure
@@ -266,30 +267,7 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
     start, stop, step = drive
     sw = drive_sweep(lineup, start, stop, step)
     sec = Section(f"Drive sweep, {start:+g} to {stop:+g} dBm input in {step:g} dB steps")
-    if sw.status == "limited":
-        lim = sw.limiting
-        # drive_sweep() sets limiting with the edge it bisects to whenever it says "limited".
-        assert lim is not None
-        sec.parts.append(
-            (
-                "text",
-                f"Highest compliant drive: {sw.max_compliant_input_dbm:+.2f} dBm in, "
-                f"{sw.max_compliant_output_dbm:+.2f} dBm out; above it {lim['label']} at "
-                f"{lim['freq_hz'] / 1e6:.6f} MHz fails {lim['rule']}.",
-            )
-        )
-    elif sw.status == "fails throughout":
-        sec.parts.append(("text", "The mask is violated at every drive of the sweep."))
-    elif sw.status == "fails at the lowest drive":
-        sec.parts.append(
-            (
-                "text",
-                "The mask is violated at the lowest drive of the sweep; some higher drives pass, which "
-                "is no compliant range to sign.",
-            )
-        )
-    else:
-        sec.parts.append(("text", "The mask is met over the whole sweep."))
+    sec.parts.append(("text", drive_verdict(sw, "report")))
     sec.parts.append(
         (
             "figure",

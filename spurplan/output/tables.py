@@ -114,6 +114,13 @@ NEEDED_TABLE = [
     ("band", "protected band", None),
 ]
 
+CAUSE_TABLE = [
+    ("label", "product", None),
+    ("rule", "rule", None),
+    ("samples", "failing samples", "d"),
+    ("fraction", "fraction", ".4f"),
+]
+
 SPUR_TABLE = [
     ("label", "product", None),
     ("m", "m", "d"),
@@ -181,6 +188,27 @@ def drive_display(rows: dict) -> dict:
     shown = dict(rows)
     shown["verdict"] = verdict_words(rows["pass"])
     return shown
+
+
+def needed_display(rows: dict) -> dict:
+    shown = dict(rows)
+    shown["freq_mhz"] = mhz(rows["freq_hz"])
+    return shown
+
+
+def filter_response_display(view) -> dict:
+    """A filter view's response rows for a terminal; FLOOR marks rows where the stopband
+    floor, not the ladder, sets |S21|."""
+    import numpy as np
+
+    cols = dict(view.rows)
+    cols["freq_mhz"] = mhz(cols["freq_hz"])
+    floor = view.stage.ideal_below_floor(np.asarray(cols["freq_hz"], dtype=float))
+    cols["flags"] = [
+        " ".join(w for w, on in (("BEYOND-DATA", b), ("FLOOR", bool(fl))) if on)
+        for b, fl in zip(cols["beyond_data"], floor, strict=True)
+    ]
+    return cols
 
 
 def element_display(cols: dict) -> dict:

@@ -1,0 +1,455 @@
+"""The machine-readable document of every result: its summary beside its rows.
+
+A :class:`Document` is what ``--format json`` and ``--format csv`` print: the summary
+(headline figures, verdict data and, for every result of a lineup, the provenance of
+:mod:`spurplan.output.provenance`) and the rows under their key.  One function per
+result type builds it, so that the library's results hold data only and every front
+end writes the same document.  The notebook views (HTML) of the results live here too.
+"""
+
+from __future__ import annotations
+
+import html
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+from spurplan.notices import PLANNING_NOTICE
+from spurplan.output.formatting import html_table, to_csv, to_json
+from spurplan.output.provenance import provenance
+from spurplan.output.tables import (
+    CHECK_TABLE,
+    DRIVE_TABLE,
+    PRODUCT_TABLE,
+    TUNE_TABLE,
+    check_display,
+    drive_display,
+    product_display,
+    tune_display,
+)
+from spurplan.output.verdicts import drive_verdict
+
+if TYPE_CHECKING:  # annotations only
+    from spurplan.analyses.check import CheckResult
+    from spurplan.analyses.filter_view import FilterView
+    from spurplan.analyses.montecarlo import YieldResult
+    from spurplan.analyses.remedy import Remedy
+    from spurplan.analyses.spur_chart import SpurChart
+    from spurplan.analyses.sweep import DriveSweep, TuneSweep
+    from spurplan.engine.result import Result
+
+
+@dataclass(frozen=True)
+class Document:
+    """A summary and its rows, as JSON or CSV.
+
+    Attributes
+    ----------
+    summary : dict
+        Headline figures, verdict data and provenance, written as given.
+    rows_key : str
+        Key of the row list in JSON (``"products"``, ``"points"`` ...).
+    rows : dict of str -> list
+        Data by column name.
+    """
+
+    summary: dict
+    rows_key: str
+    rows: dict
+
+    def json(self) -> str:
+        """``{"summary": ..., rows_key: [...]}`` (:func:`spurplan.output.formatting.to_json`)."""
+        return to_json(self.summary, self.rows_key, self.rows)
+
+    def csv(self) -> str:
+        """The rows as CSV (:func:`spurplan.output.formatting.to_csv`)."""
+        return to_csv(self.rows)
+
+
+def products_document(result: Result, stage: str | None = None, combine: str | None = None) -> Document:
+    """The products at a node: headline figures, flags and provenance, then every row.
+
+    Parameters
+    ----------
+    result : Result
+        A run of a lineup (batch element 0 is reported).
+    stage : str or None
+        Stage whose output to report; ``None`` for the lineup output.
+    combine : {"worst", "power", "phase"} or None
+        ``None`` uses the lineup's analysis setting.
+
+    Returns
+    -------
+    Document
+        Summary: lineup name, node, combining mode, carrier levels (dBm), product count,
+        the strongest product (Hz, dBm, dBc), flagged stages, notes and provenance; rows
+        under ``"products"`` (:meth:`~spurplan.engine.result.Result.product_rows`).
+    """
+    rows = result.product_rows(stage, combine)
+    products = [i for i, kind in enumerate(rows["kind"]) if kind == "product"]
+    worst = max(products, key=lambda i: rows["level_dbm"][i]) if products else None
+    lineup = result.lineup
+    summary = {
+        "lineup": lineup.name,
+        "node": stage or "output",
+        "combine": combine or lineup.analysis.combine,
+        "carrier_dbm": [float(v) for v in result.carrier_levels_dbm(stage, 0)],
+        "n_products": len(products),
+        "strongest": None
+        if worst is None
+        else {c: rows[c][worst] for c in ("label", "freq_hz", "level_dbm", "dbc", "stage")},
+        "model_extrapolated": result.extrapolated_stages,
+        "not_converged": result.unconverged_stages,
+        "notes": list(lineup.notes),
+        **provenance(lineup),
+    }
+    return Document(summary, "products", rows)
+
+
+def budget_document(result: Result) -> Document:
+    """The cascade budget: the lineup's name and provenance, then one row per stage.
+
+    Parameters
+    ----------
+    result : Result
+        A run of a lineup.
+
+    Returns
+    -------
+    Document
+        Rows under ``"stages"``: :func:`spurplan.analyses.budget.budget_rows` (levels in
+        dBm, gains in dB).
+    """
+    from spurplan.analyses.budget import budget_rows
+
+    rows = budget_rows(result)
+    return Document({"lineup": result.lineup.name, **provenance(result.lineup)}, "stages", rows)
+
+
+def check_summary(outcome: CheckResult) -> dict:
+    """The headline of a compliance check: verdict, worst product, coverage, provenance.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    dict
+        Status, pass, completeness and the figures the model lacks or misses, the worst
+        margin (dB) and its row, counts, the total carrier power (dBm), the rule sets,
+        notes, extrapolated stages, provenance and the planning notice.
+    """
+    from spurplan.analyses.check import CHECK_COLUMNS, figure_check_rows
+
+    lineup = outcome.result.lineup
+    mask = lineup.mask
+    assert mask is not None  # check() made this result, and it refuses a lineup without one
+    rows = outcome.rows
+    worst = None if outcome.worst is None else {c: rows[c][outcome.worst] for c in CHECK_COLUMNS}
+    return {
+        "lineup": lineup.name,
+        "status": outcome.status,
+        "pass": outcome.passed,
+        "complete": outcome.complete,
+        "missing_figures": [{"stage": st, "figure": what} for st, what in outcome.missing_figures],
+        "figures_met": not outcome.figures_missed,
+        "figure_checks": figure_check_rows(lineup),
+        "worst_margin_db": outcome.worst_margin_db,
+        "worst": worst,
+        "failing": outcome.n_failing,
+        "checked": outcome.n_checked,
+        "carrier_total_dbm": outcome.carrier_dbm,
+        "rule_sets": [{"name": s.name, "title": s.title, "source": s.source} for s in mask.sets],
+        "notes": list(outcome.notes) + list(lineup.notes),
+        "model_extrapolated": outcome.result.extrapolated_stages,
+        **provenance(lineup),
+        "notice": PLANNING_NOTICE,
+    }
+
+
+def check_document(outcome: CheckResult) -> Document:
+    """:func:`check_summary` and the checked products under ``"products"``.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    Document
+    """
+    return Document(check_summary(outcome), "products", outcome.rows)
+
+
+def drive_summary(sweep: DriveSweep) -> dict:
+    """The verdict of a drive sweep: status, highest compliant drive and what limits it.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.analyses.sweep.drive_sweep` found.
+
+    Returns
+    -------
+    dict
+        Lineup name, status, highest compliant input and output drive (dBm) and the
+        limiting product, without provenance.
+    """
+    return {
+        "lineup": sweep.lineup.name,
+        "status": sweep.status,
+        "max_compliant_input_dbm": sweep.max_compliant_input_dbm,
+        "max_compliant_output_dbm": sweep.max_compliant_output_dbm,
+        "limiting": sweep.limiting,
+    }
+
+
+def drive_document(sweep: DriveSweep) -> Document:
+    """:func:`drive_summary` with provenance, and one row per drive point under ``"points"``.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.analyses.sweep.drive_sweep` found.
+
+    Returns
+    -------
+    Document
+    """
+    return Document({**drive_summary(sweep), **provenance(sweep.lineup)}, "points", sweep.rows)
+
+
+def tune_document(sweep: TuneSweep) -> Document:
+    """The verdict of a tuning sweep with provenance, and its rows under ``"rows"``.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.analyses.sweep.tune_sweep` found.
+
+    Returns
+    -------
+    Document
+        Summary: lineup name, what was swept, the channel count, pass and the failing
+        ranges (Hz), then provenance.
+    """
+    summary = {
+        "lineup": sweep.lineup.name,
+        "swept": sweep.variable,
+        "channels": len(sweep.carrier_hz),
+        "pass": sweep.passed,
+        "failing_ranges": sweep.failing,
+    }
+    return Document({**summary, **provenance(sweep.lineup)}, "rows", sweep.rows)
+
+
+def remedy_document(found: Remedy) -> Document:
+    """What the remedy found, with provenance, and the rejection needed under ``"needed"``.
+
+    Parameters
+    ----------
+    found : Remedy
+        What :func:`spurplan.analyses.remedy.remedy` found.
+
+    Returns
+    -------
+    Document
+        Summary: the margin target (dB), whether a filter was found and why not, where
+        it goes, its snippet and parts, the check before (and after) it, every candidate
+        tried and the filter's elements.
+    """
+    out = {
+        "lineup": found.lineup.name,
+        "margin_target_db": found.margin_target_db,
+        "found": found.found,
+        "reason": found.reason,
+        "insert_after": found.after,
+        "snippet": found.snippet,
+        "parts": found.parts,
+        "before": {"pass": found.before.passed, "worst_margin_db": found.before.worst_margin_db},
+        "tried": found.tried,
+    }
+    # remedy() sets filter and outcome together, with the snippet, when it finds a filter.
+    if found.filter is not None and found.outcome is not None:
+        out["after"] = {"pass": found.outcome.passed, "worst_margin_db": found.outcome.worst_margin_db}
+        out["elements"] = found.filter.elements()
+    return Document({**out, **provenance(found.lineup)}, "needed", found.needed)
+
+
+def yield_document(res: YieldResult) -> Document:
+    """The yield, its interval and causes with provenance; the causes under ``"causes"``.
+
+    Parameters
+    ----------
+    res : YieldResult
+        What :func:`spurplan.analyses.montecarlo.run_yield` found.
+
+    Returns
+    -------
+    Document
+    """
+    lo, hi = res.interval
+    summary = {
+        "lineup": res.lineup.name,
+        "samples": res.samples,
+        "seed": res.seed,
+        "passed": res.passed,
+        "yield": res.yield_fraction,
+        "interval_95": [lo, hi],
+        "interval_method": "Wilson score",
+        "causes": res.causes,
+        "ran_on": res.where,
+        **provenance(res.lineup),
+    }
+    return Document(summary, "causes", res.rows)
+
+
+def spur_document(chart: SpurChart, rows: dict | None = None) -> Document:
+    """A mixer's chart: the mixer, its LO, the following filter and what lands in its passband.
+
+    Parameters
+    ----------
+    chart : SpurChart
+        What :func:`spurplan.analyses.spur_chart.spur_chart` found.
+    rows : dict of str -> list, optional
+        The rows to list (default every row of the chart); the summary always covers
+        the whole chart.
+
+    Returns
+    -------
+    Document
+        Rows under ``"products"``.
+    """
+    summary = {
+        "lineup": chart.lineup.name,
+        "mixer": chart.mixer.name,
+        "lo_hz": chart.mixer.lo_freq_hz,
+        "sideband": chart.mixer.sideband,
+        "following_filter": chart.filter_name,
+        "in_passband": chart.in_passband,
+        **provenance(chart.lineup),
+    }
+    return Document(summary, "products", chart.rows if rows is None else rows)
+
+
+def filter_document(view: FilterView) -> Document:
+    """A filter's prototype, parts, elements and notes; its response under ``"products"``.
+
+    Parameters
+    ----------
+    view : FilterView
+        A stage of a lineup (with provenance) or a prototype on its own.
+
+    Returns
+    -------
+    Document
+    """
+    from spurplan.model.ladders import describe_parts
+
+    proto = view.stage.prototype
+    out = {
+        "stage": view.stage.name,
+        "source": view.stage.source,
+        "prototype": None if proto is None else {k: getattr(proto, k) for k in proto.__dataclass_fields__},
+        "parts": None if proto is None else describe_parts(proto),
+        "elements": view.elements,
+        "notes": list(view.notes),
+    }
+    if view.lineup is not None:
+        out.update(provenance(view.lineup))
+    return Document(out, "products", view.rows)
+
+
+def bands_document(rows: dict, summary: dict) -> Document:
+    """The shipped rule sets and band lists, or the entries of one, under ``"entries"``.
+
+    Parameters
+    ----------
+    rows : dict of str -> list
+        :func:`spurplan.analyses.bands_view.catalogue_rows` or the rows of
+        :func:`~spurplan.analyses.bands_view.band_rows`.
+    summary : dict
+        Empty for the catalogue; the set's name, title, source and notes otherwise.
+
+    Returns
+    -------
+    Document
+    """
+    return Document(summary, "entries", rows)
+
+
+def check_html(outcome: CheckResult) -> str:
+    """The notebook view of a check: the lineup, the verdict, the table with failing rows marked.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    str
+        HTML (every name escaped).
+    """
+    failing = [p is False for p in outcome.rows["pass"]]
+    table = html_table(check_display(outcome.rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None)
+    style = "<style>tr.fail td {background: #fde2e2; font-weight: bold}</style>"
+    name = outcome.result.lineup.name
+    return f"{style}<p><b>{html.escape(name)}</b></p><p><b>{html.escape(outcome.verdict)}</b></p>{table}"
+
+
+def products_html(result: Result) -> str:
+    """The products at the lineup output as an HTML table, under the lineup's name.
+
+    Parameters
+    ----------
+    result : Result
+        A run of a lineup.
+
+    Returns
+    -------
+    str
+        HTML (every name escaped).
+    """
+    rows = result.product_rows()
+    name = html.escape(str(result.lineup.name))
+    head = f"<p><b>{name}</b>: products at the output (combine = {result.lineup.analysis.combine})</p>"
+    return head + html_table(product_display(rows), PRODUCT_TABLE)
+
+
+def drive_html(sweep: DriveSweep) -> str:
+    """A drive sweep as HTML: its status and verdict data, then one row per drive point.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.analyses.sweep.drive_sweep` found.
+
+    Returns
+    -------
+    str
+        HTML.
+    """
+    name, verdict = html.escape(sweep.lineup.name), html.escape(drive_verdict(sweep, style="report"))
+    return f"<p><b>{name}</b></p><p><b>{html.escape(sweep.status)}</b>: {verdict}</p>" + html_table(
+        drive_display(sweep.rows), DRIVE_TABLE
+    )
+
+
+def tune_html(sweep: TuneSweep) -> str:
+    """A tuning sweep as HTML: how many ranges fail, then the rows that fail or land in a band.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.analyses.sweep.tune_sweep` found.
+
+    Returns
+    -------
+    str
+        HTML.
+    """
+    head = "every channel passes" if not sweep.failing else f"{len(sweep.failing)} failing range(s)"
+    return f"<p><b>{head}</b></p>" + html_table(tune_display(sweep.rows), TUNE_TABLE)

@@ -1,0 +1,187 @@
+"""The sentences that state a result's verdict, written once for every front end.
+
+The results carry the verdict data (a drive sweep's status, highest compliant drive
+and limiting product; a tuning sweep's failing ranges; a check's status and worst
+row); the words are here.  Where the terminal and the design-review report say it
+differently (a line in capitals to scan for, a sentence in a paragraph), both forms
+are side by side.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # annotations only
+    from spurplan.analyses.check import CheckResult
+    from spurplan.analyses.montecarlo import YieldResult
+    from spurplan.analyses.remedy import Remedy
+    from spurplan.analyses.spur_chart import SpurChart
+    from spurplan.analyses.sweep import DriveSweep, TuneSweep
+
+STYLES = ("terminal", "report")
+
+
+def _in_band(band) -> str:
+    return f" (in {band})" if band else ""
+
+
+def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
+    """The highest compliant drive of a sweep, and the product and rule that set it.
+
+    Parameters
+    ----------
+    sweep : DriveSweep
+        What :func:`spurplan.analyses.sweep.drive_sweep` found (drive in dBm).
+    style : {"terminal", "report"}
+        The terminal's ``HIGHEST COMPLIANT DRIVE:`` line, or the report's sentence.
+
+    Returns
+    -------
+    str
+        One line, without a line break.
+    """
+    if style not in STYLES:
+        raise ValueError(f"style {style!r}: expected one of {', '.join(STYLES)}")
+    report = style == "report"
+    if sweep.status == "limited":
+        lim = sweep.limiting
+        # drive_sweep() sets limiting with the edge it bisects to whenever it says "limited".
+        assert lim is not None
+        above = f"above it {lim['label']} at {lim['freq_hz'] / 1e6:.6f} MHz fails {lim['rule']}"
+        if report:
+            return (
+                f"Highest compliant drive: {sweep.max_compliant_input_dbm:+.2f} dBm in, "
+                f"{sweep.max_compliant_output_dbm:+.2f} dBm out; {above}."
+            )
+        return (
+            f"HIGHEST COMPLIANT DRIVE: input {sweep.max_compliant_input_dbm:+.2f} dBm, output "
+            f"{sweep.max_compliant_output_dbm:+.2f} dBm; {above}" + _in_band(lim["band"])
+        )
+    if sweep.status == "fails throughout":
+        if report:
+            return "The mask is violated at every drive of the sweep."
+        return "HIGHEST COMPLIANT DRIVE: none in the range (the mask is violated at every drive)"
+    if sweep.status == "fails at the lowest drive":
+        if report:
+            return (
+                "The mask is violated at the lowest drive of the sweep; some higher drives pass, which "
+                "is no compliant range to sign."
+            )
+        return (
+            "HIGHEST COMPLIANT DRIVE: none from the bottom of the range (the mask is violated at the "
+            f"lowest drive, {sweep.input_dbm[0]:+.2f} dBm in; some higher drives pass, which is no compliant "
+            "range to sign)"
+        )
+    if report:
+        return "The mask is met over the whole sweep."
+    return (
+        "HIGHEST COMPLIANT DRIVE: the mask is met over the whole range "
+        f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)"
+    )
+
+
+def check_verdict(outcome: CheckResult) -> str:
+    """The terminal's ``VERDICT:`` line: the check's verdict and how many products fail.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    str
+        One line, without a line break.
+    """
+    tail = (
+        f"; {outcome.n_failing} of {outcome.n_checked} checked products fail"
+        if outcome.worst is not None
+        else ""
+    )
+    return f"VERDICT: {outcome.verdict}{tail}"
+
+
+def tune_verdict(sweep: TuneSweep) -> list[str]:
+    """The terminal's lines on a tuning sweep: every channel passes, or each failing range.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.analyses.sweep.tune_sweep` found (ranges in Hz).
+
+    Returns
+    -------
+    list of str
+        One line per failing range (MHz, product, rule, band, worst margin in dB), or
+        the one line that says every channel meets the mask.
+    """
+    if not sweep.failing:
+        return ["TUNING RANGE: every channel meets the mask"]
+    return [
+        f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
+        + _in_band(r["band"])
+        + f", worst margin {r['worst_margin_db']:+.2f} dB"
+        for r in sweep.failing
+    ]
+
+
+def recheck_verdict(found: Remedy) -> str:
+    """The terminal's line on the lineup re-checked with the remedy's filter.
+
+    Parameters
+    ----------
+    found : Remedy
+        What :func:`spurplan.analyses.remedy.remedy` found; it must hold a filter.
+
+    Returns
+    -------
+    str
+        Pass or fail, the worst margin (dB) and product, and the carrier at the output
+        (dBm) with and without the filter.
+    """
+    out = found.outcome
+    assert out is not None  # the caller shows a re-check only when a filter was found
+    word = "PASS" if out.passed else "FAIL"
+    rows, i = out.rows, out.worst
+    return (
+        f"RE-CHECKED WITH THE FILTER: {word}, worst margin {out.worst_margin_db:+.2f} dB ({rows['label'][i]} at "
+        f"{rows['freq_hz'][i] / 1e6:.6f} MHz); carrier at the output {out.carrier_dbm:+.2f} dBm "
+        f"(was {found.before.carrier_dbm:+.2f} dBm)"
+    )
+
+
+def yield_verdict(res: YieldResult) -> str:
+    """The terminal's ``YIELD:`` line: the fraction that passes and its 95 % Wilson interval.
+
+    Parameters
+    ----------
+    res : YieldResult
+        What :func:`spurplan.analyses.montecarlo.run_yield` found.
+
+    Returns
+    -------
+    str
+        One line, in per cent.
+    """
+    lo, hi = res.interval
+    return (
+        f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {res.samples} pass); "
+        f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+    )
+
+
+def passband_verdict(chart: SpurChart) -> str:
+    """The terminal's ``IN THE PASSBAND:`` line: the products the next filter passes.
+
+    Parameters
+    ----------
+    chart : SpurChart
+        What :func:`spurplan.analyses.spur_chart.spur_chart` found.
+
+    Returns
+    -------
+    str
+        One line.
+    """
+    hits = chart.in_passband
+    return "IN THE PASSBAND: " + (", ".join(hits) if hits else "no product besides the wanted one")
