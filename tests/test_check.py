@@ -245,3 +245,20 @@ def test_out_of_band_boundary_scales_with_the_necessary_bandwidth(bandwidth, dom
     outcome = _two_tone_check(carriers, FLAT_100K, max_order=3)
     assert _row(outcome, "2f1-f2")["domain"] == domain
     assert _row(outcome, "2f2-f1")["domain"] == domain
+
+
+def test_a_product_exactly_on_the_out_of_band_boundary_is_judged_as_spurious():
+    # ITU RR Appendix 3 (from memory) puts the boundary between the out-of-band and the
+    # spurious domain at 250 % of the necessary bandwidth from the centre, and says
+    # nothing of a product exactly on it.  spurplan's ruling: it is judged against the
+    # spurious limits (the stricter reading: a product the out-of-band domain would leave
+    # unjudged can never turn into a PASS there).  2f1 - f2 of 100 and 105 MHz carriers is
+    # at 95 MHz, exactly 5 MHz = 2.5 x 2 MHz below f1 (arithmetic, exact in binary).
+    carriers = [
+        {"freq": "100 MHz", "power": "-10 dBm", "bandwidth": "2 MHz"},
+        {"freq": "105 MHz", "power": "-10 dBm", "bandwidth": "2 MHz"},
+    ]
+    outcome = _two_tone_check(carriers, FLAT_100K, max_order=3)
+    row = _row(outcome, "2f1-f2")
+    assert row["freq_hz"] == 95e6
+    assert row["domain"] == "spurious" and row["pass"] is not None
