@@ -8,6 +8,7 @@ numpy and the rest load when a command runs.
 from __future__ import annotations
 
 import sys
+from typing import Any
 
 import click
 
@@ -34,7 +35,7 @@ class _Group(click.Group):
         from spurplan.errors import SpurplanError
 
         try:
-            return super().main(*args, standalone_mode=False, **kwargs)
+            return super().main(*args, standalone_mode=False, **kwargs)  # type: ignore[call-overload]
         except click.exceptions.Exit as exc:
             sys.exit(exc.exit_code)
         except _Interrupted:
@@ -53,7 +54,7 @@ class _Group(click.Group):
         except SpurplanError as exc:
             # One line, whatever the message holds (a name with a line break, say); the
             # library's argument names shown as this command's options.
-            shown = exc.shown(getattr(exc, "options", None))
+            shown = exc.shown(exc.options)
             click.echo("spurplan: error: " + " ".join(shown.split()), err=True)
             sys.exit(2)
 
@@ -360,7 +361,7 @@ def bands(name, fmt):
     from spurplan.output.terminal import catalogue_text, ruleset_text
 
     if name is None:
-        rows, summary = catalogue_rows(), {}
+        rows, summary = catalogue_rows(), dict[str, object]()
     else:
         rows, summary = band_rows(name)
     if not _machine_output(fmt, bands_document(rows, summary)):
@@ -530,7 +531,7 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     from spurplan.output.terminal import remedy_text
 
     target = _parse("db", margin, "--margin", MARGIN_TARGET)
-    parts = {}
+    parts: dict[str, Any] = {}
     for key, text, option in (
         ("q_inductor", q_inductor, "--q-inductor"),
         ("q_capacitor", q_capacitor, "--q-capacitor"),

@@ -34,6 +34,10 @@ class SpurplanError(Exception):
     to know the command line's spelling.
     """
 
+    #: The command line's options for the arguments (``{"step": "--step"}``), set by the
+    #: CLI on the way out of a command; ``None`` in the library.
+    options: Mapping[str, str] | None = None
+
     def shown(self, names: Mapping[str, str] | None = None) -> str:
         """The message with each argument named by ``names`` (its own name where absent).
 
@@ -61,7 +65,8 @@ class _Fields:
     """Pickling for dataclass exceptions: rebuild from the fields, not from ``args``."""
 
     def __reduce__(self):
-        return (self.__class__, tuple(getattr(self, f.name) for f in fields(self)))
+        # Mixed only into dataclasses, which mypy cannot see from this class alone.
+        return (self.__class__, tuple(getattr(self, f.name) for f in fields(self)))  # type: ignore[arg-type]
 
 
 @dataclass(eq=False)

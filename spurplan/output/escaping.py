@@ -116,12 +116,14 @@ class TerminalStream(io.TextIOBase):
     def fileno(self) -> int:
         return self.raw.fileno()
 
+    # Read-only views of the wrapped stream's settings (a TextIO declares them as
+    # attributes; this wrapper never lets them be set).
     @property
-    def encoding(self):
+    def encoding(self):  # type: ignore[override]
         return getattr(self.raw, "encoding", None)
 
     @property
-    def errors(self):
+    def errors(self):  # type: ignore[override]
         return getattr(self.raw, "errors", None)
 
 

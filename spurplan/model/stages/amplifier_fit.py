@@ -477,8 +477,10 @@ def fit_compression(
                 # A lower q cancels part of the intermodulation at the test level: go no
                 # further along the path than the intercept allows (P1dB then misses, and
                 # says so, rather than the intercept reading optimistic).
-                def excess(t):
-                    return oip3_check(build(t), target, r_ohm).miss_db - 0.8 * INTERCEPT_TOL_DB
+                def excess(t, target: float = target):
+                    miss_db = oip3_check(build(t), target, r_ohm).miss_db
+                    assert miss_db is not None  # oip3_check always has a model value
+                    return miss_db - 0.8 * INTERCEPT_TOL_DB
 
                 t_fit = 1.0 + math.log(fitted.inner_exponent / 0.5) / math.log(lo_q / 0.5)
                 if excess(t_fit) > 0:
