@@ -37,7 +37,8 @@ the whole engine pass of a yield batch).  What the fit solves for is solved per 
 where that is exact and cheap:
 
 * gain, OIP3, OIP2 and every ``ohipN`` set the small-signal terms exactly (closed form);
-* Psat sets the rail in closed form (``_rail_for_psat_v``): exact;
+* Psat sets the rail in closed form (:func:`~.amplifier_fit.rail_for_psat_v`, the
+  function the nominal fit sets its rail with): exact;
 * every ``hN`` holds at its stated output power: each zone weight moves by the change
   of the stated level less the change of the model's own harmonic there, read for the
   nominal and every sample alike by a vectorised one-tone DFT on
@@ -68,7 +69,7 @@ from spurplan.fields import Fields, Within
 from spurplan.model.ladders import SParameterTable
 from spurplan.model.nonlinear import Polynomial, Saturating
 from spurplan.model.stages import amplifier_fit
-from spurplan.model.stages.amplifier_fit import FigureCheck
+from spurplan.model.stages.amplifier_fit import FigureCheck, rail_for_psat_v
 from spurplan.model.stages.base import (
     DB,
     CascadeFigures,
@@ -682,13 +683,8 @@ def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[Polynomia
             base = replace(base, gamma=nominal.gamma / (10.0 ** (shift_db / 20.0)) ** 2)
         knee = replace(base, smoothness=nominal.smoothness, inner_exponent=nominal.inner_exponent)
         if fig.psat_dbm is not None:
-            # Relative to the same closed form at the nominal's parameters, so that a sample
-            # without a shift keeps the nominal's rail to the last bit.
-            psat = np.asarray(sample.psat_dbm, dtype=float)
-            rail = nominal.rail_v * (
-                _rail_for_psat_v(knee, psat, r_ohm)
-                / _rail_for_psat_v(nominal, np.asarray(fig.psat_dbm, dtype=float), r_ohm)
-            )
+            # The closed form the nominal fit sets its rail with (amplifier_fit).
+            rail = rail_for_psat_v(knee, np.asarray(sample.psat_dbm, dtype=float), r_ohm)
             # A sample whose inner function saturates below its Psat has no such rail (the
             # nominal fit would leave Psat unmet): its rail moves by the Psat shift.
             moved = nominal.rail_v * 10.0 ** (deltas.get("psat", zero) / 20.0)
@@ -725,26 +721,6 @@ def _moved_figures(fig: AmplifierFigures, deltas: dict, zero: np.ndarray) -> Amp
             n: (dbc - (n - 1) * deltas.get(f"ohip{n}", zero), at) for n, (dbc, at) in fig.harmonics.items()
         },
     )
-
-
-def _rail_for_psat_v(model: Saturating, psat_dbm: np.ndarray, r_ohm: float) -> np.ndarray:
-    """The rail ``V_r`` (V) that gives ``psat_dbm`` (dBm, per sample) in closed form.
-
-    The saturated fundamental is ``(4/pi) R(v_inf)`` with ``v_inf`` the inner function's
-    limit (``Saturating``'s docstring), so ``R(v_inf) = (pi/4) V_psat``.  An inner limit
-    ``v_inf = inf`` gives ``V_r`` itself; a finite one inverts the Rapp form
-    ``R(v) = v (1 + (v/V_r)^(2s))^(-1/(2s))``: ``V_r = v_inf ((v_inf/R)^(2s) - 1)^(-1/(2s))``
-    (``nan`` where Psat lies above the inner limit, which no rail reaches).
-    """
-    level = (math.pi / 4.0) * dbm_to_vpeak(psat_dbm, r_ohm)
-    a1 = np.asarray(model.a1, dtype=float)
-    gamma = np.asarray(model.gamma, dtype=float)
-    bounded = (gamma > 0) & (model.inner_exponent == 0.5) & np.all(np.asarray(model.a3_exp) == 0)
-    v_inf = np.where(bounded, a1 / np.sqrt(np.where(gamma > 0, gamma, 1.0)), 1.0)
-    two_s = 2.0 * model.smoothness
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inverted = v_inf / ((v_inf / level) ** two_s - 1.0) ** (1.0 / two_s)
-    return np.where(bounded, inverted, level)
 
 
 # Points per period of the one-tone reading of a per-sample harmonic change: the

@@ -200,6 +200,42 @@ def model_p1db_dbm(transfer, r_ohm: float) -> float | None:
     return float(vpeak_to_dbm(np.abs(one_tone(transfer, x, 1)[0, 1]), r_ohm))
 
 
+def rail_for_psat_v(model: Saturating, psat_dbm, r_ohm: float) -> np.ndarray:
+    """The rail ``V_r`` (V) that gives ``psat_dbm`` (dBm, per sample) in closed form.
+
+    The nominal fit and every Monte Carlo sample set their rail with this one function.
+
+    The saturated fundamental is ``(4/pi) R(v_inf)`` with ``v_inf`` the inner function's
+    limit (``Saturating``'s docstring), so ``R(v_inf) = (pi/4) V_psat``.  An inner limit
+    ``v_inf = inf`` gives ``V_r`` itself; a finite one inverts the Rapp form
+    ``R(v) = v (1 + (v/V_r)^(2s))^(-1/(2s))``: ``V_r = v_inf ((v_inf/R)^(2s) - 1)^(-1/(2s))``
+    (``nan`` where Psat lies above the inner limit, which no rail reaches).
+
+    Parameters
+    ----------
+    model : Saturating
+        The model whose rail is sought (its other parameters may be arrays over samples).
+    psat_dbm : float or ndarray
+        Saturated output power (dBm), per sample.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    ndarray
+        The rail (V peak), ``nan`` where out of reach.
+    """
+    level = (math.pi / 4.0) * dbm_to_vpeak(psat_dbm, r_ohm)
+    a1 = np.asarray(model.a1, dtype=float)
+    gamma = np.asarray(model.gamma, dtype=float)
+    bounded = (gamma > 0) & (model.inner_exponent == 0.5) & np.all(np.asarray(model.a3_exp) == 0)
+    v_inf = np.where(bounded, a1 / np.sqrt(np.where(gamma > 0, gamma, 1.0)), 1.0)
+    two_s = 2.0 * model.smoothness
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inverted = v_inf / ((v_inf / level) ** two_s - 1.0) ** (1.0 / two_s)
+    return np.where(bounded, inverted, level)
+
+
 def model_psat_dbm(transfer, r_ohm: float) -> float | None:
     """Saturated output power (dBm): the fundamental under unbounded drive.
 
@@ -441,18 +477,8 @@ def fit_compression(
     def with_rail_for_psat(model: Saturating) -> Saturating | None:
         """``model`` with the rail that gives ``psat_dbm``; None if out of reach."""
         assert psat_dbm is not None  # called only in the branches where Psat is stated
-        target = float(dbm_to_vpeak(psat_dbm, r_ohm))
-        unbounded = model_psat_dbm(replace(model, rail_v=math.inf), r_ohm)
-        if unbounded is not None and unbounded <= psat_dbm:
-            return None
-
-        def miss(log_rail):
-            lo, hi = replace(model, rail_v=math.exp(log_rail)).saturated_levels_v()
-            return 2.0 / math.pi * float(hi - lo) - target
-
-        guess = math.log(target)
-        log_rail = _bisect(miss, guess - 20.0, guess + 20.0, 80)
-        return replace(model, rail_v=math.exp(log_rail))
+        rail = float(rail_for_psat_v(model, psat_dbm, r_ohm))
+        return replace(model, rail_v=rail) if math.isfinite(rail) and rail > 0 else None
 
     checks = []
     model = replace(base, smoothness=DEFAULT_SMOOTHNESS)
