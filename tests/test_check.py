@@ -262,3 +262,28 @@ def test_a_product_exactly_on_the_out_of_band_boundary_is_judged_as_spurious():
     row = _row(outcome, "2f1-f2")
     assert row["freq_hz"] == 95e6
     assert row["domain"] == "spurious" and row["pass"] is not None
+
+
+def test_a_strong_im3_in_the_out_of_band_domain_is_never_a_pass():
+    # Two 1 MHz wide carriers 1 MHz apart: 2f1 - f2 sits 1 MHz below f1, inside the
+    # out-of-band domain (250 % of the necessary bandwidth, ITU RR Appendix 3, from
+    # memory), where the spurious limits do not apply.  With no out-of-band rule the
+    # product is not judged, so the check cannot say PASS (the project's rule: a number
+    # the check does not judge never turns into a pass).  Its level follows the textbook
+    # two-tone relation, IM3 = 3 P_out - 2 OIP3 (Razavi, RF Microelectronics, from
+    # memory): 3 x 10 - 2 x 30 = -30 dBm per tone at the output, -40 dBc.
+    carriers = [
+        {"freq": "100 MHz", "power": "-10 dBm", "bandwidth": "1 MHz"},
+        {"freq": "101 MHz", "power": "-10 dBm", "bandwidth": "1 MHz"},
+    ]
+    lenient = {"rule": [{"start": "9 kHz", "stop": "10 GHz", "limit": "0 dBm", "rbw": "100 kHz"}]}
+    outcome = _two_tone_check(carriers, lenient, max_order=3)
+    row = _row(outcome, "2f1-f2")
+    assert row["domain"] == "out-of-band" and row["pass"] is None
+    assert row["level_dbm"] == pytest.approx(-30.0, abs=0.05)
+    assert outcome.passed  # nothing the spurious rules judge fails
+    assert outcome.status == "INCOMPLETE"
+    assert outcome.verdict.startswith("INCOMPLETE")
+    assert "out-of-band domain not judged (no out-of-band rule; strongest" in outcome.verdict
+    assert outcome.strict_failure(strict=True)
+    assert len(outcome.unjudged_rows) == sum(1 for d in outcome.rows["domain"] if d == "out-of-band")

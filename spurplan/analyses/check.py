@@ -92,6 +92,16 @@ class CheckResult:
         return not self.missing_figures
 
     @property
+    def unjudged_rows(self) -> list[int]:
+        """Rows in the out-of-band domain that no rule judges (the spurious limits do not
+        apply there, and the mask has no rule for it): they keep the verdict from PASS."""
+        return [
+            i
+            for i, (domain, ok) in enumerate(zip(self.rows["domain"], self.rows["pass"], strict=True))
+            if domain == "out-of-band" and ok is None
+        ]
+
+    @property
     def status(self) -> str:
         """``PASS``, ``FAIL``, ``INCOMPLETE`` (the computed products pass, but figures
         are missing) or ``UNCERTAIN`` (they pass, but the model misses a stated figure).
@@ -101,7 +111,7 @@ class CheckResult:
         """
         if not self.passed:
             return "FAIL"
-        if self.missing_figures:
+        if self.missing_figures or self.unjudged_rows:
             return "INCOMPLETE"
         if self.figures_missed:
             return "UNCERTAIN"
@@ -128,8 +138,16 @@ class CheckResult:
         if status == "PASS" and self.worst is None:
             return f"NO RULE APPLIES: {core}"
         gaps = model_gaps(self.missing_figures, self.figures_missed)
-        if status == "INCOMPLETE":
+        if self.missing_figures:
             core += " (products that are modelled)"
+        unjudged = self.unjudged_rows
+        if unjudged:
+            top = max(unjudged, key=lambda i: self.rows["level_dbm"][i])
+            not_judged = (
+                f"{len(unjudged)} product{'s' * (len(unjudged) > 1)} in the out-of-band domain not judged "
+                f"(no out-of-band rule; strongest {self.rows['label'][top]} at {self.rows['dbc'][top]:+.2f} dBc)"
+            )
+            gaps = f"{not_judged}; {gaps}" if gaps else not_judged
         return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
 
     def strict_failure(self, strict: bool | None = None) -> bool:

@@ -152,6 +152,7 @@ def check_summary(outcome: CheckResult) -> dict:
         "status": outcome.status,
         "pass": outcome.passed,
         "complete": outcome.complete,
+        "unjudged_out_of_band": len(outcome.unjudged_rows),
         "missing_figures": [{"stage": st, "figure": what} for st, what in outcome.missing_figures],
         "figures_met": not outcome.figures_missed,
         "figure_checks": figure_check_rows(lineup),
