@@ -42,6 +42,7 @@ EXPECTED_NAMES = {
     "us-fcc-15.205",
     "us-fcc-15.209",
     "us-fcc-97.307",
+    "us-fcc-90.210-mask-b",
 }
 
 # Fact-sheet status codes (its first table) and the status word a data file uses.
@@ -141,6 +142,7 @@ STATUS_ALLOWED = {
     "gnss-bands": {CODE["V2"]},  # fact sheet 4.4: RNSS allocations V2
     "itu-sm329-cat-a": {CODE["M"]},  # fact sheet 1.3: attenuation rows M
     "us-fcc-97.307": {CODE["V"]},  # fact sheet 2.2: (d), (e) V
+    "us-fcc-90.210-mask-b": {CODE["M"]},  # fact sheet 2.7: mask segments M
     # fact sheet 2.4: limits V; bandwidths below 1 GHz are not in the fact sheet (M).
     "us-fcc-15.209": {CODE["V"], CODE["M"]},
 }
@@ -657,3 +659,18 @@ def test_bands_unknown_name_lists_the_names():
     assert "'no-such-set'" in line
     for name in NAMES:
         assert name in line
+
+
+@pytest.mark.parametrize(
+    ("displacement", "want_dbc"),
+    [(0.4, None), (0.5, -25.0), (0.75, -25.0), (1.0, -25.0), (1.5, -35.0), (2.5, -35.0), (2.6, None)],
+)
+def test_90_210_mask_b_segments(displacement, want_dbc):
+    # Fact sheet 2.7 (from memory): mask B attenuates 25 dB at 50-100 % of the authorized
+    # bandwidth and 35 dB at 100-250 %; beyond 250 % the spurious limit takes over.
+    (rule,) = load_ruleset(shipped_path("us-fcc-90.210-mask-b")).rules
+    assert rule.domain == "out-of-band" and rule.offsets_of_bandwidth
+    covered = bool(rule.covers_offset(displacement))
+    assert covered is (want_dbc is not None)
+    if covered:
+        assert float(rule.offset_limit_dbm(displacement, 0.0)) == pytest.approx(want_dbc, abs=1e-9)

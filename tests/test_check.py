@@ -8,6 +8,7 @@ import pytest
 from helpers import amp
 
 from spurplan.analyses.check import check
+from spurplan.errors import LineupError
 from spurplan.io.lineup_file import from_dict
 from spurplan.model.masks import Rule, field_to_eirp_dbm
 from spurplan.units import dbm_to_vpeak, vpeak_to_dbm
@@ -287,3 +288,82 @@ def test_a_strong_im3_in_the_out_of_band_domain_is_never_a_pass():
     assert "out-of-band domain not judged (no out-of-band rule; strongest" in outcome.verdict
     assert outcome.strict_failure(strict=True)
     assert len(outcome.unjudged_rows) == sum(1 for d in outcome.rows["domain"] if d == "out-of-band")
+
+
+def test_an_out_of_band_rule_judges_im3_against_its_offset_breakpoints():
+    # The two-carrier case above under an out-of-band rule of dBc breakpoints against the
+    # offset from the carrier's centre: -20 dBc at 0 Hz, -50 dBc at 1.5 MHz, linear in dB
+    # between (the rule's own definition).  2f1 - f2 sits 1 MHz from f1: -20 - 30 x 1/1.5
+    # = -40 dBc of the total mean carrier power (arithmetic); the product is about
+    # -30 dBm (IM3 = 3 P_out - 2 OIP3, Razavi, from memory) against a carrier total of
+    # 10 log10(2) + 10 = +13.01 dBm less the cubic's own two-tone compression (the model's
+    # total, 0.3 dB lower at most 20 dB below OIP3): margin about +2.7 to +3.0 dB.
+    carriers = [
+        {"freq": "100 MHz", "power": "-10 dBm", "bandwidth": "1 MHz"},
+        {"freq": "101 MHz", "power": "-10 dBm", "bandwidth": "1 MHz"},
+    ]
+    mask = {
+        "rule": [
+            {"start": "9 kHz", "stop": "10 GHz", "limit": "0 dBm", "rbw": "100 kHz"},
+            {
+                "name": "near the carriers",
+                "domain": "out-of-band",
+                "offsets": [["0 Hz", "-20 dBc"], ["1.5 MHz", "-50 dBc"]],
+            },
+        ]
+    }
+    outcome = _two_tone_check(carriers, mask, max_order=3)
+    row = _row(outcome, "2f1-f2")
+    assert row["domain"] == "out-of-band" and row["rule"] == "lineup: near the carriers"
+    assert row["limit_dbm"] == pytest.approx(outcome.carrier_dbm - 40.0, abs=1e-9)
+    assert 10 * math.log10(2) + 10.0 - 0.3 < outcome.carrier_dbm <= 10 * math.log10(2) + 10.0
+    assert row["level_dbm"] == pytest.approx(-30.0, abs=0.05)
+    assert row["margin_db"] == pytest.approx(row["limit_dbm"] - row["level_dbm"], abs=1e-9)
+    assert 2.6 < row["margin_db"] < 3.1 and row["pass"] is True
+    assert row["limit_form"] == "-20 dBc at 0 Hz, -50 dBc at 1.5 MHz"
+    # A stricter flat out-of-band limit makes the same product fail the check.
+    mask["rule"][1] = {"name": "strict", "domain": "out-of-band", "limit": "-50 dBc"}
+    strict = _two_tone_check(carriers, mask, max_order=3)
+    assert strict.status == "FAIL"
+    assert strict.rows["label"][strict.worst] in ("2f1-f2", "2f2-f1")
+    assert strict.worst_margin_db == pytest.approx(row["margin_db"] - 10.0, abs=1e-6)
+
+
+@pytest.mark.parametrize(
+    ("rule", "needle"),
+    [
+        ({"offsets": [["0 Hz", "-20 dBc"], ["1 MHz", "-50 dBc"]]}, 'expected domain = "out-of-band"'),
+        ({"domain": "out-of-band", "offsets": [["0 Hz", "-20 dBc"]]}, "2 to 64 of them"),
+        ({"domain": "out-of-band", "offsets": [["1 MHz", "-20 dBc"], ["1 MHz", "-50 dBc"]]}, "increase"),
+        ({"domain": "out-of-band", "offsets": [["0 Hz", "-20 dBm"], ["1 MHz", "-50 dBc"]]}, "dBc"),
+        ({"domain": "out-of-band", "attenuation": "43 dB"}, "dBm or dBc"),
+        ({"domain": "nearby", "limit": "-30 dBc"}, "out-of-band"),
+    ],
+)
+def test_malformed_out_of_band_rules_are_one_line_errors(rule, needle):
+    carriers = [{"freq": "100 MHz", "power": "-10 dBm", "bandwidth": "1 MHz"}]
+    rule = {"name": "r", **({"start": "9 kHz"} if "domain" not in rule else {}), **rule}
+    with pytest.raises(LineupError) as caught:
+        _lineup([amp(gain="20 dB", oip3="+30 dBm")], carriers, {"rule": [rule]})
+    assert needle in str(caught.value) and "\n" not in str(caught.value)
+
+
+def test_the_shipped_mask_b_judges_a_product_by_its_offset_in_bandwidths():
+    # us-fcc-90.210-mask-b (fact sheet 2.7, from memory): 25 dB from 50 % to 100 % of the
+    # authorized bandwidth.  Two 20 kHz carriers 15 kHz apart: 2f1 - f2 sits 15 kHz below
+    # f1 = 75 % of 20 kHz, so its limit is the total carrier power less 25 dB; 3f1 - 2f2
+    # at 30 kHz (150 %) is held 35 dB down (arithmetic).
+    carriers = [
+        {"freq": "150 MHz", "power": "-10 dBm", "bandwidth": "20 kHz"},
+        {"freq": "150.015 MHz", "power": "-10 dBm", "bandwidth": "20 kHz"},
+    ]
+    mask = {"use": ["us-fcc-90.210-mask-b", "itu-sm329-cat-a"]}
+    outcome = _two_tone_check(carriers, mask, max_order=5)
+    im3, im5 = _row(outcome, "2f1-f2"), _row(outcome, "3f1-2f2")
+    assert im3["rule"] == "us-fcc-90.210-mask-b: Mask B, 50 % - 250 % of the authorized bandwidth"
+    assert im3["limit_dbm"] == pytest.approx(outcome.carrier_dbm - 25.0, abs=1e-9)
+    assert im5["limit_dbm"] == pytest.approx(outcome.carrier_dbm - 35.0, abs=1e-9)
+    # IM3 = 3 P_out - 2 OIP3 = -30 dBm per side (Razavi, from memory) against about
+    # +12.8 - 25 = -12.2 dBm: judged, and a pass by about 18 dB.
+    assert im3["level_dbm"] == pytest.approx(-30.0, abs=0.05)
+    assert im3["pass"] is True and im3["margin_db"] == pytest.approx(im3["limit_dbm"] + 30.0, abs=0.05)

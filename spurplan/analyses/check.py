@@ -340,11 +340,15 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     bandwidth = np.abs(result.mix[levels.rep]).astype(float) @ bw_k
 
     domain = np.where(product, 0, -1)
+    # Offset of each product from the nearest carrier with a stated bandwidth (what an
+    # out-of-band rule's breakpoints are read against).
+    offset_hz, offset_bw = _offsets(lineup, freq, carriers_hz)
     for k, c in enumerate(lineup.carriers):
         if c.bandwidth_hz:
             near = np.abs(freq - carriers_hz[:, k : k + 1]) < mask.spurious_boundary * c.bandwidth_hz
             domain = np.where(product & near, 1, domain)
     spurious = domain == 0
+    out_of_band = domain == 1
 
     rules = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
     gain = mask.antenna_gain_dbi(freq)
@@ -354,7 +358,9 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
     best_level = np.full(freq.shape, np.nan)
     for j, (rule, ex) in enumerate(rules):
         holds = np.asarray(rule.holds_for(f_carrier, p_dbm))[:, None]
-        covers = holds & spurious & _covers(rule, ex, freq, f_highest[:, None])
+        offset = offset_bw if rule.offsets_of_bandwidth else offset_hz
+        in_domain = out_of_band & rule.covers_offset(offset) if rule.domain == "out-of-band" else spurious
+        covers = holds & in_domain & _covers(rule, ex, freq, f_highest[:, None])
         if not covers.any():
             continue
         in_rbw = level
@@ -363,7 +369,10 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
                 in_rbw = level - np.where(
                     bandwidth > rule.rbw_hz, 10 * np.log10(bandwidth / rule.rbw_hz), 0.0
                 )
-        limit = rule.limit_dbm(freq, p_dbm[:, None], gain)
+        if rule.offsets:
+            limit = rule.offset_limit_dbm(np.where(np.isfinite(offset), offset, 0.0), p_dbm[:, None])
+        else:
+            limit = rule.limit_dbm(freq, p_dbm[:, None], gain)
         margin = limit - in_rbw
         better = covers & (margin < best_margin)
         best_margin = np.where(better, margin, best_margin)
@@ -566,12 +575,46 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     gain = mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
     pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
+    # The out-of-band domain around each carrier with a stated bandwidth, and the offset
+    # from the nearest one (as evaluate() reads them).
+    lineup = outcome.result.lineup
+    carriers_hz = outcome.result.carrier_freqs_hz()[:1]
+    offset_hz, offset_bw = (a[0] for a in _offsets(lineup, freq_hz.reshape(1, -1), carriers_hz))
+    offset_hz, offset_bw = offset_hz.reshape(freq_hz.shape), offset_bw.reshape(freq_hz.shape)
+    near = np.zeros(freq_hz.shape, dtype=bool)
+    for k, c in enumerate(lineup.carriers):
+        if c.bandwidth_hz:
+            near |= np.abs(freq_hz - carriers_hz[0, k]) < mask.spurious_boundary * c.bandwidth_hz
     for rule, ex in pairs:
         if not rule.holds_for(f_carrier, outcome.carrier_dbm):
             continue
         covers = _covers(rule, ex, freq_hz, f_highest)
-        line = np.where(covers, np.minimum(line, rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)), line)
+        offset = offset_bw if rule.offsets_of_bandwidth else offset_hz
+        if rule.domain == "out-of-band":
+            covers = covers & near & rule.covers_offset(offset)
+        if rule.offsets:
+            limit = rule.offset_limit_dbm(np.where(near, offset, 0.0), outcome.carrier_dbm)
+        else:
+            limit = rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)
+        line = np.where(covers, np.minimum(line, limit), line)
     return np.where(np.isinf(line), np.nan, line)
+
+
+def _offsets(lineup, freq: np.ndarray, carriers_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Offset of each product from the nearest carrier with a stated bandwidth: in Hz,
+    and as a fraction of that carrier's bandwidth (``inf`` where no carrier has one).
+
+    ``freq`` is (B, G), ``carriers_hz`` (B, C) at the output; both results are (B, G).
+    """
+    offset_hz = np.full(freq.shape, np.inf)
+    offset_bw = np.full(freq.shape, np.inf)
+    for k, c in enumerate(lineup.carriers):
+        if c.bandwidth_hz:
+            distance = np.abs(freq - carriers_hz[:, k : k + 1])
+            closer = distance < offset_hz
+            offset_hz = np.where(closer, distance, offset_hz)
+            offset_bw = np.where(closer, distance / c.bandwidth_hz, offset_bw)
+    return offset_hz, offset_bw
 
 
 def _coverage_notes(lineup, mask, f_highest: float) -> list[str]:

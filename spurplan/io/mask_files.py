@@ -15,6 +15,9 @@ File format (one rule set or band list per file)::
     stop = "1 GHz"                       # optional: no upper end
     limit = "-36 dBm" | "-60 dBc" | "54 dBuV/m @ 3 m" | "2400/F uV/m @ 300 m"
     # or: attenuation = "43 dB", cap = "70 dB"
+    # or, near the carriers: domain = "out-of-band" with limit = "-30 dBc" | "-20 dBm", or
+    # offsets = [["12.5 kHz", "-25 dBc"], ["25 kHz", "-35 dBc"]] (dBc against the offset
+    # from the nearest carrier's centre, linear in dB between breakpoints); start optional
     rbw = "100 kHz"                      # optional: compare whole product power
     floor = "-20 dBm"; ceiling = "-16 dBm"          # optional, relative limits
     when_carrier = { start = "30 MHz", stop = "225 MHz" }
@@ -43,7 +46,7 @@ from pathlib import Path
 from spurplan.errors import LineupError, UnitError
 from spurplan.fields import CARRIER_POWER, Fields, Within, _did_you_mean, existing_file, read_toml
 from spurplan.io.resources import data_dir
-from spurplan.model.masks import STATUSES, Band, Examined, Mask, Rule, RuleSet
+from spurplan.model.masks import DOMAINS, STATUSES, Band, Examined, Mask, Rule, RuleKind, RuleSet
 from spurplan.units import (
     check_value_length,
     parse_dbc,
@@ -267,21 +270,34 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
         A missing, unknown, malformed or implausible key.
     """
     name = f.text("name", default=f.where)
-    start = f.quantity("start", parse_freq_hz, required=True)
+    domain = f.text("domain", default="spurious", choices=DOMAINS)
+    oob = domain == "out-of-band"
+    # An out-of-band rule follows the carriers wherever they are: its range may be open.
+    start = f.quantity("start", parse_freq_hz, required=not oob)
+    start = 0.0 if start is None else start
     stop = f.quantity("stop", parse_freq_hz)
     stop = math.inf if stop is None else stop
     if stop <= start:
         raise f.error("stop", f"{f.raw('stop')!r}: expected a stop frequency above start {f.raw('start')!r}")
-    has_limit, has_att = f.has("limit"), f.has("attenuation")
-    if has_limit == has_att:
-        raise f.error("limit", "expected exactly one of 'limit' or 'attenuation'")
+    has_limit, has_att, has_offsets = f.has("limit"), f.has("attenuation"), f.has("offsets")
+    if has_limit + has_att + has_offsets != 1:
+        raise f.error("limit", "expected exactly one of 'limit', 'attenuation' or 'offsets'")
     cap = distance = None
-    per_khz = False
-    if has_limit:
+    per_khz = of_bandwidth = False
+    offsets: tuple[tuple[float, float], ...] = ()
+    if has_offsets:
+        if not oob:
+            raise f.error("offsets", 'apply to out-of-band rules only: expected domain = "out-of-band"')
+        offsets, of_bandwidth = _offsets(f)
+        kind: RuleKind = "relative"
+        value = offsets[0][1]
+    elif has_limit:
         kind, value, distance, per_khz = read_limit(f)
     else:
         kind, value = "attenuation", f.quantity("attenuation", parse_gain_db)
-    f.raw("limit"), f.raw("attenuation")
+    f.raw("limit"), f.raw("attenuation"), f.raw("offsets")
+    if oob and kind not in ("absolute", "relative"):
+        raise f.error("limit", "an out-of-band rule takes a limit in dBm or dBc, or 'offsets'")
     cap = f.quantity("cap", parse_gain_db)
     if cap is not None and kind != "attenuation":
         raise f.error("cap", "applies to 'attenuation' rules only")
@@ -324,7 +340,67 @@ def read_rule(f: Fields, origin: str, default_source: str, status_required: bool
         source=source,
         status=status,
         origin=origin,
+        domain=domain,
+        offsets=offsets,
+        offsets_of_bandwidth=of_bandwidth,
     )
+
+
+# Breakpoint offsets of an out-of-band rule lie within the out-of-band domain of some
+# carrier: 250 % of a necessary bandwidth, which the carrier range bounds (common
+# practice, no source).
+OFFSET = Within("an offset from the carrier", 0.0, 1e11, "Hz")
+# In per cent of the necessary bandwidth the domain ends at the spurious boundary (250 %
+# by default); 1000 % leaves room for a wider boundary.
+OFFSET_PERCENT = Within("an offset from the carrier", 0.0, 1000.0, "%")
+MAX_OFFSETS = 64
+
+
+def _offset(text: str) -> tuple[float, bool]:
+    """An offset in Hz (``"12.5 kHz"``), or a fraction of the bandwidth (``"50 %"``)."""
+    stripped = text.strip()
+    if stripped.endswith("%"):
+        try:
+            percent = float(stripped[:-1])
+        except ValueError:
+            raise UnitError(
+                text, "an offset such as '12.5 kHz' or '50 %' (of the necessary bandwidth)"
+            ) from None
+        return percent, True
+    return parse_freq_hz(text), False
+
+
+def _offsets(f: Fields) -> tuple[tuple[tuple[float, float], ...], bool]:
+    """``offsets = [["12.5 kHz", "-25 dBc"], ...]`` (or ``"50 %"`` offsets): at least two,
+    offsets increasing, all in Hz or all in per cent of the necessary bandwidth."""
+    raw = f.raw("offsets")
+    shape = (
+        'expected a list of [offset, limit] pairs such as [["12.5 kHz", "-25 dBc"], ["25 kHz", "-35 dBc"]]'
+    )
+    if not isinstance(raw, list) or not 2 <= len(raw) <= MAX_OFFSETS:
+        raise f.error("offsets", f"{str(raw)[:120]}: {shape} (2 to {MAX_OFFSETS} of them)")
+    out: list[tuple[float, float]] = []
+    kinds: list[bool] = []
+    for pair in raw:
+        if not isinstance(pair, list) or len(pair) != 2 or not all(isinstance(x, str) for x in pair):
+            raise f.error("offsets", f"{str(pair)[:120]}: {shape}")
+        try:
+            (offset, percent), dbc = _offset(pair[0]), parse_dbc(pair[1])
+        except UnitError as exc:
+            raise f.error("offsets", str(exc)) from None
+        if out and percent != kinds[0]:
+            raise f.error("offsets", f"{pair[0]!r}: expected every offset in Hz or every one in %, not both")
+        kinds.append(percent)
+        within = OFFSET_PERCENT if percent else OFFSET
+        if not (math.isfinite(offset) and offset in within):
+            raise f.error("offsets", f"{pair[0]!r}: {within.expected()}")
+        if dbc not in RELATIVE_LIMIT:
+            raise f.error("offsets", f"{pair[1]!r}: {RELATIVE_LIMIT.expected()}")
+        value = offset / 100.0 if percent else offset
+        if out and value <= out[-1][0]:
+            raise f.error("offsets", f"{pair[0]!r}: expected offsets that increase")
+        out.append((value, dbc))
+    return tuple(out), kinds[0]
 
 
 def read_limit(f: Fields, *, required: bool = False):

@@ -38,6 +38,9 @@ RuleKind = Literal["absolute", "relative", "attenuation", "field"]
 # 120 + 10 log10(30) - 30: E in dBuV/m at 1 m from an EIRP in dBm (ITU-R P.525).
 FIELD_CONSTANT_DB = 120.0 + 10.0 * math.log10(30.0) - 30.0
 STATUSES = ("published text", "secondary source", "derived", "from memory", "user")
+# Where a rule judges (ITU RR Appendix 3: the out-of-band domain lies within the spurious
+# boundary of a carrier, the spurious domain beyond it).
+DOMAINS = ("spurious", "out-of-band")
 
 
 @dataclass(frozen=True)
@@ -73,6 +76,18 @@ class Rule:
         One of :data:`STATUSES`: how the value was checked.
     origin : str
         The rule set (file) or ``"lineup"`` it came from.
+    domain : {"spurious", "out-of-band"}
+        Where the rule judges: the spurious domain (beyond the out-of-band boundary of
+        every carrier), or the out-of-band domain (within it; ITU RR Appendix 3).
+    offsets : tuple of (float, float)
+        Out-of-band relative rules: ``(offset_hz, dBc)`` breakpoints, the limit against
+        the product's offset from the nearest carrier's centre, interpolated linearly in
+        dB against offset; the rule covers offsets from the first breakpoint to the last.
+        Empty for a constant limit.
+    offsets_of_bandwidth : bool
+        The breakpoints' offsets are fractions of the nearest carrier's necessary
+        bandwidth (``"50 %"`` in a file is 0.5), as masks that scale with the authorized
+        bandwidth state them, rather than hertz.
     """
 
     name: str
@@ -91,6 +106,9 @@ class Rule:
     source: str = ""
     status: str = "user"
     origin: str = "lineup"
+    domain: str = "spurious"
+    offsets: tuple[tuple[float, float], ...] = ()
+    offsets_of_bandwidth: bool = False
 
     @property
     def label(self) -> str:
@@ -121,6 +139,49 @@ class Rule:
             lo, hi = self.when_power_dbm
             ok &= (lo < np.asarray(carrier_dbm)) & (np.asarray(carrier_dbm) <= hi)
         return ok if ok.shape else bool(ok)
+
+    def covers_offset(self, offset_hz) -> np.ndarray:
+        """Where the rule's offset breakpoints cover ``offset_hz`` (everywhere without any).
+
+        Parameters
+        ----------
+        offset_hz : array_like
+            Offset of each product from the nearest carrier's centre: Hz, or a fraction of
+            its necessary bandwidth for :attr:`offsets_of_bandwidth` rules.
+
+        Returns
+        -------
+        ndarray of bool
+            The shape of ``offset_hz``.
+        """
+        off = np.asarray(offset_hz, dtype=float)
+        if not self.offsets:
+            return np.ones(off.shape, dtype=bool)
+        return (off >= self.offsets[0][0]) & (off <= self.offsets[-1][0])
+
+    def offset_limit_dbm(self, offset_hz, carrier_dbm) -> np.ndarray:
+        """The out-of-band limit (dBm in ``rbw_hz``) at ``offset_hz`` from the carrier.
+
+        ``carrier_dbm`` plus the breakpoints' dBc, interpolated linearly in dB against
+        offset (``numpy.interp``; held at the end values outside, where the rule does
+        not cover: :meth:`covers_offset`).
+
+        Parameters
+        ----------
+        offset_hz : array_like
+            Offset from the nearest carrier's centre: Hz, or a fraction of its necessary
+            bandwidth for :attr:`offsets_of_bandwidth` rules.
+        carrier_dbm : array_like
+            Mean carrier power (dBm); broadcasts with ``offset_hz``.
+
+        Returns
+        -------
+        ndarray
+            The limit (dBm).
+        """
+        xs = np.array([o for o, _ in self.offsets], dtype=float)
+        ys = np.array([d for _, d in self.offsets], dtype=float)
+        return np.asarray(carrier_dbm, dtype=float) + np.interp(np.asarray(offset_hz, dtype=float), xs, ys)
 
     def limit_dbm(self, freq_hz, carrier_dbm, antenna_gain_dbi) -> np.ndarray:
         """Conducted limit (dBm in ``rbw_hz``) at ``freq_hz`` for mean carrier power ``carrier_dbm``.
@@ -173,6 +234,13 @@ class Rule:
     def describe(self) -> str:
         """Short human form of the limit, e.g. ``-36 dBm/100 kHz``."""
         bw = "" if self.rbw_hz is None else f"/{_bw(self.rbw_hz)}"
+        if self.offsets:
+
+            def at(o: float) -> str:
+                return f"{100 * o:g} %" if self.offsets_of_bandwidth else (_bw(o) if o else "0 Hz")
+
+            points = ", ".join(f"{d:g} dBc at {at(o)}" for o, d in self.offsets)
+            return f"{points}{bw}"
         if self.kind == "absolute":
             return f"{self.value:g} dBm{bw}"
         if self.kind == "relative":
