@@ -264,6 +264,9 @@ def _show(value: float, unit: str) -> str:
 # thermal noise in any bandwidth an emission occupies (kT = -174 dBm/Hz at 290 K).
 CARRIER_FREQ = Within("a carrier frequency", 1e3, 1e12, "Hz", "a radio frequency, not DC")
 CARRIER_POWER = Within("a carrier power", -150.0, 90.0, "dBm")
+# Noise figures of amplifiers and mixers lie between a fraction of a dB (a cooled LNA) and
+# about 30 dB (a passive mixer with a lossy front end); common practice, no source.
+NOISE_FIGURE = Within("a noise figure", 0.0, 40.0, "dB")
 
 
 def existing_file(base_dir, rel: str, fields: Fields, key: str):

@@ -9,6 +9,16 @@ Microwave Engineering, section on cascaded intercepts; Razavi, RF Microelectroni
 with ``G_k`` the power gains before stage k; stages without an IP3 figure (pads,
 filters) add nothing but their gain.  This assumes the stages' IM3 products add in
 phase: the worst case, which the engine reproduces with in-phase cubic stages.
+
+Cascaded noise figure (Friis 1944, from memory), in linear power ratios::
+
+    F_total = F_1 + (F_2 - 1) / G_1 + (F_3 - 1) / (G_1 G_2) + ...
+
+with the stages' small-signal power gains at the carrier frequency taken as their
+available gains (matched stages).  An active stage's F is its stated noise figure; a
+passive one (pad, filter) at the reference temperature T0 = 290 K has F = 1 / G, its
+loss.  The output noise density is k T0 F_total G_total, with k T0 = -173.98 dBm/Hz
+(k = 1.380649e-23 J/K, exact in the 2019 SI).
 """
 
 from __future__ import annotations
@@ -32,8 +42,44 @@ BUDGET_COLUMNS = [
     "p1db_stated_dbm",
     "headroom_db",
     "psat_dbm",
+    "nf_db",
+    "cascade_nf_db",
+    "noise_out_dbm_hz",
     "figures",
 ]
+
+BOLTZMANN_J_PER_K = 1.380649e-23  # exact (SI 2019)
+T0_K = 290.0  # the reference temperature of noise figures (IEEE definition; from memory)
+KT0_DBM_HZ = 10.0 * math.log10(BOLTZMANN_J_PER_K * T0_K * 1e3)
+
+
+def cascade_nf_db(gains_db, nf_db) -> list[float | None]:
+    """Cascaded noise figure (dB) at the output of each stage (Friis).
+
+    Parameters
+    ----------
+    gains_db : sequence of float
+        Small-signal power gain of each stage (dB), taken as its available gain.
+    nf_db : sequence of float or None
+        Noise figure of each stage (dB); ``None`` where it is not known.
+
+    Returns
+    -------
+    list of float or None
+        ``None`` from the first stage whose noise figure is not known on.
+    """
+    total = 1.0
+    gain_before = 1.0
+    out: list[float | None] = []
+    known = True
+    for g, nf in zip(gains_db, nf_db, strict=True):
+        known = known and nf is not None
+        if known:
+            assert nf is not None
+            total += (10.0 ** (nf / 10.0) - 1.0) / gain_before
+        gain_before *= 10.0 ** (g / 10.0)
+        out.append(10.0 * math.log10(total) if known else None)
+    return out
 
 
 def cascade_iip3_dbm(gains_db, oip3_dbm) -> list[float]:
@@ -100,6 +146,15 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
     figures = [s.cascade_figures(lineup.r_ohm) for s in stages]
     oip3 = [f.oip3_dbm for f in figures]
     iip3 = cascade_iip3_dbm(gains, oip3)
+    # A passive stage (no nonlinear model, no conversion) at T0 has the noise figure of
+    # its loss; an active one has the figure it states.
+    nf = [
+        f.noise_figure_db
+        if s.transfer is not None or s.conversion is not None
+        else (max(-g, 0.0) if g <= 0.0 else None)
+        for s, f, g in zip(stages, figures, gains, strict=True)
+    ]
+    nf_cascade = cascade_nf_db(gains, nf)
     cols: dict[str, list] = {c: [] for c in BUDGET_COLUMNS}
     cum = 0.0
     for i, stage in enumerate(stages):
@@ -123,6 +178,10 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
         cols["p1db_stated_dbm"].append(figures[i].p1db_stated_dbm)
         cols["headroom_db"].append(None if p1db is None else p1db - p_out)
         cols["psat_dbm"].append(figures[i].psat_model_dbm)
+        cols["nf_db"].append(nf[i])
+        cols["cascade_nf_db"].append(nf_cascade[i])
+        total_nf = nf_cascade[i]
+        cols["noise_out_dbm_hz"].append(None if total_nf is None else KT0_DBM_HZ + total_nf + cum)
         cols["figures"].append(_figures_state(stage))
     return cols
 

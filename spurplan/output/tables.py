@@ -33,6 +33,9 @@ BUDGET_TABLE = [
     ("p1db_stated_dbm", "stated P1dB (dBm)", ".2f"),
     ("headroom_db", "headroom (dB)", ".2f"),
     ("psat_dbm", "model Psat (dBm)", ".2f"),
+    ("nf_db", "NF (dB)", ".2f"),
+    ("cascade_nf_db", "casc NF (dB)", ".2f"),
+    ("noise_out_dbm_hz", "noise out (dBm/Hz)", ".2f"),
     ("figures", "figures", None),
 ]
 

@@ -65,7 +65,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from spurplan.fields import Fields, Within
+from spurplan.fields import NOISE_FIGURE, Fields, Within
 from spurplan.model.ladders import SParameterTable
 from spurplan.model.nonlinear import Polynomial, Saturating
 from spurplan.model.stages import amplifier_fit
@@ -403,6 +403,7 @@ class Amplifier(StageDefaults):
     shape: SParameterTable | None = None
     band: PassBand | None = None
     ref_freq_hz: float = 0.0
+    noise_figure_db: float | None = None
 
     kind = "amplifier"
 
@@ -420,6 +421,7 @@ class Amplifier(StageDefaults):
         parts += [f"H{n} {dbc:+g} dBc @ {at:+g} dBm" for n, (dbc, at) in sorted(f.harmonics.items())]
         parts += [f"P1dB {f.p1db_dbm:+g} dBm"] if f.p1db_dbm is not None else []
         parts += [f"Psat {f.psat_dbm:+g} dBm"] if f.psat_dbm is not None else []
+        parts += [f"NF {self.noise_figure_db:g} dB"] if self.noise_figure_db is not None else []
         if self.band is not None:
             b = self.band
             edges = [
@@ -446,6 +448,7 @@ class Amplifier(StageDefaults):
             p1db_stated_dbm=self.figures.p1db_dbm,
             p1db_model_dbm=output_p1db_dbm(self.transfer, r_ohm),
             psat_model_dbm=amplifier_fit.model_psat_dbm(self.transfer, r_ohm),
+            noise_figure_db=self.noise_figure_db,
         )
 
     def spread_figures(self) -> dict[str, str]:
@@ -620,6 +623,9 @@ class Amplifier(StageDefaults):
         figures = read_figures(fields)
         band = read_band(fields, context)
         amp = cls.from_figures(fields.raw("name"), figures, context.r_ohm, band, context.ref_freq_hz)
+        nf = fields.quantity("noise_figure", parse_gain_db, within=NOISE_FIGURE)
+        if nf is not None:
+            amp = replace(amp, noise_figure_db=nf)
         fields.raw("input_port")
         fields.raw("touchstone")
         if not fields.has("touchstone"):

@@ -250,12 +250,16 @@ class CascadeFigures:
         The model's own output P1dB (dBm): what headroom is measured from.
     psat_model_dbm : float or None
         The model's saturated output power (dBm).
+    noise_figure_db : float or None
+        Stated noise figure (dB) of an active stage; ``None`` where none is stated (a
+        passive stage's is its loss, which the budget takes from its gain).
     """
 
     oip3_dbm: float | None = None
     p1db_stated_dbm: float | None = None
     p1db_model_dbm: float | None = None
     psat_model_dbm: float | None = None
+    noise_figure_db: float | None = None
 
 
 class StageDefaults:

@@ -88,11 +88,12 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from spurplan.fields import CARRIER_FREQ, Fields, Within
+from spurplan.fields import CARRIER_FREQ, NOISE_FIGURE, Fields, Within
 from spurplan.model.nonlinear import per_sample
 from spurplan.model.stages.base import (
     DB,
     NONPOLYNOMIAL_DEGREE,
+    CascadeFigures,
     Conversion,
     LoadContext,
     SampledStage,
@@ -404,6 +405,7 @@ class Mixer(StageDefaults):
     transfer: MixerModel
     notes: tuple[str, ...] = ()
     lo_isolation_db: float | None = None
+    noise_figure_db: float | None = None
     if_isolation_db: float | None = None
     p1db_dbm: float | None = None
     iip3_dbm: float | None = None
@@ -429,6 +431,20 @@ class Mixer(StageDefaults):
             f"{self.conversion_gain_db:+g} dB, {self.sideband} sideband wanted, {len(self.table)} spur-table terms "
             f"at {self.spur_drive_dbm:+g} dBm IF"
         )
+
+    def cascade_figures(self, r_ohm: float) -> CascadeFigures:
+        """The stated noise figure (SSB, dB), for the cascaded noise figure.
+
+        Parameters
+        ----------
+        r_ohm : float
+            System impedance (ohm).
+
+        Returns
+        -------
+        CascadeFigures
+        """
+        return CascadeFigures(noise_figure_db=self.noise_figure_db)
 
     def spread_figures(self) -> dict[str, str]:
         """The conversion gain, in dB."""
@@ -537,6 +553,7 @@ class Mixer(StageDefaults):
         if if_isolation is not None:
             fields.require_within("if_isolation", if_isolation, ISOLATION)
         image_rej = fields.quantity("image_rejection", parse_gain_db, within=IMAGE_REJECTION)
+        noise_figure = fields.quantity("noise_figure", parse_gain_db, within=NOISE_FIGURE)
         p1db, iip3, knee = _compression(fields, context.r_ohm)
         drive = fields.quantity("spur_drive", parse_power_dbm, within=SPUR_DRIVE)
         raw = fields.raw("spurs", {})
@@ -594,6 +611,7 @@ class Mixer(StageDefaults):
         )
         return cls(
             name=name,
+            noise_figure_db=noise_figure,
             lo_freq_hz=lo_freq,
             lo_power_dbm=lo_power,
             conversion_gain_db=gain,

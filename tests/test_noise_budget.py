@@ -1,0 +1,72 @@
+"""Cascaded noise figure and output noise density in the budget (issue 14, noise: first step).
+
+References: Friis, "Noise figures of radio receivers", Proc. IRE 32 (1944) for the
+cascade formula (from memory); the 2019 SI for k = 1.380649e-23 J/K (exact) and the
+IEEE reference temperature T0 = 290 K (from memory); a matched passive network at T0
+has a noise figure equal to its loss (Pozar, Microwave Engineering, noise chapter, from
+memory).
+"""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+from helpers import amp, lineup
+
+from spurplan.analyses.budget import KT0_DBM_HZ, budget_rows, cascade_nf_db
+from spurplan.errors import LineupError
+
+
+def _db(x: float) -> float:
+    return 10.0 * math.log10(x)
+
+
+def test_kt0_is_minus_174_dbm_per_hz():
+    # k T0 = 1.380649e-23 x 290 W/Hz = 4.0039e-21 W/Hz = -173.975 dBm/Hz (arithmetic);
+    # "-174 dBm/Hz" is its common rounding (common practice, no source).
+    assert pytest.approx(_db(1.380649e-23 * 290.0 / 1e-3), abs=1e-12) == KT0_DBM_HZ
+    assert pytest.approx(-173.975, abs=1e-3) == KT0_DBM_HZ
+
+
+def test_friis_three_stages():
+    # LNA 20 dB / 1.5 dB, mixer -7 dB / 7 dB, IF amplifier 25 dB / 4 dB: Friis in linear
+    # ratios, computed here term by term.
+    g = [100.0, 10 ** (-0.7), 10**2.5]
+    f = [10**0.15, 10**0.7, 10**0.4]
+    want = [f[0], f[0] + (f[1] - 1) / g[0], f[0] + (f[1] - 1) / g[0] + (f[2] - 1) / (g[0] * g[1])]
+    got = cascade_nf_db([20.0, -7.0, 25.0], [1.5, 7.0, 4.0])
+    assert got == pytest.approx([_db(w) for w in want], abs=1e-12)
+
+
+def test_unknown_noise_figure_leaves_the_cascade_unknown_from_there_on():
+    assert cascade_nf_db([20.0, 10.0, 10.0], [2.0, None, 3.0]) == [pytest.approx(2.0), None, None]
+
+
+def test_pad_before_an_amplifier_adds_its_loss_and_a_pad_alone_outputs_kt0():
+    # A 6 dB pad then an amplifier of NF 3 dB: F = L + (F_a - 1) L = L F_a, i.e. 6 + 3 dB
+    # (the passive-network rule above); the pad alone has NF 6 dB and, with gain -6 dB,
+    # outputs exactly k T0 (a matched passive network at T0 adds as much as it takes).
+    stages = [
+        {"kind": "attenuator", "name": "pad", "loss": "6 dB"},
+        amp("amp", gain="20 dB", oip3="+30 dBm", oip2="+40 dBm", p1db="+20 dBm", noise_figure="3 dB"),
+    ]
+    rows = budget_rows(lineup(stages).run())
+    assert rows["nf_db"] == [pytest.approx(6.0, abs=1e-9), 3.0]
+    assert rows["cascade_nf_db"][0] == pytest.approx(6.0, abs=1e-9)
+    assert rows["cascade_nf_db"][1] == pytest.approx(9.0, abs=1e-9)
+    assert rows["noise_out_dbm_hz"][0] == pytest.approx(KT0_DBM_HZ, abs=1e-9)
+    assert rows["noise_out_dbm_hz"][1] == pytest.approx(KT0_DBM_HZ + 9.0 + 14.0, abs=1e-9)
+
+
+def test_an_amplifier_without_a_noise_figure_has_no_cascade():
+    rows = budget_rows(lineup([amp("amp", gain="20 dB", oip3="+30 dBm")]).run())
+    assert rows["nf_db"] == [None] and rows["cascade_nf_db"] == [None]
+    assert rows["noise_out_dbm_hz"] == [None]
+
+
+@pytest.mark.parametrize("value", ["-1 dB", "45 dB", "3 dBm"])
+def test_implausible_noise_figures_are_one_line_errors(value):
+    with pytest.raises(LineupError) as caught:
+        lineup([amp("amp", gain="20 dB", noise_figure=value)])
+    assert "noise_figure" in str(caught.value) and "\n" not in str(caught.value)
