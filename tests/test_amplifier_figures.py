@@ -237,10 +237,11 @@ def _doc(stage: dict, strict: bool | None = None) -> dict:
 @pytest.mark.parametrize(
     ("figures", "missing"),
     [
-        ({}, {"2nd-order", "3rd-order", "compression"}),
-        ({"oip3": "+30 dBm"}, {"2nd-order", "compression"}),
-        ({"oip3": "+30 dBm", "h2": "-40 dBc @ +10 dBm"}, {"compression"}),
-        ({"oip3": "+30 dBm", "h2": "-40 dBc @ +10 dBm", "psat": "+20 dBm"}, set()),
+        ({}, {"2nd-order", "3rd-order", "compression", "noise"}),
+        ({"oip3": "+30 dBm"}, {"2nd-order", "compression", "noise"}),
+        ({"oip3": "+30 dBm", "h2": "-40 dBc @ +10 dBm"}, {"compression", "noise"}),
+        ({"oip3": "+30 dBm", "h2": "-40 dBc @ +10 dBm", "psat": "+20 dBm"}, {"noise"}),
+        ({"oip3": "+30 dBm", "h2": "-40 dBc @ +10 dBm", "psat": "+20 dBm", "noise_figure": "5 dB"}, set()),
     ],
 )
 def test_missing_figures_never_pass(figures, missing):
@@ -278,7 +279,9 @@ def test_strict_turns_an_incomplete_model_into_a_failure(tmp_path):
 
     incomplete = write("a.toml", "", 'oip3 = "+30 dBm"\n')
     in_file = write("b.toml", "strict = true\n", 'oip3 = "+30 dBm"\n')
-    complete = write("c.toml", "", 'oip3 = "+30 dBm"\nh2 = "-40 dBc @ +10 dBm"\npsat = "+20 dBm"\n')
+    complete = write(
+        "c.toml", "", 'oip3 = "+30 dBm"\nh2 = "-40 dBc @ +10 dBm"\npsat = "+20 dBm"\nnoise_figure = "5 dB"\n'
+    )
     assert run_cli(["check", incomplete], cwd=tmp_path).returncode == 0
     assert run_cli(["check", incomplete, "--strict"], cwd=tmp_path).returncode == 1
     assert run_cli(["check", in_file], cwd=tmp_path).returncode == 1

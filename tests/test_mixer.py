@@ -405,20 +405,24 @@ _ALL = {
     "spurs": {"2LO-IF": "-40 dBc"},
     "p1db": "+1 dBm",
     "if_isolation": "40 dB",
+    "noise_figure": "8 dB",
 }
 _PHRASE = {
     "lo_isolation": "LO isolation (lo_isolation)",
     "spurs": "spur table (spurs with spur_drive)",
     "p1db": "compression (p1db or iip3)",
     "if_isolation": "IF feedthrough (if_isolation or spurs 'IF')",
+    "noise_figure": "noise figure (noise_figure)",
 }
 
 
 @pytest.mark.parametrize(
-    "absent", [(), ("lo_isolation",), ("spurs",), ("p1db",), ("if_isolation",), tuple(_PHRASE)]
+    "absent",
+    [(), ("lo_isolation",), ("spurs",), ("p1db",), ("if_isolation",), ("noise_figure",), tuple(_PHRASE)],
 )
 def test_missing_figures_lists_exactly_what_is_absent(absent):
-    # The four figure classes of the module docstring; each absent one is named once.
+    # The figure classes of the module docstring, and the noise figure; each absent one
+    # is named once.
     keys = dict(_ALL)
     for key in absent:
         keys.pop(key)
@@ -435,6 +439,7 @@ def test_figures_given_as_table_entries_or_through_iip3_count_as_stated():
                 iip3="+10 dBm",
                 spur_drive="-10 dBm",
                 spurs={"LO": "-30 dBc", "IF": "-40 dBc", "3LO": "-20 dBc"},
+                noise_figure="8 dB",
             )
         ]
     ).stages[0]
@@ -443,7 +448,11 @@ def test_figures_given_as_table_entries_or_through_iip3_count_as_stated():
     mixer = _lineup(
         [_mixer(spur_drive="-10 dBm", spurs={"LO": "-30 dBc", "IF": "-40 dBc", "LO-IF": "-20 dBc"})]
     ).stages[0]
-    assert mixer.missing_figures() == ("spur table (spurs with spur_drive)", "compression (p1db or iip3)")
+    assert mixer.missing_figures() == (
+        "spur table (spurs with spur_drive)",
+        "compression (p1db or iip3)",
+        "noise figure (noise_figure)",
+    )
 
 
 def test_compressed_mixer_equals_brute_force_one_and_two_if_tones():

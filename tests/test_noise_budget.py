@@ -70,3 +70,38 @@ def test_implausible_noise_figures_are_one_line_errors(value):
     with pytest.raises(LineupError) as caught:
         lineup([amp("amp", gain="20 dB", noise_figure=value)])
     assert "noise_figure" in str(caught.value) and "\n" not in str(caught.value)
+
+
+def test_the_check_judges_the_output_noise_in_each_rule_bandwidth():
+    # One amplifier of 30 dB gain and 5 dB noise figure: the output noise density is
+    # k T0 F G = -173.975 + 5 + 30 = -138.975 dBm/Hz (Friis, one stage), so in a 1 MHz
+    # reference bandwidth -78.975 dBm: a -80 dBm/1 MHz protected band fails it by
+    # 1.025 dB (hand computation), far from the 100 MHz carrier.
+    from helpers import amp as _amp
+
+    from spurplan.analyses.check import check
+    from spurplan.io.lineup_file import from_dict
+
+    stage = _amp("amp", gain="30 dB", oip3="+40 dBm", oip2="+50 dBm", p1db="+25 dBm", noise_figure="5 dB")
+    doc = {
+        "carrier": [{"freq": "100 MHz", "power": "-40 dBm"}],
+        "stage": [stage],
+        "mask": {
+            "band": [
+                {
+                    "name": "receiver",
+                    "start": "1559 MHz",
+                    "stop": "1610 MHz",
+                    "limit": "-80 dBm",
+                    "rbw": "1 MHz",
+                }
+            ]
+        },
+        "analysis": {"max_order": 5},
+    }
+    outcome = check(from_dict(doc, name="noise.toml"))
+    i = outcome.rows["label"].index("noise")
+    assert outcome.rows["level_dbm"][i] == pytest.approx(KT0_DBM_HZ + 35.0 + 60.0, abs=1e-6)
+    assert outcome.rows["margin_db"][i] == pytest.approx(-80.0 - (KT0_DBM_HZ + 95.0), abs=1e-6)
+    assert 1559e6 <= outcome.rows["freq_hz"][i] <= 1610e6
+    assert outcome.status == "FAIL" and outcome.rows["label"][outcome.worst] == "noise"

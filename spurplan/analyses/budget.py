@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 
+from spurplan.engine.noise import KT0_DBM_HZ
 from spurplan.units import ratio_db, vpeak_to_dbm
 
 BUDGET_COLUMNS = [
@@ -47,10 +48,6 @@ BUDGET_COLUMNS = [
     "noise_out_dbm_hz",
     "figures",
 ]
-
-BOLTZMANN_J_PER_K = 1.380649e-23  # exact (SI 2019)
-T0_K = 290.0  # the reference temperature of noise figures (IEEE definition; from memory)
-KT0_DBM_HZ = 10.0 * math.log10(BOLTZMANN_J_PER_K * T0_K * 1e3)
 
 
 def cascade_nf_db(gains_db, nf_db) -> list[float | None]:

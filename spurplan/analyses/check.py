@@ -457,17 +457,134 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         out["domain"].append(DOMAINS[int(ev.domain[0, g])])
         for key in ("stage", "order", "mix", "label", "dbc", "beyond_data", "model_extrapolated"):
             out[key].append(rows[key][i])
+    f_highest = highest_output_carrier_hz(result, batch)
+    carrier_dbm = float(ev.carrier_dbm[0])
+    noise_notes = _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ev.rules)
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
-    f_highest = highest_output_carrier_hz(result, batch)
     return CheckResult(
         result=result,
         rows=out,
         passed=all(m >= 0 for m in margins),
         worst=worst,
-        carrier_dbm=float(ev.carrier_dbm[0]),
-        notes=tuple(_coverage_notes(lineup, mask, f_highest)),
+        carrier_dbm=carrier_dbm,
+        notes=tuple(_coverage_notes(lineup, mask, f_highest)) + tuple(noise_notes),
     )
+
+
+# Frequencies per rule at which the output noise is read (log-spaced over the range the
+# rule covers, ends included): enough to find the least rejection of a filter's stopband
+# within a few tenths of a dB for the ladders spurplan builds (common practice, no source).
+NOISE_POINTS_PER_RULE = 2001
+NOISE_LABEL = "noise"
+
+
+def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, rules) -> list[str]:
+    """One row per rule with a reference bandwidth: the output noise (Friis cascade) in that
+    bandwidth where it leaves the least margin, in the spurious domain the rule covers.
+
+    Rows are inserted into ``out`` in margin order; returns notes.  Without a noise figure
+    for every active stage nothing is judged (the stage's missing figure already makes
+    the check INCOMPLETE).
+    """
+    from spurplan.engine.noise import output_noise_dbm_hz, unknown_noise_stages
+
+    if unknown_noise_stages(lineup):
+        return []
+    tones = np.asarray(result.tone_freqs_hz)[batch]
+    carriers_hz = result.carrier_freqs_hz()[batch]
+    notes: list[str] = []
+    # Where data-based stages after the last mixer (at output frequencies) are defined
+    # bounds the noise that can be read: beyond their data the response is not known.
+    last_mixer = max((i for i, st in enumerate(lineup.stages) if st.conversion is not None), default=-1)
+    lo_ok, hi_ok = 0.0, math.inf
+    for i, stage in enumerate(lineup.stages):
+        if stage.data_range_hz is None:
+            continue
+        if i > last_mixer:
+            lo_ok, hi_ok = max(lo_ok, stage.data_range_hz[0]), min(hi_ok, stage.data_range_hz[1])
+        else:
+            notes.append(
+                f"noise through stage '{stage.name}' (before a mixer) is read with its data held beyond "
+                f"{stage.data_range_hz[0]:.6g} to {stage.data_range_hz[1]:.6g} Hz"
+            )
+    reach = (lineup.analysis.max_order + 1) * float(np.max(tones))
+    skipped = []
+    added = []
+    gain = mask.antenna_gain_dbi
+    for rule, ex in rules:
+        if rule.rbw_hz is None or rule.domain != "spurious":
+            if rule.rbw_hz is None and rule.domain == "spurious":
+                skipped.append(rule.label)
+            continue
+        if not rule.holds_for(float(carriers_hz[lineup.reference_carrier_index]), carrier_dbm):
+            continue
+        lo, hi = rule.start_hz, rule.stop_hz
+        if ex is not None:
+            lo, hi = max(lo, ex.start_hz), min(hi, float(ex.upper_hz(f_highest)))
+        if not math.isfinite(hi):  # noise does not stop at the products' order; an open
+            hi = reach  # range is read up to where the products are computed
+        lo, hi = max(lo, lo_ok, 1.0), min(hi, hi_ok)
+        if not hi > lo:
+            continue
+        f = np.unique(np.concatenate([np.geomspace(lo, hi, NOISE_POINTS_PER_RULE), [lo, hi]]))
+        # Noise next to a carrier is the carrier's own (its out-of-band domain, or one
+        # reference bandwidth either side of a CW carrier): not spurious.
+        keep = np.ones(f.shape, dtype=bool)
+        for k, c in enumerate(lineup.carriers):
+            half = mask.spurious_boundary * c.bandwidth_hz if c.bandwidth_hz else rule.rbw_hz
+            keep &= np.abs(f - carriers_hz[k]) >= half
+        f = f[keep]
+        if f.size == 0:
+            continue
+        density = output_noise_dbm_hz(lineup, f, tones)
+        in_rbw = density + 10.0 * math.log10(rule.rbw_hz)
+        limit = rule.limit_dbm(f, carrier_dbm, gain(f))
+        margin = limit - in_rbw
+        g = int(np.argmin(margin))
+        added.append(
+            {
+                "freq_hz": float(f[g]),
+                "level_dbm": float(in_rbw[g]),
+                "level_in_rbw_dbm": float(in_rbw[g]),
+                "bandwidth_hz": float(rule.rbw_hz),
+                "limit_dbm": float(limit[g]),
+                "margin_db": float(margin[g]),
+                "pass": bool(margin[g] >= 0),
+                "rule": rule.label,
+                "limit_form": rule.describe,
+                "rbw_hz": rule.rbw_hz,
+                "rule_source": f"{rule.source} [{rule.status}]",
+                "band": bands_at(mask, float(f[g])),
+                "domain": "spurious",
+                "stage": "the chain (noise)",
+                "order": None,
+                "mix": None,
+                "label": NOISE_LABEL,
+                "dbc": float(in_rbw[g] - carrier_dbm),
+                "beyond_data": False,
+                "model_extrapolated": False,
+            }
+        )
+    if skipped:
+        notes.append(
+            "noise is not judged under rules without a reference bandwidth ("
+            + ", ".join(skipped[:3])
+            + (", ..." if len(skipped) > 3 else "")
+            + ")"
+        )
+    if added:
+        rows = [{c: out[c][i] for c in CHECK_COLUMNS} for i in range(len(out["freq_hz"]))] + added
+        rows.sort(
+            key=lambda r: (
+                r["margin_db"] is None,
+                math.inf if r["margin_db"] is None else r["margin_db"],
+                r["freq_hz"],
+            )
+        )
+        for c in CHECK_COLUMNS:
+            out[c][:] = [r[c] for r in rows]
+    return notes
 
 
 @dataclass(frozen=True)

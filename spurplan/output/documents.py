@@ -13,6 +13,7 @@ import html
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from spurplan.analyses.check import NOISE_LABEL
 from spurplan.notices import PLANNING_NOTICE
 from spurplan.output.formatting import html_table, to_csv, to_json
 from spurplan.output.provenance import provenance
@@ -170,7 +171,9 @@ def check_summary(outcome: CheckResult) -> dict:
 
 
 def check_document(outcome: CheckResult) -> Document:
-    """:func:`check_summary` and the checked products under ``"products"``.
+    """:func:`check_summary` and the checked products under ``"products"``; the output
+    noise judged under each rule (one row per rule, where it leaves the least margin)
+    under the summary's ``"noise"``.
 
     Parameters
     ----------
@@ -181,7 +184,13 @@ def check_document(outcome: CheckResult) -> Document:
     -------
     Document
     """
-    return Document(check_summary(outcome), "products", outcome.rows)
+    rows = outcome.rows
+    noise = [i for i, label in enumerate(rows["label"]) if label == NOISE_LABEL]
+    skip = set(noise)
+    products = {c: [v for i, v in enumerate(col) if i not in skip] for c, col in rows.items()}
+    summary = check_summary(outcome)
+    summary["noise"] = [{c: rows[c][i] for c in rows if c not in ("order", "mix")} for i in noise]
+    return Document(summary, "products", products)
 
 
 def drive_summary(sweep: DriveSweep) -> dict:

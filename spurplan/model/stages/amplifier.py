@@ -555,6 +555,8 @@ class Amplifier(StageDefaults):
             out.append("3rd-order figure (oip3, iip3, h3 or ohip3)")
         if fig.p1db_dbm is None and fig.psat_dbm is None:
             out.append("compression (p1db or psat)")
+        if self.noise_figure_db is None:
+            out.append("noise figure (noise_figure)")
         return tuple(out)
 
     @classmethod

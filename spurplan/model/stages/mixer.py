@@ -488,6 +488,8 @@ class Mixer(StageDefaults):
             missing.append("compression (p1db or iip3)")
         if self.if_isolation_db is None and (0, 1) not in self.tabulated:
             missing.append("IF feedthrough (if_isolation or spurs 'IF')")
+        if self.noise_figure_db is None:
+            missing.append("noise figure (noise_figure)")
         return tuple(missing)
 
     @property
