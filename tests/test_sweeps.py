@@ -298,3 +298,36 @@ def test_a_sweep_that_fails_at_its_lowest_drive_has_no_compliant_drive_to_sign(t
     out = CliRunner().invoke(main, args)
     assert out.exit_code == 0, out.output
     assert "none from the bottom of the range" in out.output
+
+
+def test_sweep_and_yield_headlines_say_incomplete_when_a_figure_is_missing(tmp_path):
+    # The project's rule (README, "A missing or doubtful number never turns into a PASS"):
+    # a drive range, a tuning range or a yield computed from a model without a stated
+    # figure says so in its headline and its JSON summary, as the check's verdict does.
+    import json
+
+    from helpers import run_in_process
+
+    body = (
+        '[[carrier]]\nfreq = "100 MHz"\npower = "-20 dBm"\n'
+        '[[stage]]\nkind = "amplifier"\nname = "pa"\ngain = "20 dB"\noip3 = "+30 dBm"\n{extra}'
+        '[mask]\nuse = ["itu-sm329-cat-a"]\n[analysis]\nmax_order = 5\n'
+    )
+    complete = 'oip2 = "+40 dBm"\npsat = "+20 dBm"\nnoise_figure = "5 dB"\n'
+    for name, extra, caveat in (("gap.toml", "", True), ("full.toml", complete, False)):
+        path = tmp_path / name
+        path.write_text(body.format(extra=extra), encoding="utf-8")
+        runs = (
+            ["drive", str(path), "--start", "-30 dBm", "--stop", "-20 dBm", "--step", "5 dB"],
+            ["tune", str(path), "--start", "99 MHz", "--stop", "101 MHz", "--step", "1 MHz"],
+            ["yield", str(path), "--samples", "20", "--seed", "1"],
+        )
+        for args in runs:
+            code, out, err, detail, _ = run_in_process(args)
+            assert code == 0 and detail == "", (args, err)
+            headline = next(line for line in out.splitlines() if line.split(":")[0].isupper() and ":" in line)
+            assert ("INCOMPLETE: not modelled: stage 'pa' has no" in headline) is caveat, (args, headline)
+            assert "products only: check judges the noise" in headline
+            code, out, _, _, _ = run_in_process([*args, "--format", "json"])
+            summary = json.loads(out)["summary"]
+            assert summary["model_gaps"].startswith("INCOMPLETE") is caveat

@@ -27,7 +27,7 @@ from spurplan.output.tables import (
     product_display,
     tune_display,
 )
-from spurplan.output.verdicts import drive_verdict
+from spurplan.output.verdicts import drive_verdict, model_caveat
 
 if TYPE_CHECKING:  # annotations only
     from spurplan.analyses.check import CheckResult
@@ -210,6 +210,7 @@ def drive_summary(sweep: DriveSweep) -> dict:
     return {
         "lineup": sweep.lineup.name,
         "status": sweep.status,
+        "model_gaps": model_caveat(sweep.lineup).lstrip("; "),
         "max_compliant_input_dbm": sweep.max_compliant_input_dbm,
         "max_compliant_output_dbm": sweep.max_compliant_output_dbm,
         "limiting": sweep.limiting,
@@ -247,6 +248,7 @@ def tune_document(sweep: TuneSweep) -> Document:
     """
     summary = {
         "lineup": sweep.lineup.name,
+        "model_gaps": model_caveat(sweep.lineup).lstrip("; "),
         "swept": sweep.variable,
         "channels": len(sweep.carrier_hz),
         "pass": sweep.passed,
@@ -303,6 +305,7 @@ def yield_document(res: YieldResult) -> Document:
     lo, hi = res.interval
     summary = {
         "lineup": res.lineup.name,
+        "model_gaps": model_caveat(res.lineup).lstrip("; "),
         "samples": res.samples,
         "seed": res.seed,
         "passed": res.passed,

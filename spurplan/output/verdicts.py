@@ -25,6 +25,38 @@ def _in_band(band) -> str:
     return f" (in {band})" if band else ""
 
 
+def model_caveat(lineup) -> str:
+    """What a sweep's or yield's headline must add when the model lacks or misses figures.
+
+    A drive or tuning range, or a yield, computed from a model without a stated figure is
+    no compliance claim (the project's rule: a missing or doubtful number never reads as
+    a pass): the headline says INCOMPLETE or UNCERTAIN and what is missing, as the check's
+    verdict does.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        The lineup the result was computed from.
+
+    Returns
+    -------
+    str
+        ``"; INCOMPLETE: not modelled: ..."``, ``"; UNCERTAIN: model misses: ..."``, or
+        ``""`` when the model has every figure and meets it.
+    """
+    from spurplan.analyses.check import model_gaps
+
+    missing, missed = lineup.missing_figures(), lineup.figures_missed()
+    if not missing and not missed:
+        return ""
+    word = "INCOMPLETE" if missing else "UNCERTAIN"
+    return f"; {word}: {model_gaps(missing, missed)}"
+
+
+# Sweeps and yield judge the discrete products; the output noise only check judges.
+PRODUCTS_ONLY = " (products only: check judges the noise)"
+
+
 def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
     """The highest compliant drive of a sweep, and the product and rule that set it.
 
@@ -55,7 +87,10 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
             )
         return (
             f"HIGHEST COMPLIANT DRIVE: input {sweep.max_compliant_input_dbm:+.2f} dBm, output "
-            f"{sweep.max_compliant_output_dbm:+.2f} dBm; {above}" + _in_band(lim["band"])
+            f"{sweep.max_compliant_output_dbm:+.2f} dBm; {above}"
+            + _in_band(lim["band"])
+            + PRODUCTS_ONLY
+            + model_caveat(sweep.lineup)
         )
     if sweep.status == "fails throughout":
         if report:
@@ -76,7 +111,7 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
         return "The mask is met over the whole sweep."
     return (
         "HIGHEST COMPLIANT DRIVE: the mask is met over the whole range "
-        f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)"
+        f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)" + PRODUCTS_ONLY + model_caveat(sweep.lineup)
     )
 
 
@@ -116,7 +151,7 @@ def tune_verdict(sweep: TuneSweep) -> list[str]:
         the one line that says every channel meets the mask.
     """
     if not sweep.failing:
-        return ["TUNING RANGE: every channel meets the mask"]
+        return ["TUNING RANGE: every channel meets the mask" + PRODUCTS_ONLY + model_caveat(sweep.lineup)]
     return [
         f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
         + _in_band(r["band"])
@@ -166,7 +201,7 @@ def yield_verdict(res: YieldResult) -> str:
     lo, hi = res.interval
     return (
         f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {res.samples} pass); "
-        f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+        f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %" + PRODUCTS_ONLY + model_caveat(res.lineup)
     )
 
 
