@@ -105,3 +105,34 @@ def test_the_check_judges_the_output_noise_in_each_rule_bandwidth():
     assert outcome.rows["margin_db"][i] == pytest.approx(-80.0 - (KT0_DBM_HZ + 95.0), abs=1e-6)
     assert 1559e6 <= outcome.rows["freq_hz"][i] <= 1610e6
     assert outcome.status == "FAIL" and outcome.rows["label"][outcome.worst] == "noise"
+
+
+def test_noise_through_a_mixer_follows_friis_with_the_conversion_gain():
+    # A mixer (conversion gain -7 dB, SSB noise figure 7 dB) then an amplifier (20 dB,
+    # 3 dB): F = F_m + (F_a - 1) / G_m = 5.012 + 0.995 / 0.1995 = 10.0 (10 dB; Friis,
+    # arithmetic), and the output density k T0 F G_m G_a = -173.975 + 10 + 13 dBm/Hz at
+    # any output frequency whose IF image |f - LO| the source covers.  The budget's
+    # cascade says the same at the carrier.
+    from spurplan.engine.noise import output_noise_dbm_hz
+    from spurplan.io.lineup_file import from_dict
+
+    doc = {
+        "carrier": [{"freq": "100 MHz", "power": "-20 dBm"}],
+        "stage": [
+            {
+                "kind": "mixer",
+                "name": "mixer",
+                "lo": {"freq": "1 GHz", "power": "+7 dBm"},
+                "conversion_gain": "-7 dB",
+                "noise_figure": "7 dB",
+            },
+            amp("amp", gain="20 dB", oip3="+30 dBm", noise_figure="3 dB"),
+        ],
+    }
+    lineup = from_dict(doc, name="mixer-noise.toml")
+    f_m, g_m, f_a = 10**0.7, 10**-0.7, 10**0.3
+    want = KT0_DBM_HZ + _db(f_m + (f_a - 1) / g_m) + 13.0
+    got = output_noise_dbm_hz(lineup, [1.1e9, 1.105e9, 0.9e9])
+    assert got == pytest.approx([want] * 3, abs=1e-9)
+    rows = budget_rows(lineup.run())
+    assert rows["noise_out_dbm_hz"][-1] == pytest.approx(want, abs=1e-9)
