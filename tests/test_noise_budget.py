@@ -136,3 +136,25 @@ def test_noise_through_a_mixer_follows_friis_with_the_conversion_gain():
     assert got == pytest.approx([want] * 3, abs=1e-9)
     rows = budget_rows(lineup.run())
     assert rows["noise_out_dbm_hz"][-1] == pytest.approx(want, abs=1e-9)
+
+
+def test_noise_a_rule_cannot_judge_keeps_the_check_from_pass():
+    # A rule without a reference bandwidth compares a product's whole power, which broad
+    # noise does not have: the noise under it is not judged, and a check that does not
+    # judge something cannot say PASS (the project's rule).  The same amplifier as above
+    # passes its products easily.
+    from spurplan.analyses.check import check
+    from spurplan.io.lineup_file import from_dict
+
+    stage = amp("amp", gain="30 dB", oip3="+40 dBm", oip2="+50 dBm", p1db="+25 dBm", noise_figure="5 dB")
+    doc = {
+        "carrier": [{"freq": "100 MHz", "power": "-40 dBm"}],
+        "stage": [stage],
+        "mask": {"rule": [{"name": "whole power", "start": "9 kHz", "stop": "1 GHz", "limit": "-20 dBm"}]},
+        "analysis": {"max_order": 5},
+    }
+    outcome = check(from_dict(doc, name="noise.toml"))
+    assert outcome.passed and outcome.status == "INCOMPLETE"
+    assert (
+        "noise not judged under rules without a reference bandwidth (lineup: whole power)" in outcome.verdict
+    )

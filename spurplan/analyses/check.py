@@ -64,6 +64,9 @@ class CheckResult:
     carrier_dbm : float
         Total mean carrier power at the output (dBm).
     notes : list of str
+    noise_not_judged : tuple of str
+        Where the output noise could not be judged (a rule without a reference
+        bandwidth, frequencies beyond a stage's data): the status is then INCOMPLETE.
     """
 
     result: Result
@@ -72,6 +75,7 @@ class CheckResult:
     worst: int | None
     carrier_dbm: float
     notes: tuple[str, ...]
+    noise_not_judged: tuple[str, ...] = ()
 
     @property
     def worst_margin_db(self) -> float | None:
@@ -111,7 +115,7 @@ class CheckResult:
         """
         if not self.passed:
             return "FAIL"
-        if self.missing_figures or self.unjudged_rows:
+        if self.missing_figures or self.unjudged_rows or self.noise_not_judged:
             return "INCOMPLETE"
         if self.figures_missed:
             return "UNCERTAIN"
@@ -148,6 +152,9 @@ class CheckResult:
                 f"(no out-of-band rule; strongest {self.rows['label'][top]} at {self.rows['dbc'][top]:+.2f} dBc)"
             )
             gaps = f"{not_judged}; {gaps}" if gaps else not_judged
+        if self.noise_not_judged:
+            noise = "noise not judged " + "; ".join(self.noise_not_judged)
+            gaps = f"{noise}; {gaps}" if gaps else noise
         return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
 
     def strict_failure(self, strict: bool | None = None) -> bool:
@@ -459,7 +466,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
             out[key].append(rows[key][i])
     f_highest = highest_output_carrier_hz(result, batch)
     carrier_dbm = float(ev.carrier_dbm[0])
-    noise_notes = _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ev.rules)
+    noise_not_judged = _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ev.rules)
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
     return CheckResult(
@@ -468,7 +475,8 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         passed=all(m >= 0 for m in margins),
         worst=worst,
         carrier_dbm=carrier_dbm,
-        notes=tuple(_coverage_notes(lineup, mask, f_highest)) + tuple(noise_notes),
+        notes=tuple(_coverage_notes(lineup, mask, f_highest)),
+        noise_not_judged=tuple(noise_not_judged),
     )
 
 
@@ -483,9 +491,10 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
     """One row per rule with a reference bandwidth: the output noise (Friis cascade) in that
     bandwidth where it leaves the least margin, in the spurious domain the rule covers.
 
-    Rows are inserted into ``out`` in margin order; returns notes.  Without a noise figure
-    for every active stage nothing is judged (the stage's missing figure already makes
-    the check INCOMPLETE).
+    Rows are inserted into ``out`` in margin order.  Returns what is not judged, each a
+    phrase (a rule without a reference bandwidth, frequencies beyond a stage's data):
+    they keep the check from PASS.  Without a noise figure for every active stage nothing
+    is judged (the stage's missing figure already makes the check INCOMPLETE).
     """
     from spurplan.engine.noise import output_noise_dbm_hz, unknown_noise_stages
 
@@ -493,23 +502,25 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
         return []
     tones = np.asarray(result.tone_freqs_hz)[batch]
     carriers_hz = result.carrier_freqs_hz()[batch]
-    notes: list[str] = []
+    not_judged: list[str] = []
     # Where data-based stages after the last mixer (at output frequencies) are defined
     # bounds the noise that can be read: beyond their data the response is not known.
     last_mixer = max((i for i, st in enumerate(lineup.stages) if st.conversion is not None), default=-1)
     lo_ok, hi_ok = 0.0, math.inf
+    data_stages = []
     for i, stage in enumerate(lineup.stages):
         if stage.data_range_hz is None:
             continue
         if i > last_mixer:
+            data_stages.append(repr(stage.name))
             lo_ok, hi_ok = max(lo_ok, stage.data_range_hz[0]), min(hi_ok, stage.data_range_hz[1])
         else:
-            notes.append(
-                f"noise through stage '{stage.name}' (before a mixer) is read with its data held beyond "
-                f"{stage.data_range_hz[0]:.6g} to {stage.data_range_hz[1]:.6g} Hz"
-            )
+            # Before a mixer the frequencies noise comes from are not checked against the
+            # data: the response there may be the data held beyond its ends.
+            not_judged.append(f"through stage '{stage.name}' before a mixer (its data may be held)")
     reach = (lineup.analysis.max_order + 1) * float(np.max(tones))
     skipped = []
+    clipped = []
     added = []
     gain = mask.antenna_gain_dbi
     for rule, ex in rules:
@@ -524,6 +535,8 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
             lo, hi = max(lo, ex.start_hz), min(hi, float(ex.upper_hz(f_highest)))
         if not math.isfinite(hi):  # noise does not stop at the products' order; an open
             hi = reach  # range is read up to where the products are computed
+        if lo < lo_ok or hi > hi_ok:
+            clipped.append(rule.label)
         lo, hi = max(lo, lo_ok, 1.0), min(hi, hi_ok)
         if not hi > lo:
             continue
@@ -566,12 +579,16 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
                 "model_extrapolated": False,
             }
         )
+
+    def listed(labels: list[str]) -> str:
+        return ", ".join(labels[:3]) + (", ..." if len(labels) > 3 else "")
+
     if skipped:
-        notes.append(
-            "noise is not judged under rules without a reference bandwidth ("
-            + ", ".join(skipped[:3])
-            + (", ..." if len(skipped) > 3 else "")
-            + ")"
+        not_judged.append(f"under rules without a reference bandwidth ({listed(skipped)})")
+    if clipped:
+        not_judged.append(
+            f"outside {lo_ok:.6g} to {hi_ok:.6g} Hz, the data of stage {', '.join(data_stages)}, "
+            f"under {listed(clipped)}"
         )
     if added:
         rows = [{c: out[c][i] for c in CHECK_COLUMNS} for i in range(len(out["freq_hz"]))] + added
@@ -584,7 +601,7 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
         )
         for c in CHECK_COLUMNS:
             out[c][:] = [r[c] for r in rows]
-    return notes
+    return not_judged
 
 
 @dataclass(frozen=True)
