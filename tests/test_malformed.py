@@ -263,9 +263,36 @@ CASES = [
     Case("no-carrier", PAD, ("carrier",)),
     Case("empty-file", "", ("carrier",)),
     Case(
-        "four-carriers",
-        "".join(f'[[carrier]]\nfreq = "{f} MHz"\npower = "-8 dBm"\n' for f in (455, 456, 457, 458)),
-        ("4 carriers", "at most 3"),
+        "too-many-carriers",
+        "".join(f'[[carrier]]\nfreq = "{455 + f / 40} MHz"\npower = "-40 dBm"\n' for f in range(257)),
+        ("257 carriers", "at most 256"),
+    ),
+    Case(
+        # Four carriers on no common raster: an axis each, 61^4 grid points for the degree-5
+        # amplifier (alias-free grid 5 x 10 + 10 + 1 = 61 per axis, arithmetic).
+        "four-carriers-off-raster",
+        "".join(
+            f'[[carrier]]\nfreq = "{f} MHz"\npower = "-20 dBm"\n' for f in (455, 456.0123, 457.31, 458.77)
+        )
+        + PA_HEAD
+        + 'gain = "16 dB"\noip3 = "+30 dBm"\nh5 = "-60 dBc @ +10 dBm"\n',
+        ("4 carriers on no common raster", "grid points", "raster"),
+    ),
+    Case(
+        "carrier-off-stated-raster",
+        "".join(f'[[carrier]]\nfreq = "{f} MHz"\npower = "-20 dBm"\n' for f in (455, 455.025, 455.0625))
+        + '[analysis]\nraster = "25 kHz"\n',
+        ("carrier 3", "freq", "12500 Hz off the 25 kHz raster", "raster_tolerance"),
+    ),
+    Case(
+        "duplicate-carrier",
+        CARRIER + CARRIER,
+        ("carrier 2", "freq", "455 MHz", "distinct"),
+    ),
+    Case(
+        "raster-tolerance-too-wide",
+        CARRIER + '[analysis]\nraster = "25 kHz"\nraster_tolerance = "20 kHz"\n',
+        ("raster_tolerance", "20 kHz", "half the raster"),
     ),
     Case(
         "stage-array-of-strings",

@@ -55,7 +55,7 @@ def work_refusal(lineup, n_points: int, what: str) -> str | None:
     """
     from spurplan.io.lineup_file import grid_points
 
-    per_point, _ = grid_points(lineup.stages, lineup.n_tones, lineup.analysis.max_order)
+    per_point, _ = grid_points(lineup.stages, lineup.tone_lattice, lineup.analysis.max_order)
     total = int(n_points) * per_point
     if total <= MAX_WORK_GRID_POINTS:
         return None

@@ -9,6 +9,7 @@ when the analysis asks), applies the policy beyond data ranges, and returns the
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -17,10 +18,22 @@ from spurplan.engine.result import Result
 from spurplan.engine.sections import with_sections
 from spurplan.engine.torus import Propagation, propagate
 from spurplan.errors import OutOfDataRange
-from spurplan.model.products import label, mixing_vectors, product_freqs_hz
+from spurplan.model.products import label
+from spurplan.model.torus_grid import MAX_GRID_POINTS
 
 if TYPE_CHECKING:
     from spurplan.model.lineup import Lineup
+
+# Products above the analysis order are carried through the stages as well: a later
+# stage mixes them back onto reported ones (an order-9 product of the driver and two
+# carriers make an order-7 product of the PA).  The kept order grows in these steps
+# until no reported level moves by more than SETTLE_DB, up to MAX_EXTRA_ORDER.
+EXTRA_ORDER_STEP = 2
+MAX_EXTRA_ORDER = 12
+SETTLE_DB = 0.01
+# Below this amplitude ratio to a node's strongest product (-200 dB, the report floor)
+# a level only needs to settle to that absolute size.
+SETTLE_FLOOR = 1e-10
 
 
 def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None) -> Result:
@@ -51,24 +64,76 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None)
     OutOfDataRange
         With the default policy, when a product falls outside a stage's data range.
     """
-    mix = mixing_vectors(lineup.n_tones, lineup.analysis.max_order)
+    lattice = lineup.tone_lattice
+    order = lineup.analysis.max_order
     if tone_freqs_hz is None:
         tone_freqs_hz = lineup.tone_freqs_hz
     tones = np.atleast_2d(np.asarray(tone_freqs_hz, dtype=float))
     offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
     batch = max(len(tones), len(offset))
     tones = np.broadcast_to(tones, (batch, lineup.n_tones))
-    x_in = lineup.input_phasors(mix, np.broadcast_to(offset, (batch,)))
-    freqs = product_freqs_hz(mix, tones)
+    offset = np.broadcast_to(offset, (batch,))
+    axes = lattice.axes_hz(tones)
     nominal = stages is None
     if nominal:
         stages = lineup.stages
         if lineup.analysis.linear_sections == "cascade":
             stages = with_sections(stages, lineup.r_ohm)
-    prop = propagate(stages, x_in, mix, freqs, lineup.stage_reference_hz(tones))
+    ref = lineup.stage_reference_hz(tones)
+    nonlinear = [i for i, s in enumerate(stages) if s.transfer is not None]
+    # One nonlinear stage sees the carriers only: its products up to the order are exact
+    # without any kept beyond it.
+    extras = list(range(0, MAX_EXTRA_ORDER + 1, EXTRA_ORDER_STEP)) if len(nonlinear) > 1 else [0]
+    degree = max((d for s in stages if (d := getattr(s, "grid_degree", None)) is not None), default=1)
+    unsettled = np.zeros(batch, dtype=bool)
+    previous = None
+    for step, extra in enumerate(extras):
+        if step and lattice.grid_points(degree, order + extra) > MAX_GRID_POINTS:
+            # No wider set fits the grid budget: what has not settled stays flagged.
+            unsettled |= step == 1
+            break
+        products = lattice.products(order + extra)
+        n_report = int(np.searchsorted(products.orders, order, side="right"))
+        # Each product's frequency from its tones: exactly what the tones give (a product at
+        # 7 x 100 + 2 x 130 MHz is at 960 MHz, not a rounding either side of a rule's edge).
+        freqs = tones @ products.mix.T.astype(float)
+        x_in = lineup.input_phasors(products.mix, offset)
+        prop = _cut(propagate(stages, x_in, products.coords, freqs, ref, axes), n_report)
+        if previous is not None:
+            unsettled = ~_settled(previous.nodes, prop.nodes)
+            if not unsettled.any():
+                break
+        previous = prop
+    if unsettled.any():
+        # The kept order reached its limit before every reported level settled: the levels
+        # are flagged as not converged (the check then qualifies its verdict).
+        converged = prop.converged.copy()
+        converged[nonlinear] &= ~unsettled[None, :]
+        prop = replace(prop, converged=converged)
+    mix = products.mix[:n_report]
+    freqs = freqs[:, :n_report]
     if nominal and lineup.analysis.beyond_data == "error":
         _raise_beyond_data(lineup, prop, mix, freqs)
     return Result(lineup=lineup, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)
+
+
+def _cut(prop: Propagation, n: int) -> Propagation:
+    """The propagation's first ``n`` products (the reported ones)."""
+    return replace(
+        prop,
+        nodes=prop.nodes[..., :n],
+        added=prop.added[..., :n],
+        response=prop.response[..., :n],
+        beyond=prop.beyond[..., :n],
+    )
+
+
+def _settled(before: np.ndarray, after: np.ndarray) -> np.ndarray:
+    """Batch elements (B,) whose node phasors (S + 1, B, P) agree to SETTLE_DB."""
+    a, b = np.abs(before), np.abs(after)
+    scale = b.max(axis=2, keepdims=True)
+    ok = np.abs(a - b) <= (10 ** (SETTLE_DB / 20) - 1) * b + SETTLE_FLOOR * scale
+    return ok.all(axis=(0, 2))
 
 
 def _raise_beyond_data(lineup: Lineup, prop: Propagation, mix: np.ndarray, freqs: np.ndarray) -> None:

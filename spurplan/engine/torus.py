@@ -23,6 +23,7 @@ Inter-stage coupling is AC: products that land on 0 Hz are removed after each st
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -32,7 +33,7 @@ from spurplan.model.torus_grid import (  # re-exported: the engine's grid rules
     CONVERGENCE_FLOOR,
     CONVERGENCE_RTOL,
     MAX_GRID_POINTS,
-    alias_free_grid,
+    alias_free_shape,
     torus_coefficients,
 )
 
@@ -56,25 +57,26 @@ class MemorylessResult:
         Most negative / most positive input sample on the grid (V).
     converged : ndarray of bool, shape (B,)
         False where an oversampled model did not settle within the largest grid.
-    grid : int
-        Points per axis of the final grid.
+    grid : tuple of int
+        Points on each axis of the final grid.
     """
 
     spectrum: np.ndarray
     peak_neg_v: np.ndarray
     peak_pos_v: np.ndarray
     converged: np.ndarray
-    grid: int
+    grid: tuple[int, ...]
 
 
-def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int):
-    """Apply ``transfer`` on an n^K grid; return output phasors and input peaks."""
+def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[int, ...]):
+    """Apply ``transfer`` on a grid of ``shape`` (points per axis); return output phasors
+    and input peaks."""
     batch, _ = x_phasors.shape
     k = mix.shape[1]
     axes = tuple(range(1, k + 1))
-    grid = np.zeros((batch,) + (n,) * k, dtype=complex)
-    pos: tuple[slice | np.ndarray, ...] = (slice(None), *(mix[:, i] % n for i in range(k)))
-    neg: tuple[slice | np.ndarray, ...] = (slice(None), *((-mix[:, i]) % n for i in range(k)))
+    grid = np.zeros((batch, *shape), dtype=complex)
+    pos: tuple[slice | np.ndarray, ...] = (slice(None), *(mix[:, i] % shape[i] for i in range(k)))
+    neg: tuple[slice | np.ndarray, ...] = (slice(None), *((-mix[:, i]) % shape[i] for i in range(k)))
     grid[pos] = 0.5 * x_phasors
     grid[neg] += 0.5 * np.conj(x_phasors)
     samples = sfft.ifftn(grid, axes=axes, norm="forward").real
@@ -113,15 +115,12 @@ def apply_memoryless(
     """
     x_phasors = np.atleast_2d(np.asarray(x_phasors, dtype=complex))
     batch = x_phasors.shape[0]
-    k = mix.shape[1]
     active = np.any(x_phasors != 0, axis=0)
-    m_in = int(np.abs(mix[active]).max()) if active.any() else 1
-    m_keep = int(np.abs(mix).max())
     degree = transfer.degree
-    n = alias_free_grid(degree if degree else 4, m_in, m_keep)
+    # Per axis: a raster's step axis spreads much further than its zone axis.
+    n = alias_free_shape(degree if degree else 4, mix, active)
     if degree is None:
-        n = max(n, 32)
-    n_max = round(MAX_GRID_POINTS ** (1.0 / k))
+        n = tuple(max(v, 32) for v in n)
 
     y, lo, hi = _eval_chunked(x_phasors, mix, transfer, n, np.arange(batch))
     converged = np.full(batch, degree is not None)
@@ -129,8 +128,8 @@ def apply_memoryless(
     # Oversampled models: double the grid for the batch elements that have not
     # settled yet; elements that agree between two grids keep the finer result.
     todo = np.nonzero(~converged)[0]
-    while todo.size and n * 2 <= n_max:
-        n *= 2
+    while todo.size and math.prod(n) * 2 ** len(n) <= MAX_GRID_POINTS:
+        n = tuple(2 * v for v in n)
         y2, lo2, hi2 = _eval_chunked(x_phasors[todo], mix, transfer, n, todo)
         scale = np.abs(y2).max(axis=1, keepdims=True)
         tol = rtol * np.abs(y2) + CONVERGENCE_FLOOR * scale
@@ -142,13 +141,13 @@ def apply_memoryless(
     return MemorylessResult(spectrum=y, peak_neg_v=lo, peak_pos_v=hi, converged=converged, grid=grid_used)
 
 
-def _eval_chunked(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: int, rows: np.ndarray):
+def _eval_chunked(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: tuple[int, ...], rows: np.ndarray):
     """:func:`_torus_eval` over batch chunks that keep each array below ``_CHUNK_POINTS``.
 
     ``rows`` are the batch elements ``x_phasors`` holds (a model with per-sample
     parameters is cut to the same rows).
     """
-    chunk = max(1, _CHUNK_POINTS // n ** mix.shape[1])
+    chunk = max(1, _CHUNK_POINTS // math.prod(n))
     take = getattr(transfer, "take", None)
     parts = [
         _torus_eval(x_phasors[s : s + chunk], mix, take(rows[s : s + chunk]) if take else transfer, n)
@@ -240,33 +239,43 @@ class Propagation:
         return out
 
 
-def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray) -> np.ndarray:
+def at_zero_hz(mix: np.ndarray, freqs_hz: np.ndarray, axes_hz: np.ndarray | None = None) -> np.ndarray:
     """Products that sit at 0 Hz, (B, P): ``m . f`` zero to within rounding.
 
     The tolerance scales with ``sum |m_k f_k|`` (the size of the terms that cancel), so a
     1 Hz beat of two 100 MHz carriers is a product, and ``2 f1 - f2`` with ``f2 = 2 f1``
-    is DC.  The base-tone frequencies are read from the unit mixing vectors.
+    is DC.
 
     Parameters
     ----------
     mix : ndarray of int, shape (P, K)
-        Canonical mixing vectors, the unit vectors of the K base tones among them.
+        Canonical mixing vectors (lattice coordinates).
     freqs_hz : ndarray, shape (B, P)
         Signed product frequencies (Hz).
+    axes_hz : ndarray, shape (B, K), optional
+        The axis frequencies (Hz); default read from the unit mixing vectors, which must
+        then be among ``mix``.
 
     Returns
     -------
     ndarray of bool, shape (B, P)
     """
     freqs_hz = np.asarray(freqs_hz, dtype=float)
-    k = mix.shape[1]
-    cols = [int(np.nonzero((mix == np.eye(k, dtype=mix.dtype)[i]).all(axis=1))[0][0]) for i in range(k)]
-    terms = np.abs(freqs_hz[..., cols]) @ np.abs(mix).T.astype(float)
+    if axes_hz is None:
+        k = mix.shape[1]
+        cols = [int(np.nonzero((mix == np.eye(k, dtype=mix.dtype)[i]).all(axis=1))[0][0]) for i in range(k)]
+        axes_hz = freqs_hz[..., cols]
+    terms = np.abs(np.asarray(axes_hz, dtype=float)) @ np.abs(mix).T.astype(float)
     return np.abs(freqs_hz) <= 1e-12 * terms
 
 
 def propagate(
-    stages, x_in: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, ref_hz: np.ndarray | None = None
+    stages,
+    x_in: np.ndarray,
+    mix: np.ndarray,
+    freqs_hz: np.ndarray,
+    ref_hz: np.ndarray | None = None,
+    axes_hz: np.ndarray | None = None,
 ) -> Propagation:
     """Run a spectrum through a chain of stages.
 
@@ -290,13 +299,15 @@ def propagate(
     ref_hz : ndarray (S, B), optional
         The reference carrier's frequency at each stage's input (Hz), where harmonic
         zones are centred; default each stage's own.
+    axes_hz : ndarray (B, K), optional
+        Frequencies (Hz) of the axes ``mix`` counts in; default read from its unit vectors.
 
     Returns
     -------
     Propagation
         Node phasors (V), what each stage added, responses and flags.
     """
-    dc = at_zero_hz(mix, freqs_hz)
+    dc = at_zero_hz(mix, freqs_hz, axes_hz)
     x = np.where(dc, 0.0, x_in)
     nodes, added, resp, extrap, conv, beyond = [x], [], [], [], [], []
     for i, stage in enumerate(stages):

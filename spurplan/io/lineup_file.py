@@ -10,7 +10,8 @@ File layout (key names are the interface: extend, don't rename)::
     [lineup]      name, impedance
     [[carrier]]   freq, power, bandwidth, phase
     [[stage]]     kind, name, and the keys of that kind (see spurplan.model.stages)
-    [analysis]    max_order, combine, beyond_data, linear_sections, strict
+    [analysis]    max_order, combine, beyond_data, linear_sections, strict, raster,
+                  raster_tolerance
     [mask]        use, files, antenna_gain, spurious_boundary, [[mask.rule]], [[mask.band]]
                   (see spurplan.io.mask_files)
     [report]      drive = {start, stop, step}, tune = {start, stop, step}
@@ -43,7 +44,8 @@ from spurplan.model.lineup import (
 )
 from spurplan.model.stages import KINDS, LoadContext
 from spurplan.model.tolerances import Tolerance, Tolerances
-from spurplan.model.torus_grid import MAX_GRID_POINTS, alias_free_grid
+from spurplan.model.tone_lattice import RASTER_TOLERANCE_HZ, lattice_for, raster_steps_hz
+from spurplan.model.torus_grid import MAX_GRID_POINTS
 from spurplan.units import (
     format_freq,
     parse_angle_rad,
@@ -61,9 +63,13 @@ IMPEDANCE = Within("a system impedance", 1.0, 1e4, "ohm")
 # A carrier's occupied band must lie above 0 Hz: bandwidth < 2 x frequency (checked
 # against the carrier); the bounds themselves are common practice, no source.
 BANDWIDTH = Within("an occupied bandwidth", 1.0, 1e11, "Hz")
-# The torus engine's cost grows as (grid)^tones; beyond this many base tones a
-# check no longer fits a laptop's memory at useful orders.
-MAX_CARRIERS = 3
+# Carriers on a channel raster cost the engine by the raster's span, not their number
+# (spurplan.model.tone_lattice); carriers off any raster by (grid)^carriers, which the
+# grid check below bounds.  This bounds the work of listing them.
+MAX_CARRIERS = 256
+# A stated raster: between 1 Hz and 1 GHz (common practice, no source: channel rasters
+# run from a few Hz on HF to tens of MHz); a tolerance below half of it.
+RASTER = Within("a channel raster", 1.0, 1e9, "Hz")
 # Transmitter lineups have a handful of stages; 200 is far beyond any, and keeps a run's
 # per-stage arrays (stage, batch, product) and the attribution bounded before any work.
 MAX_STAGES = 200
@@ -134,6 +140,7 @@ def from_dict(
         raise LineupError(f"{len(carriers)} carriers: expected at most {MAX_CARRIERS}", file=name)
 
     analysis = _analysis(_table(doc, "analysis", name), name)
+    _check_raster(carriers, analysis, name)
     reference = carriers[reference_carrier_index(carriers)]
     context = LoadContext(
         r_ohm=r_ohm,
@@ -178,7 +185,7 @@ def from_dict(
         if stage.conversion is not None:
             stages[i] = stage.with_lo_index(lo_index)
             lo_index += 1
-    _check_size(stages, len(carriers) + lo_index, analysis, name)
+    _check_size(stages, carriers, lo_index, analysis, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in s.notes)
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
     corners = read_corners(doc["corner"], name, stages) if "corner" in doc else ()
@@ -244,6 +251,13 @@ def _analysis(table, file: str) -> Analysis:
     strict = f.raw("strict", False)
     if not isinstance(strict, bool):
         raise f.error("strict", f"{strict!r}: expected true or false")
+    raster = f.quantity("raster", parse_freq_hz, within=RASTER)
+    tolerance = f.quantity("raster_tolerance", parse_freq_hz)
+    if tolerance is not None and not 0 < tolerance < (raster or 2e9) / 2:
+        half = "half the raster" if raster else "1 GHz"
+        raise f.error(
+            "raster_tolerance", f"{f.raw('raster_tolerance')!r}: expected more than 0 Hz and below {half}"
+        )
     f.finish()
     return Analysis(
         max_order=max_order,
@@ -251,7 +265,42 @@ def _analysis(table, file: str) -> Analysis:
         beyond_data=beyond,
         linear_sections=sections,
         strict=strict,
+        raster_hz=raster,
+        raster_tolerance_hz=RASTER_TOLERANCE_HZ if tolerance is None else tolerance,
     )
+
+
+def _check_raster(carriers, analysis: Analysis, file: str) -> None:
+    """Carriers are distinct, and on the stated raster within its tolerance."""
+    seen: dict[float, int] = {}
+    for i, c in enumerate(carriers, start=1):
+        if c.freq_hz in seen:
+            raise LineupError(
+                f"{format_freq(c.freq_hz)} is also carrier {seen[c.freq_hz]}'s frequency: expected "
+                "distinct carrier frequencies (state one carrier with the power of both)",
+                file=file,
+                stage=f"carrier {i}",
+                field="freq",
+            )
+        seen[c.freq_hz] = i
+    raster, tol = analysis.raster_hz, analysis.raster_tolerance_hz
+    if raster is None or len(carriers) < 2:
+        return
+    freqs = [c.freq_hz for c in carriers]
+    if raster_steps_hz(freqs, raster, tol) is not None:
+        return
+    low = min(freqs)
+    for i, f in enumerate(freqs, start=1):
+        off = (f - low) - round((f - low) / raster) * raster
+        if abs(off) > tol:
+            raise LineupError(
+                f"{f:.12g} Hz is {abs(off):.6g} Hz off the {format_freq(raster)} raster through the "
+                f"lowest carrier ({low:.12g} Hz): expected within raster_tolerance "
+                f"({tol:.6g} Hz); move the carrier or widen the tolerance",
+                file=file,
+                stage=f"carrier {i}",
+                field="freq",
+            )
 
 
 def _report(table, file: str) -> ReportSpec:
@@ -321,7 +370,7 @@ def _converted(mixer, freqs_hz: list[float], file: str, index: int) -> list[floa
     return out
 
 
-def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
+def grid_points(stages, lattice, max_order: int) -> tuple[int, int]:
     """Points of the engine's alias-free grid for one batch element, and the degree that sets it.
 
     A lower bound on the work of one evaluation: non-polynomial models start there and
@@ -332,28 +381,34 @@ def grid_points(stages, n_tones: int, max_order: int) -> tuple[int, int]:
     ----------
     stages : sequence of stage
         The lineup's stages; linear ones (``grid_degree`` None) add nothing.
-    n_tones : int
-        Number of base tones K (carriers and LOs), the torus dimension.
+    lattice : spurplan.model.tone_lattice.ToneLattice
+        The engine's axes for the lineup's tones (:attr:`Lineup.tone_lattice`).
     max_order : int
-        The analysis order: largest ``|m_k|`` at the input and kept.
+        The analysis order: the products kept.
 
     Returns
     -------
     tuple of (int, int)
-        Grid points ``N ** K`` and the largest model degree (each stage's ``grid_degree``:
-        8 assumed for a non-polynomial model; ``m + |n|`` of a mixer's terms).
+        Grid points (the product of the points on each axis) and the largest model degree
+        (each stage's ``grid_degree``: 8 assumed for a non-polynomial model; ``m + |n|`` of
+        a mixer's terms).
     """
     degree = max((s.grid_degree for s in stages if s.grid_degree is not None), default=1)
-    return alias_free_grid(degree, max_order, max_order) ** n_tones, degree
+    return lattice.grid_points(degree, max_order), degree
 
 
-def _check_size(stages, n_tones: int, analysis: Analysis, file: str) -> None:
+def _check_size(stages, carriers, n_lo: int, analysis: Analysis, file: str) -> None:
     m = analysis.max_order
-    points, degree = grid_points(stages, n_tones, m)
+    lattice = lattice_for(
+        n_lo, tuple(c.freq_hz for c in carriers), analysis.raster_hz, analysis.raster_tolerance_hz, m
+    )
+    points, degree = grid_points(stages, lattice, m)
     if points > MAX_GRID_POINTS:
+        shared = "on a raster" if lattice.raster_hz else "on no common raster"
         raise LineupError(
-            f"{analysis.max_order}: {n_tones} tones to order {m} with degree-{degree} stages needs "
-            f"{points:.3g} grid points; expected a lower max_order",
+            f"{m}: {len(carriers)} carriers {shared} and {n_lo} LOs to order {m} with degree-{degree} "
+            f"stages need {points:.3g} grid points (at most {MAX_GRID_POINTS:.3g}); expected a lower "
+            "max_order, fewer carriers, or carriers on a common channel raster ([analysis] raster)",
             file=file,
             stage="[analysis]",
             field="max_order",

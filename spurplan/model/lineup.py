@@ -17,6 +17,7 @@ from spurplan.model.products import (
     default_tone_names,
     product_index,
 )
+from spurplan.model.tone_lattice import RASTER_TOLERANCE_HZ, ToneLattice, lattice_for
 from spurplan.units import dbm_to_vpeak
 
 if TYPE_CHECKING:  # annotations only
@@ -97,6 +98,11 @@ class Analysis:
     strict : bool
         An incomplete model (missing figures) or a stated figure the model misses
         fails the check (exit status 1) instead of qualifying its verdict.
+    raster_hz : float or None
+        The carriers' channel raster (Hz) as stated; ``None`` finds the coarsest one they
+        share (:mod:`spurplan.model.tone_lattice`).
+    raster_tolerance_hz : float
+        How far (Hz) a carrier may sit from the raster and still be on it.
     """
 
     max_order: int = DEFAULT_MAX_ORDER
@@ -104,6 +110,8 @@ class Analysis:
     beyond_data: str = "error"
     linear_sections: str = "matched"
     strict: bool = False
+    raster_hz: float | None = None
+    raster_tolerance_hz: float = RASTER_TOLERANCE_HZ
 
 
 @dataclass(frozen=True)
@@ -168,6 +176,17 @@ class Lineup:
     def n_tones(self) -> int:
         """Base tones of the engine: every mixer's LO, then the carriers."""
         return len(self.mixers) + len(self.carriers)
+
+    @property
+    def tone_lattice(self) -> ToneLattice:
+        """The engine's axes for this lineup's tones (:func:`spurplan.model.tone_lattice.lattice_for`)."""
+        return lattice_for(
+            len(self.mixers),
+            tuple(c.freq_hz for c in self.carriers),
+            self.analysis.raster_hz,
+            self.analysis.raster_tolerance_hz,
+            self.analysis.max_order,
+        )
 
     @property
     def tone_freqs_hz(self) -> np.ndarray:

@@ -24,13 +24,13 @@ CONVERGENCE_FLOOR = 1e-11
 
 
 def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
-    """Peak phasors (B, P) of the canonical products in real torus samples (B, N, ..., N).
+    """Peak phasors (B, P) of the canonical products in real torus samples (B, N_1, ..., N_K).
 
     Parameters
     ----------
-    samples : ndarray, real, shape (B, N, ..., N)
-        The signal (V) sampled on a K-dimensional torus grid of N points per axis, one axis
-        per base tone.
+    samples : ndarray, real, shape (B, N_1, ..., N_K)
+        The signal (V) sampled on a K-dimensional torus grid, one axis per base tone (or
+        lattice axis, :mod:`spurplan.model.tone_lattice`).
     mix : ndarray of int, shape (P, K)
         Canonical mixing vectors to read.
 
@@ -40,18 +40,18 @@ def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
         Peak phasor (V) of each product: twice the forward-normalised DFT coefficient.
     """
     k = mix.shape[1]
-    n = samples.shape[1]
+    sizes = samples.shape[1:]
     out = sfft.rfftn(samples, axes=tuple(range(1, k + 1)), norm="forward")
     # rfftn keeps last-axis indices 0 .. n//2: read m directly where its last entry
     # is >= 0, else read -m and conjugate.
     direct = mix[:, -1] >= 0
     src = np.where(direct[:, None], mix, -mix)
-    idx = (*tuple(src[:, i] % n for i in range(k - 1)), src[:, -1])
+    idx = (*tuple(src[:, i] % sizes[i] for i in range(k - 1)), src[:, -1])
     coeff = out[(slice(None), *idx)]
     return 2.0 * np.where(direct[None, :], coeff, np.conj(coeff))
 
 
-def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, n: int) -> np.ndarray:
+def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, n) -> np.ndarray:
     """Analytic signal on the torus: ``sum X_m exp(j m . theta)`` over positive frequencies.
 
     Each product enters once, at its positive frequency (the conjugate phasor at
@@ -66,21 +66,25 @@ def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray,
         Canonical mixing vectors.
     freqs_hz : ndarray, shape (B, P)
         Signed product frequencies (Hz); only their signs are used.
-    n : int
-        Grid points per torus axis.
+    n : int or tuple of int
+        Grid points per torus axis (one number for every axis, or one per axis).
 
     Returns
     -------
-    ndarray, complex, shape (B, N, ..., N)
+    ndarray, complex, shape (B, N_1, ..., N_K)
         The analytic signal (V) on the grid.
     """
     batch = x_phasors.shape[0]
     k = mix.shape[1]
-    grid = np.zeros((batch,) + (n,) * k, dtype=complex)
+    sizes = grid_shape(n, k)
+    grid = np.zeros((batch, *sizes), dtype=complex)
     positive = freqs_hz >= 0
     for sign, take in ((1, positive), (-1, ~positive)):
         vals = np.where(take, x_phasors if sign > 0 else np.conj(x_phasors), 0.0)
-        idx: tuple[slice | np.ndarray, ...] = (slice(None), *((sign * mix[:, i]) % n for i in range(k)))
+        idx: tuple[slice | np.ndarray, ...] = (
+            slice(None),
+            *((sign * mix[:, i]) % sizes[i] for i in range(k)),
+        )
         grid[idx] += vals
     return sfft.ifftn(grid, axes=tuple(range(1, k + 1)), norm="forward")
 
@@ -105,3 +109,46 @@ def alias_free_grid(degree: int, m_in: int, m_keep: int) -> int:
     # D m_in + m_keep + 1 keeps kept indices alias-free; 2 m_keep + 1 keeps +m and -m
     # apart, so every kept index can be read from the half-spectrum of rfftn.
     return sfft.next_fast_len(max(degree * m_in + m_keep + 1, 2 * m_keep + 1))
+
+
+def grid_shape(n, k: int) -> tuple[int, ...]:
+    """Points per axis of a K-axis grid.
+
+    Parameters
+    ----------
+    n : int or sequence of int
+        One size for every axis, or one per axis.
+    k : int
+        Number of axes.
+
+    Returns
+    -------
+    tuple of int
+        ``n`` itself when it is a sequence, else ``(n,) * k``.
+    """
+    return tuple(int(v) for v in n) if isinstance(n, tuple | list | np.ndarray) else (int(n),) * k
+
+
+def alias_free_shape(degree: int, mix: np.ndarray, active: np.ndarray | None = None) -> tuple[int, ...]:
+    """Per-axis :func:`alias_free_grid` for products ``mix`` (P, K), ``active`` ones at the input.
+
+    Parameters
+    ----------
+    degree : int
+        Polynomial degree D of the transfer (an assumed degree for other models).
+    mix : ndarray of int, shape (P, K)
+        The products kept at the output (lattice coordinates).
+    active : ndarray of bool, shape (P,), optional
+        The products present at the input; default all.
+
+    Returns
+    -------
+    tuple of int
+        Grid points on each axis: an axis where products spread far (a raster's step
+        axis) gets more points than one where they do not.
+    """
+    keep = np.abs(mix).max(axis=0)
+    m_in = np.abs(mix[active]).max(axis=0) if active is not None and active.any() else keep
+    return tuple(
+        alias_free_grid(degree, max(int(i), 1), max(int(o), 1)) for i, o in zip(m_in, keep, strict=True)
+    )

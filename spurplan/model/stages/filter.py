@@ -63,6 +63,10 @@ Q_RANGE = (0.5, 1e12)
 SPREAD_FIGURES = ("cutoff", "center", "q_inductor", "q_capacitor", "elements")
 
 
+_CACHED_FREQUENCY_SETS = 4
+_CACHED_BYTES = 64 * 2**20
+
+
 @dataclass(frozen=True)
 class Filter(StageDefaults):
     """A linear filter stage.
@@ -166,8 +170,15 @@ class Filter(StageDefaults):
                 # with its S lookup (the Touchstone reader returns both).
                 assert self.s_table is not None
                 s = self.s_table(uniq)
-            self._cache.clear()
+            # A few frequency sets, not one: a run evaluates its reported products and the
+            # wider set it carries to see them settle (spurplan.engine.run), in turn.
+            # Bounded in count and in bytes (a sweep's sets are large).
             self._cache[key] = s
+            while len(self._cache) > 1 and (
+                len(self._cache) > _CACHED_FREQUENCY_SETS
+                or sum(v.nbytes for v in self._cache.values()) > _CACHED_BYTES
+            ):
+                self._cache.pop(next(iter(self._cache)))
         return s[inverse.reshape(f.shape)]
 
     def network(self, freq_hz: np.ndarray):

@@ -293,26 +293,29 @@ class MixerModel:
         """
 
         active = np.any(x_phasors != 0, axis=0)
-        m_in = int(np.abs(mix[active]).max()) if active.any() else 1
-        m_keep = int(np.abs(mix).max())
+        keep = np.abs(mix).max(axis=0)
+        m_in = np.abs(mix[active]).max(axis=0) if active.any() else np.ones_like(keep)
         n_max = max(abs(n) for _, n, _ in self.terms)
         m_max = max(m for m, _, _ in self.terms)
         # With compression, room for one cubic envelope term more; either way the grid
         # exceeds 2 m_in, so |z|^2 (indices up to 2 m_in) is sampled without aliases and a
-        # constant envelope on the grid is constant everywhere.
+        # constant envelope on the grid is constant everywhere.  Per axis: the LO's axis
+        # also holds the LO harmonics m_max.
         degree = max(n_max, 1) + (2 if self.knee_v is not None else 0)
-        size = max(alias_free_grid(degree, m_in, m_keep), m_in + m_max + m_keep + 1)
-        size = alias_free_grid(1, size, 0)
+        size = []
+        for axis, (i, o) in enumerate(zip(m_in, keep, strict=True)):
+            i, o = max(int(i), 1), max(int(o), 1)
+            lo_terms = m_max if axis == self.lo_index else 0
+            size.append(alias_free_grid(1, max(alias_free_grid(degree, i, o), i + lo_terms + o + 1), 0))
+        shape = tuple(size)
         rows = np.arange(x_phasors.shape[0])
-        y, exact = self._evaluate(x_phasors, mix, freqs_hz, size, rows)
+        y, exact = self._evaluate(x_phasors, mix, freqs_hz, shape, rows)
         if self.knee_v is None:
             return y
-        k = mix.shape[1]
-        grid_limit = round(MAX_GRID_POINTS ** (1.0 / k))
         todo = rows[~exact]
-        while todo.size and size * 2 <= grid_limit:
-            size *= 2
-            y2, _ = self._evaluate(x_phasors[todo], mix, freqs_hz[todo], size, todo)
+        while todo.size and math.prod(shape) * 2 ** len(shape) <= MAX_GRID_POINTS:
+            shape = tuple(2 * v for v in shape)
+            y2, _ = self._evaluate(x_phasors[todo], mix, freqs_hz[todo], shape, todo)
             scale = np.abs(y2).max(axis=1, keepdims=True)
             ok = np.all(
                 np.abs(y2 - y[todo]) <= CONVERGENCE_RTOL * np.abs(y2) + CONVERGENCE_FLOOR * scale, axis=1
@@ -323,17 +326,17 @@ class MixerModel:
             from spurplan.errors import LineupError
 
             raise LineupError(
-                f"the IF compression model did not settle on {size} grid points per tone: "
+                f"the IF compression model did not settle on {'x'.join(map(str, shape))} grid points: "
                 "expected fewer IF carriers or a lower max_order",
                 stage=f"stage {self.name!r}",
             )
         return y
 
-    def _evaluate(self, x_phasors, mix, freqs_hz, size: int, rows: np.ndarray):
-        """Output phasors on a ``size``-point grid per axis, in batch chunks, and whether
+    def _evaluate(self, x_phasors, mix, freqs_hz, size: tuple[int, ...], rows: np.ndarray):
+        """Output phasors on a grid of ``size`` points per axis, in batch chunks, and whether
         each element's envelope is constant (so that this grid is exact)."""
 
-        chunk = max(1, MAX_GRID_POINTS // size ** mix.shape[1])
+        chunk = max(1, MAX_GRID_POINTS // math.prod(size))
         parts = [
             self._evaluate_chunk(
                 x_phasors[s : s + chunk], mix, freqs_hz[s : s + chunk], size, rows[s : s + chunk]
@@ -342,7 +345,7 @@ class MixerModel:
         ]
         return tuple(np.concatenate(arrays) for arrays in zip(*parts, strict=True))
 
-    def _evaluate_chunk(self, x_phasors, mix, freqs_hz, size: int, rows: np.ndarray):
+    def _evaluate_chunk(self, x_phasors, mix, freqs_hz, size: tuple[int, ...], rows: np.ndarray):
         z = torus_analytic(x_phasors, mix, freqs_hz, size)
         batch = z.shape[0]
         exact = np.ones(batch, dtype=bool)
@@ -353,8 +356,9 @@ class MixerModel:
             z = z * envelope_gain(r2, self.knee_v, self.smoothness).reshape(z.shape)
         k = mix.shape[1]
         shape = [1] * (k + 1)
-        shape[1 + self.lo_index] = size
-        lo = np.exp(2j * np.pi * np.arange(size) / size).reshape(shape)
+        n_lo = size[self.lo_index]
+        shape[1 + self.lo_index] = n_lo
+        lo = np.exp(2j * np.pi * np.arange(n_lo) / n_lo).reshape(shape)
         y = np.zeros(z.shape)
         for m, n, c in self.terms:
             base = np.ones_like(z) if n == 0 else (z ** abs(n) if n > 0 else np.conj(z) ** abs(n))
