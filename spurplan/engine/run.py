@@ -36,7 +36,7 @@ SETTLE_DB = 0.01
 SETTLE_FLOOR = 1e-10
 
 
-def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None) -> Result:
+def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None, carrier_phasors_v=None) -> Result:
     """Compute every product at every stage of ``lineup``.
 
     Parameters
@@ -53,6 +53,9 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None)
         copies.  They are propagated as given (no linear-section cascade), and the
         beyond-data policy is left to the nominal run, which
         :func:`spurplan.analyses.montecarlo.run_yield` makes first.
+    carrier_phasors_v : ndarray, complex, (B, K_c), optional
+        Each carrier's complex peak amplitude (V) per batch element, instead of its stated
+        power and phase: the realizations of a multisine (:mod:`spurplan.engine.spectra`).
 
     Returns
     -------
@@ -70,7 +73,7 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None)
         tone_freqs_hz = lineup.tone_freqs_hz
     tones = np.atleast_2d(np.asarray(tone_freqs_hz, dtype=float))
     offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
-    batch = max(len(tones), len(offset))
+    batch = max(len(tones), len(offset), 0 if carrier_phasors_v is None else len(carrier_phasors_v))
     tones = np.broadcast_to(tones, (batch, lineup.n_tones))
     offset = np.broadcast_to(offset, (batch,))
     axes = lattice.axes_hz(tones)
@@ -97,7 +100,7 @@ def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None)
         # Each product's frequency from its tones: exactly what the tones give (a product at
         # 7 x 100 + 2 x 130 MHz is at 960 MHz, not a rounding either side of a rule's edge).
         freqs = tones @ products.mix.T.astype(float)
-        x_in = lineup.input_phasors(products.mix, offset)
+        x_in = lineup.input_phasors(products.mix, offset, carrier_phasors_v)
         prop = _cut(propagate(stages, x_in, products.coords, freqs, ref, axes), n_report)
         if previous is not None:
             unsettled = ~_settled(previous.nodes, prop.nodes)

@@ -16,12 +16,14 @@ from spurplan.errors import LineupError
 from spurplan.model.products import (
     default_tone_names,
     product_index,
+    tone_index,
 )
 from spurplan.model.tone_lattice import RASTER_TOLERANCE_HZ, ToneLattice, lattice_for
 from spurplan.units import dbm_to_vpeak
 
 if TYPE_CHECKING:  # annotations only
     from spurplan.model.masks import Mask
+    from spurplan.model.modulation import Modulation
     from spurplan.model.stages.amplifier_fit import FigureCheck
     from spurplan.model.stages.base import StageDefaults
     from spurplan.model.tolerances import Tolerances
@@ -44,12 +46,17 @@ class Carrier:
     bandwidth_hz : float or None
         Occupied bandwidth; ``None`` for CW.
     phase_rad : float
+    modulation : spurplan.model.modulation.Modulation or None
+        How the carrier is modulated (run as a multisine in its bandwidth); ``None``: the
+        carrier is a CW tone for the nonlinearities (the bandwidth then only spreads its
+        products for the mask, an approximation).
     """
 
     freq_hz: float
     power_dbm: float
     bandwidth_hz: float | None = None
     phase_rad: float = 0.0
+    modulation: Modulation | None = None
 
 
 def reference_carrier_index(carriers) -> int:
@@ -335,7 +342,7 @@ class Lineup:
             )
         return stage
 
-    def input_phasors(self, mix: np.ndarray, drive_offset_db=0.0) -> np.ndarray:
+    def input_phasors(self, mix: np.ndarray, drive_offset_db=0.0, carrier_phasors_v=None) -> np.ndarray:
         """Input peak phasors (V), shape (B, P), for carrier powers offset by ``drive_offset_db``.
 
         ``drive_offset_db`` may be an array (B,): a drive sweep in one batch.
@@ -346,6 +353,9 @@ class Lineup:
             Canonical mixing vectors; the carriers are placed at their base-tone rows.
         drive_offset_db : float or ndarray, shape (B,)
             Added to every carrier's power (dB).
+        carrier_phasors_v : ndarray, complex, shape (B, K_c), optional
+            Each carrier's complex peak amplitude (V) per batch element, instead of its
+            stated power and phase (realizations of a multisine); the offset still applies.
 
         Returns
         -------
@@ -353,14 +363,26 @@ class Lineup:
             Peak phasors (V) across the system impedance; zero except at the carriers.
         """
         offset = np.atleast_1d(np.asarray(drive_offset_db, dtype=float))
-        x = np.zeros((offset.size, len(mix)), dtype=complex)
-        for k, c in enumerate(self.carriers):
-            col = product_index(mix, self.carrier_vectors(0)[k])
-            amp = dbm_to_vpeak(c.power_dbm + offset, self.r_ohm)
-            x[:, col] = amp * np.exp(1j * c.phase_rad)
+        n_lo = len(self.mixers)
+        # The carriers' rows: the unit vectors of tones n_lo .. (one scan, not one per carrier).
+        unit = tone_index(mix)
+        cols = np.full(len(self.carriers), -1, dtype=np.int64)
+        hit = np.nonzero(unit >= n_lo)[0]
+        cols[unit[hit] - n_lo] = hit
+        if np.any(cols < 0):
+            k = int(np.nonzero(cols < 0)[0][0])
+            cols[k] = product_index(mix, self.carrier_vectors(0)[k])  # raises: beyond the order
+        if carrier_phasors_v is None:
+            amp = np.array([dbm_to_vpeak(c.power_dbm, self.r_ohm) for c in self.carriers])
+            phasors = (amp * np.exp(1j * np.array([c.phase_rad for c in self.carriers])))[None, :]
+        else:
+            phasors = np.atleast_2d(np.asarray(carrier_phasors_v, dtype=complex))
+        batch = max(offset.size, len(phasors))
+        x = np.zeros((batch, len(mix)), dtype=complex)
+        x[:, cols] = phasors * (10 ** (offset / 20))[:, None] if offset.size > 1 else phasors * 10 ** (offset[0] / 20)
         return x
 
-    def run(self, drive_offset_db=0.0, tone_freqs_hz=None):
+    def run(self, drive_offset_db=0.0, tone_freqs_hz=None, carrier_phasors_v=None):
         """Compute every product at every stage.
 
         Parameters
@@ -370,6 +392,9 @@ class Lineup:
         tone_freqs_hz : ndarray (B, K) or (K,), optional
             Base-tone frequencies per batch element (a tuning sweep), in the order of
             :attr:`tone_freqs_hz` (LOs, then carriers); default the lineup's own.
+        carrier_phasors_v : ndarray, complex (B, K_c), optional
+            Each carrier's complex peak amplitude (V) per batch element, instead of its
+            stated power and phase.
 
         Returns
         -------
@@ -379,4 +404,4 @@ class Lineup:
         # engine computes: spurplan.engine.run; the model stays below it)
         from spurplan.engine.run import run
 
-        return run(self, drive_offset_db, tone_freqs_hz)
+        return run(self, drive_offset_db, tone_freqs_hz, carrier_phasors_v=carrier_phasors_v)
