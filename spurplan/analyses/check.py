@@ -10,6 +10,12 @@ but not judged against spurious limits.
 
 The mean carrier power P used by relative and attenuation rules is the total of the
 carrier rows at the output (all carriers, as modelled).
+
+Adjacent-channel (ACPR) rules add one row per rule, carrier, offset and side: the
+power in that channel (the products in it plus the output noise integrated over it,
+:func:`channel_power_dbm`) against the rule's dBc limit (relative to that carrier's
+own power) and absolute limit, the more stringent deciding.  A channel that overlaps
+another carrier's own channel is occupied and not judged (a note says so).
 """
 
 from __future__ import annotations
@@ -21,6 +27,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.errors import LineupError
+from spurplan.model.masks import bandwidth_text
 
 if TYPE_CHECKING:  # annotations only; the check runs on a Result it is handed
     from spurplan.engine.result import Result
@@ -67,6 +74,14 @@ class CheckResult:
     noise_not_judged : tuple of str
         Where the output noise could not be judged (a rule without a reference
         bandwidth, frequencies beyond a stage's data): the status is then INCOMPLETE.
+    acpr : tuple of dict
+        One entry per judged adjacent channel (rule, carrier, offset, side), the keys of
+        :data:`ACPR_KEYS` (Hz, dBm, dBc, dB); each is also a row of ``rows`` (domain
+        :data:`ACPR_DOMAIN`).
+    acpr_not_judged : tuple of str
+        Adjacent channels an ACPR rule asks for but the check cannot judge (a channel
+        that overlaps its own carrier's, a modulated carrier whose own spectral regrowth
+        the model leaves out): the status is then INCOMPLETE.
     """
 
     result: Result
@@ -76,6 +91,8 @@ class CheckResult:
     carrier_dbm: float
     notes: tuple[str, ...]
     noise_not_judged: tuple[str, ...] = ()
+    acpr: tuple[dict, ...] = ()
+    acpr_not_judged: tuple[str, ...] = ()
 
     @property
     def worst_margin_db(self) -> float | None:
@@ -115,7 +132,7 @@ class CheckResult:
         """
         if not self.passed:
             return "FAIL"
-        if self.missing_figures or self.unjudged_rows or self.noise_not_judged:
+        if self.missing_figures or self.unjudged_rows or self.noise_not_judged or self.acpr_not_judged:
             return "INCOMPLETE"
         if self.figures_missed:
             return "UNCERTAIN"
@@ -155,6 +172,9 @@ class CheckResult:
         if self.noise_not_judged:
             noise = "noise not judged " + "; ".join(self.noise_not_judged)
             gaps = f"{noise}; {gaps}" if gaps else noise
+        if self.acpr_not_judged:
+            acpr = "ACPR not judged: " + "; ".join(self.acpr_not_judged)
+            gaps = f"{acpr}; {gaps}" if gaps else acpr
         return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
 
     def strict_failure(self, strict: bool | None = None) -> bool:
@@ -301,9 +321,10 @@ class MaskEvaluation:
 def require_mask(lineup):
     """The lineup's mask, or a one-line error when it has none."""
     mask = lineup.mask
-    if mask is None or not (mask.rules or mask.bands):
+    if mask is None or not (mask.rules or mask.bands or mask.adjacent_channels):
         raise LineupError(
-            "no emission limits: expected a [mask] table with use = [...] or [[mask.rule]]",
+            "no emission limits: expected a [mask] table with use = [...], [[mask.rule]] "
+            "or [[mask.adjacent_channel]]",
             file=None if lineup.source is None else str(lineup.source),
         )
     return mask
@@ -467,6 +488,7 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
     f_highest = highest_output_carrier_hz(result, batch)
     carrier_dbm = float(ev.carrier_dbm[0])
     noise_not_judged = _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ev.rules)
+    acpr = _add_acpr_rows(out, lineup, mask, result, levels, ev.bandwidth_hz[0], batch)
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
     return CheckResult(
@@ -475,8 +497,10 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         passed=all(m >= 0 for m in margins),
         worst=worst,
         carrier_dbm=carrier_dbm,
-        notes=tuple(_coverage_notes(lineup, mask, f_highest)),
-        noise_not_judged=tuple(noise_not_judged),
+        notes=tuple(_coverage_notes(lineup, mask, f_highest) + acpr.notes),
+        noise_not_judged=tuple(noise_not_judged + acpr.noise_not_judged),
+        acpr=tuple(acpr.entries),
+        acpr_not_judged=tuple(acpr.not_judged),
     )
 
 
@@ -502,22 +526,9 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
         return []
     tones = np.asarray(result.tone_freqs_hz)[batch]
     carriers_hz = result.carrier_freqs_hz()[batch]
-    not_judged: list[str] = []
-    # Where data-based stages after the last mixer (at output frequencies) are defined
-    # bounds the noise that can be read: beyond their data the response is not known.
-    last_mixer = max((i for i, st in enumerate(lineup.stages) if st.conversion is not None), default=-1)
-    lo_ok, hi_ok = 0.0, math.inf
-    data_stages = []
-    for i, stage in enumerate(lineup.stages):
-        if stage.data_range_hz is None:
-            continue
-        if i > last_mixer:
-            data_stages.append(repr(stage.name))
-            lo_ok, hi_ok = max(lo_ok, stage.data_range_hz[0]), min(hi_ok, stage.data_range_hz[1])
-        else:
-            # Before a mixer the frequencies noise comes from are not checked against the
-            # data: the response there may be the data held beyond its ends.
-            not_judged.append(f"through stage '{stage.name}' before a mixer (its data may be held)")
+    readable = _noise_readable(lineup)
+    lo_ok, hi_ok, data_stages = readable.lo_hz, readable.hi_hz, readable.data_stages
+    not_judged = list(readable.not_judged)
     reach = (lineup.analysis.max_order + 1) * float(np.max(tones))
     skipped = []
     clipped = []
@@ -590,18 +601,377 @@ def _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ru
             f"outside {lo_ok:.6g} to {hi_ok:.6g} Hz, the data of stage {', '.join(data_stages)}, "
             f"under {listed(clipped)}"
         )
-    if added:
-        rows = [{c: out[c][i] for c in CHECK_COLUMNS} for i in range(len(out["freq_hz"]))] + added
-        rows.sort(
-            key=lambda r: (
-                r["margin_db"] is None,
-                math.inf if r["margin_db"] is None else r["margin_db"],
-                r["freq_hz"],
-            )
-        )
-        for c in CHECK_COLUMNS:
-            out[c][:] = [r[c] for r in rows]
+    _merge_rows(out, added)
     return not_judged
+
+
+def _merge_rows(out: dict, added: list[dict]) -> None:
+    """Insert ``added`` rows (dicts of :data:`CHECK_COLUMNS`) into ``out`` in margin order
+    (failing first, rows no rule judges last, then by frequency)."""
+    if not added:
+        return
+    rows = [{c: out[c][i] for c in CHECK_COLUMNS} for i in range(len(out["freq_hz"]))] + added
+    rows.sort(
+        key=lambda r: (
+            r["margin_db"] is None,
+            math.inf if r["margin_db"] is None else r["margin_db"],
+            r["freq_hz"],
+        )
+    )
+    for c in CHECK_COLUMNS:
+        out[c][:] = [r[c] for r in rows]
+
+
+@dataclass(frozen=True)
+class _NoiseReadable:
+    """Output frequencies (Hz) where the noise can be read, and what bounds them."""
+
+    lo_hz: float
+    hi_hz: float
+    data_stages: tuple[str, ...]
+    not_judged: tuple[str, ...]
+
+
+def _noise_readable(lineup) -> _NoiseReadable:
+    """Where data-based stages after the last mixer (at output frequencies) are defined
+    bounds the noise that can be read: beyond their data the response is not known."""
+    last_mixer = max((i for i, st in enumerate(lineup.stages) if st.conversion is not None), default=-1)
+    lo_ok, hi_ok = 0.0, math.inf
+    data_stages = []
+    not_judged = []
+    for i, stage in enumerate(lineup.stages):
+        if stage.data_range_hz is None:
+            continue
+        if i > last_mixer:
+            data_stages.append(repr(stage.name))
+            lo_ok, hi_ok = max(lo_ok, stage.data_range_hz[0]), min(hi_ok, stage.data_range_hz[1])
+        else:
+            # Before a mixer the frequencies noise comes from are not checked against the
+            # data: the response there may be the data held beyond its ends.
+            not_judged.append(f"through stage '{stage.name}' before a mixer (its data may be held)")
+    return _NoiseReadable(lo_ok, hi_ok, tuple(data_stages), tuple(not_judged))
+
+
+ACPR_DOMAIN = "adjacent channel"
+# What the summary's "acpr" list holds for each judged channel (Hz, dBm, dBc, dB).
+ACPR_KEYS = (
+    "rule",
+    "limit_form",
+    "rule_source",
+    "carrier",
+    "carrier_hz",
+    "carrier_dbm",
+    "carrier_bandwidth_hz",
+    "side",
+    "offset_hz",
+    "channel_start_hz",
+    "channel_stop_hz",
+    "channel_bandwidth_hz",
+    "channel_dbm",
+    "products_dbm",
+    "noise_dbm",
+    "acpr_dbc",
+    "limit_dbc",
+    "absolute_limit_dbm",
+    "limit_dbm",
+    "margin_db",
+    "pass",
+    "stage",
+    "band",
+)
+# Points at which the output noise density is read across one channel (uniform, ends
+# included, trapezoid rule).  Within a channel the density changes only on a filter's
+# skirt, smoothly on the scale of a channel; 129 points (128 steps) integrate such a
+# slope to far below 0.01 dB (common practice, no source).
+CHANNEL_NOISE_POINTS = 129
+
+
+@dataclass(frozen=True)
+class ChannelPower:
+    """The power in each of M channels (:func:`channel_power_dbm`), arrays of shape (M,).
+
+    Attributes
+    ----------
+    products_dbm : ndarray
+        The discrete products' share (dBm; ``-inf`` where none falls in the channel).
+    noise_dbm : ndarray
+        The output noise integrated over the channel (dBm; NaN where it is not included).
+    total_dbm : ndarray
+        Their sum (dBm).
+    largest : ndarray of int
+        Index of the product that adds most to the channel, -1 where none does.
+    largest_dbm : ndarray
+        What it adds (dBm; ``-inf`` where none does).
+    """
+
+    products_dbm: np.ndarray
+    noise_dbm: np.ndarray
+    total_dbm: np.ndarray
+    largest: np.ndarray
+    largest_dbm: np.ndarray
+
+
+def channel_power_dbm(
+    start_hz, stop_hz, freq_hz, level_dbm, spread_hz, noise_dbm_hz=None, noise_in=None
+) -> ChannelPower:
+    """Power (dBm) in each channel ``[start_hz, stop_hz]``: the discrete products in it plus
+    the output noise integrated over it.
+
+    This is the one place where the spectrum becomes channel power.  A product whose
+    spread ``B`` is above 0 (the check's ``sum |m_k| B_k`` approximation, see
+    :mod:`spurplan.model.masks`) is taken as flat over ``[f - B/2, f + B/2]`` and counts by
+    the fraction of that span inside the channel; a CW product (``B = 0``) counts whole
+    when it lies in the channel, edges included (the reading that finds more power).
+    The noise density is integrated by the trapezoid rule on
+    :data:`CHANNEL_NOISE_POINTS` points of each channel.  A power-spectral-density model
+    of the products (for example the spectral regrowth of a modulated carrier) plugs in
+    here: integrate its density over the channel in place of the flat fraction.
+
+    Parameters
+    ----------
+    start_hz, stop_hz : array_like, shape (M,)
+        Channel edges (Hz), ``start_hz < stop_hz``.
+    freq_hz, level_dbm, spread_hz : array_like, shape (G,)
+        The products: centre frequency (Hz), whole power (dBm) and spread (Hz, 0 for CW).
+    noise_dbm_hz : callable or None, optional
+        ``noise_dbm_hz(freq_hz) -> density`` (dBm/Hz, the shape of its argument), or
+        ``None`` to leave the noise out.
+    noise_in : array_like of bool, shape (M,), optional
+        The channels whose noise is integrated (default all, with ``noise_dbm_hz``); the
+        density is read only there.
+
+    Returns
+    -------
+    ChannelPower
+        Per channel: the products' share, the noise and their total (dBm), and the
+        largest contributor.
+    """
+    start = np.asarray(start_hz, dtype=float)[:, None]
+    stop = np.asarray(stop_hz, dtype=float)[:, None]
+    f = np.asarray(freq_hz, dtype=float)[None, :]
+    spread = np.asarray(spread_hz, dtype=float)[None, :]
+    overlap = np.clip(np.minimum(f + spread / 2, stop) - np.maximum(f - spread / 2, start), 0.0, None)
+    inside = (f >= start) & (f <= stop)
+    fraction = np.where(spread > 0, overlap / np.where(spread > 0, spread, 1.0), inside.astype(float))
+    share_mw = fraction * 10.0 ** (np.asarray(level_dbm, dtype=float)[None, :] / 10.0)
+    products_mw = share_mw.sum(axis=1)
+    if share_mw.shape[1]:
+        largest = np.argmax(share_mw, axis=1)
+        largest_mw = share_mw[np.arange(share_mw.shape[0]), largest]
+        largest = np.where(largest_mw > 0, largest, -1)
+    else:
+        largest = np.full(share_mw.shape[0], -1)
+        largest_mw = np.zeros(share_mw.shape[0])
+    noise_mw = np.full(products_mw.shape, np.nan)
+    total_mw = products_mw.copy()
+    read = np.zeros(products_mw.shape, dtype=bool)
+    if noise_dbm_hz is not None:
+        read = (
+            np.ones(products_mw.shape, dtype=bool) if noise_in is None else np.asarray(noise_in, dtype=bool)
+        )
+    if read.any():
+        grid = (start + (stop - start) * np.linspace(0.0, 1.0, CHANNEL_NOISE_POINTS)[None, :])[read]
+        density = 10.0 ** (np.asarray(noise_dbm_hz(grid), dtype=float) / 10.0)
+        noise_mw[read] = (0.5 * (density[:, 1:] + density[:, :-1]) * np.diff(grid, axis=1)).sum(axis=1)
+        total_mw[read] += noise_mw[read]
+    with np.errstate(divide="ignore"):
+        return ChannelPower(
+            products_dbm=10.0 * np.log10(products_mw),
+            noise_dbm=10.0 * np.log10(noise_mw),
+            total_dbm=10.0 * np.log10(total_mw),
+            largest=largest,
+            largest_dbm=10.0 * np.log10(largest_mw),
+        )
+
+
+@dataclass(frozen=True)
+class _AcprOutcome:
+    entries: list[dict]
+    notes: list[str]
+    noise_not_judged: list[str]
+    not_judged: list[str]
+
+
+def _carrier_names(lineup) -> list[str]:
+    """``f1``, ``f2`` ... as product labels name the carriers; after a mixer, where labels
+    name the IF, ``carrier 1`` ..."""
+    if lineup.mixers:
+        return [f"carrier {k + 1}" for k in range(len(lineup.carriers))]
+    return lineup.tone_names
+
+
+def _listed(items: list[str], most: int = 3) -> str:
+    return ", ".join(items[:most]) + (", ..." if len(items) > most else "")
+
+
+def _add_acpr_rows(out, lineup, mask, result, levels, spread_hz, batch) -> _AcprOutcome:
+    """One row per adjacent-channel rule, output carrier, offset and side: the channel's
+    power (:func:`channel_power_dbm`) against the rule; rows go into ``out`` in margin order.
+
+    ``levels`` are the output levels of the checked batch element (one row), ``spread_hz``
+    each slot's spread (Hz).  A channel that overlaps another carrier's own channel is
+    occupied and skipped (a note); one that overlaps its own carrier's channel cannot be
+    judged as the rule states it, and neither can a modulated carrier's own spectral
+    regrowth, which the model does not make: both keep the check from PASS.  Without a
+    noise figure for every active stage, or beyond a data-based stage's data, a channel's
+    power is its products' alone, and the noise in it is not judged.
+    """
+    from spurplan.engine.noise import output_noise_dbm_hz, unknown_noise_stages
+
+    outcome = _AcprOutcome([], [], [], [])
+    if not mask.adjacent_channels:
+        return outcome
+    carriers_hz = result.carrier_freqs_hz()[batch]
+    carriers_dbm = result.carrier_levels_dbm(None, batch)
+    stated = [c.bandwidth_hz for c in lineup.carriers]
+    names = _carrier_names(lineup)
+    slots = levels.valid[0] & ~levels.is_carrier[0]
+    freq, level, spread = levels.freq_hz[0, slots], levels.level_dbm[0, slots], np.asarray(spread_hz)[slots]
+    top, beyond = levels.top_source[0, slots], levels.beyond[0, slots]
+    sources = result.source_names()
+    extrapolated = bool(result.propagation.extrapolated[: len(lineup.stages), batch].any())
+    unknown = unknown_noise_stages(lineup)
+    readable = _noise_readable(lineup)
+    tones = np.asarray(result.tone_freqs_hz)[batch]
+
+    def noise(f):
+        return output_noise_dbm_hz(lineup, f, tones)
+
+    channels = []  # (rule, carrier index, signed offset, start, stop)
+    beyond_noise = []
+    for rule in mask.adjacent_channels:
+        # Each carrier's own span: its channel under the rule, or its stated spectrum where wider.
+        span = [max(rule.main_bandwidth_hz(b), b or 0.0) / 2.0 for b in stated]
+        occupied, own = [], []
+        for k, fc in enumerate(carriers_hz):
+            for signed, start, stop in zip(*rule.channels_hz(float(fc)), strict=True):
+                where = f"{'+' if signed > 0 else '-'}{bandwidth_text(abs(signed))} of {names[k]}"
+                if abs(signed) - rule.channel_bandwidth_hz / 2.0 < span[k]:
+                    own.append(where)
+                    continue
+                busy = [
+                    names[j]
+                    for j, fj in enumerate(carriers_hz)
+                    if j != k and start < fj + span[j] and stop > fj - span[j]
+                ]
+                if busy:
+                    occupied.append(f"{where} (in {', '.join(busy)}'s channel)")
+                    continue
+                if start <= 0.0:
+                    occupied.append(f"{where} (below 0 Hz)")
+                    continue
+                channels.append((rule, k, float(signed), float(start), float(stop)))
+                if not unknown and not (start >= readable.lo_hz and stop <= readable.hi_hz):
+                    beyond_noise.append(rule.label)
+        if occupied:
+            outcome.notes.append(
+                f"ACPR under {rule.label}: {len(occupied)} channel{'s' * (len(occupied) > 1)} occupied, "
+                f"not judged: {_listed(occupied)}"
+            )
+        if own:
+            outcome.not_judged.append(
+                f"under {rule.label} the channel at {_listed(own)} overlaps its carrier's own channel"
+            )
+    if not channels:
+        return outcome
+    if unknown:
+        outcome.noise_not_judged.append(
+            f"in the adjacent channels (no noise figure for {_listed([repr(u) for u in unknown])}: "
+            "ACPR of the products alone)"
+        )
+    if beyond_noise:
+        outcome.noise_not_judged.append(
+            f"in the adjacent channels under {_listed(sorted(set(beyond_noise)))}: outside "
+            f"{readable.lo_hz:.6g} to {readable.hi_hz:.6g} Hz, the data of stage "
+            f"{', '.join(readable.data_stages)} (ACPR of the products alone there)"
+        )
+    with_noise = np.array(
+        [not unknown and s >= readable.lo_hz and e <= readable.hi_hz for _, _, _, s, e in channels],
+        dtype=bool,
+    )
+    starts = np.array([c[3] for c in channels])
+    stops = np.array([c[4] for c in channels])
+    part = channel_power_dbm(starts, stops, freq, level, spread, noise, noise_in=with_noise)
+    added = []
+    for i, (rule, k, signed, start, stop) in enumerate(channels):
+        noisy = bool(with_noise[i])
+        channel_dbm = float(part.total_dbm[i])
+        carrier_dbm = float(carriers_dbm[k])
+        limit = float(rule.channel_limit_dbm(carrier_dbm))
+        margin = limit - channel_dbm
+        g = int(part.largest[i])
+        noise_dbm = float(part.noise_dbm[i]) if noisy else None
+        stage: str | None
+        if noise_dbm is not None and (g < 0 or noise_dbm > float(part.largest_dbm[i])):
+            stage = "the chain (noise)"
+        else:
+            stage = sources[int(top[g])] if g >= 0 else None
+        centre = 0.5 * (start + stop)
+        side = "upper" if signed > 0 else "lower"
+        contributing = (freq + spread / 2 >= start) & (freq - spread / 2 <= stop)
+        entry = {
+            "rule": rule.label,
+            "limit_form": rule.describe,
+            "rule_source": f"{rule.source} [{rule.status}]",
+            "carrier": names[k],
+            "carrier_hz": float(carriers_hz[k]),
+            "carrier_dbm": carrier_dbm,
+            "carrier_bandwidth_hz": rule.main_bandwidth_hz(stated[k]),
+            "side": side,
+            "offset_hz": signed,
+            "channel_start_hz": start,
+            "channel_stop_hz": stop,
+            "channel_bandwidth_hz": rule.channel_bandwidth_hz,
+            "channel_dbm": channel_dbm,
+            "products_dbm": float(part.products_dbm[i]),
+            "noise_dbm": noise_dbm,
+            "acpr_dbc": channel_dbm - carrier_dbm,
+            "limit_dbc": rule.limit_dbc,
+            "absolute_limit_dbm": rule.absolute_limit_dbm,
+            "limit_dbm": limit,
+            "margin_db": margin,
+            "pass": bool(margin >= 0),
+            "stage": stage,
+            "band": bands_at(mask, centre),
+        }
+        outcome.entries.append(entry)
+        added.append(
+            {
+                "freq_hz": centre,
+                "level_dbm": channel_dbm,
+                "level_in_rbw_dbm": channel_dbm,
+                "bandwidth_hz": rule.channel_bandwidth_hz,
+                "limit_dbm": limit,
+                "margin_db": margin,
+                "pass": entry["pass"],
+                "rule": rule.label,
+                "limit_form": rule.describe,
+                "rbw_hz": rule.channel_bandwidth_hz,
+                "rule_source": entry["rule_source"],
+                "band": entry["band"],
+                "domain": ACPR_DOMAIN,
+                "stage": stage,
+                "order": None,
+                "mix": None,
+                "label": f"ACPR {names[k]} {'+' if signed > 0 else '-'}{bandwidth_text(abs(signed))}",
+                "dbc": entry["acpr_dbc"],
+                "beyond_data": bool((beyond & contributing).any()),
+                "model_extrapolated": extrapolated,
+            }
+        )
+    # The model makes no intermodulation within one carrier's bandwidth (2f1 - f1 is f1):
+    # the spectral regrowth that sets a modulated carrier's ACPR is missing, so a channel
+    # beside one can fail but not be shown to pass.
+    nonlinear = any(st.transfer is not None or st.conversion is not None for st in lineup.stages)
+    modulated = sorted({names[k] for _, k, *_ in channels if stated[k]})
+    if nonlinear and modulated:
+        outcome.not_judged.append(
+            f"the spectral regrowth of {_listed(modulated)} (a modulated carrier's own intermodulation "
+            "is not modelled: products and noise only)"
+        )
+    outcome.entries.sort(key=lambda e: (e["margin_db"], e["carrier_hz"] + e["offset_hz"]))
+    _merge_rows(out, added)
+    return outcome
 
 
 @dataclass(frozen=True)

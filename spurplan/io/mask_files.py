@@ -29,10 +29,21 @@ File format (one rule set or band list per file)::
     name = "..."; start = "..."; stop = "..."; status = "..."
     limit = "..."; rbw = "..."           # optional: the band's own limit
 
+    [[adjacent_channel]]                 # adjacent-channel power ratio (ACPR)
+    name = "..."
+    channel_bandwidth = "16 kHz"         # bandwidth of each adjacent channel
+    offsets = ["25 kHz", "50 kHz"]       # channel centre from the carrier's centre; both sides
+    limit = "-60 dBc"                    # channel power less the carrier's power; and/or
+    absolute_limit = "-36 dBm"           # the channel power itself (both stated: both hold)
+    carrier_bandwidth = "16 kHz"         # optional: the carrier's own channel (default: the
+                                         # carrier's bandwidth, else channel_bandwidth)
+    status = "..."; source = "..."       # as [[rule]]
+
 The lineup's ``[mask]`` table takes ``use`` (names of shipped sets, or tables
 ``{ name = "...", limit = "...", rbw = "..." }`` that give a band list a limit),
 ``files`` (paths of users' own files, relative to the lineup), ``antenna_gain``,
-``spurious_boundary``, and inline ``[[mask.rule]]`` / ``[[mask.band]]`` tables.
+``spurious_boundary``, and inline ``[[mask.rule]]`` / ``[[mask.band]]`` /
+``[[mask.adjacent_channel]]`` tables.
 """
 
 from __future__ import annotations
@@ -46,7 +57,18 @@ from pathlib import Path
 from spurplan.errors import LineupError, UnitError
 from spurplan.fields import CARRIER_POWER, Fields, Within, _did_you_mean, existing_file, read_toml
 from spurplan.io.resources import data_dir
-from spurplan.model.masks import DOMAINS, STATUSES, Band, Examined, Mask, Rule, RuleKind, RuleSet
+from spurplan.model.masks import (
+    DOMAINS,
+    STATUSES,
+    AdjacentChannelRule,
+    Band,
+    Examined,
+    Mask,
+    Rule,
+    RuleKind,
+    RuleSet,
+    bandwidth_text,
+)
 from spurplan.units import (
     check_value_length,
     parse_dbc,
@@ -151,7 +173,7 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
     file = str(path)
     doc = read_toml(path, "a rule set file")
     top = Fields(doc, file, "")
-    for key in ("ruleset", "rule", "band"):
+    for key in ("ruleset", "rule", "band", "adjacent_channel"):
         top.raw(key)
     top.finish()
     head = Fields(doc.get("ruleset", {}), file, "[ruleset]")
@@ -178,8 +200,19 @@ def load_ruleset(path: str | Path, resolve=None) -> RuleSet:
         read_band(Fields(t, file, f"band {i}"), origin=name, default_source=source, delegated=delegated)
         for i, t in enumerate(_tables(doc, "band", file), start=1)
     )
+    adjacent = tuple(
+        read_adjacent_channel(Fields(t, file, f"adjacent_channel {i}"), origin=name, default_source=source)
+        for i, t in enumerate(_tables(doc, "adjacent_channel", file), start=1)
+    )
     return RuleSet(
-        name=name, title=title, source=source, rules=rules, bands=bands, examined=examined, notes=notes
+        name=name,
+        title=title,
+        source=source,
+        rules=rules,
+        bands=bands,
+        examined=examined,
+        notes=notes,
+        adjacent_channels=adjacent,
     )
 
 
@@ -552,6 +585,119 @@ def read_band(
     )
 
 
+# Channel bandwidths of ACPR limits run from a few kHz (land mobile) to some 100 MHz
+# (wideband cellular carriers); 1 Hz to 10 GHz is where a value stops being a slip
+# (common practice, no source).
+CHANNEL_BANDWIDTH = Within("a channel bandwidth", 1.0, 10e9, "Hz")
+# Adjacent and alternate channels, and a few beyond: a handful of offsets per rule.
+MAX_CHANNEL_OFFSETS = 16
+
+
+def read_adjacent_channel(
+    f: Fields, origin: str, default_source: str, status_required: bool = True
+) -> AdjacentChannelRule:
+    """One ``[[adjacent_channel]]`` table (a rule file's, or ``[[mask.adjacent_channel]]``).
+
+    Parameters
+    ----------
+    f : Fields
+        The table.
+    origin : str
+        Name of the set the rule belongs to (``"lineup"`` for a lineup's own rules).
+    default_source : str
+        The source cited when the rule gives none (the set's ``source``).
+    status_required : bool, optional
+        Whether ``status`` must be given; when not, an absent one is ``"user"``.
+
+    Returns
+    -------
+    AdjacentChannelRule
+        Bandwidths and offsets in Hz, ``limit`` in dBc, ``absolute_limit`` in dBm.
+
+    Raises
+    ------
+    LineupError
+        A missing, unknown, malformed or implausible key; offsets that do not increase, or
+        a channel that reaches the carrier's centre (or its own channel, when
+        ``carrier_bandwidth`` is stated).
+    """
+    name = f.text("name", default=f.where)
+    channel = f.quantity("channel_bandwidth", parse_freq_hz, required=True)
+    if channel <= 0:
+        raise f.error(
+            "channel_bandwidth", f"{f.raw('channel_bandwidth')!r}: expected a channel bandwidth > 0 Hz"
+        )
+    f.require_within("channel_bandwidth", channel, CHANNEL_BANDWIDTH)
+    main = f.quantity("carrier_bandwidth", parse_freq_hz)
+    if main is not None and main <= 0:
+        raise f.error(
+            "carrier_bandwidth", f"{f.raw('carrier_bandwidth')!r}: expected a carrier bandwidth > 0 Hz"
+        )
+    if main is not None:
+        f.require_within("carrier_bandwidth", main, replace(CHANNEL_BANDWIDTH, what="a carrier bandwidth"))
+    offsets = _channel_offsets(f, channel, main)
+    limit = f.quantity("limit", parse_dbc, within=RELATIVE_LIMIT)
+    absolute = f.quantity("absolute_limit", parse_power_dbm, within=ABSOLUTE_LIMIT)
+    if limit is None and absolute is None:
+        raise f.error(
+            "limit",
+            "is required: expected a limit such as '-60 dBc' and/or an absolute_limit such as '-36 dBm'",
+        )
+    status = _status(f, required=status_required)
+    source = f.text("source", default=default_source) or default_source
+    f.finish()
+    return AdjacentChannelRule(
+        name=name,
+        channel_bandwidth_hz=channel,
+        offsets_hz=offsets,
+        limit_dbc=limit,
+        absolute_limit_dbm=absolute,
+        carrier_bandwidth_hz=main,
+        source=source,
+        status=status,
+        origin=origin,
+    )
+
+
+def _channel_offsets(f: Fields, channel_hz: float, main_hz: float | None) -> tuple[float, ...]:
+    """``offsets = ["25 kHz", "50 kHz"]``: 1 to :data:`MAX_CHANNEL_OFFSETS` offsets in Hz,
+    increasing, each far enough out that its channel stays clear of the carrier's centre
+    (and of the carrier's own channel of ``main_hz``, when stated)."""
+    raw = f.raw("offsets")
+    shape = 'expected a list of channel offsets such as ["25 kHz", "50 kHz"]'
+    if raw is None:
+        raise f.error("offsets", f"is required: {shape}")
+    if not isinstance(raw, list) or not 1 <= len(raw) <= MAX_CHANNEL_OFFSETS:
+        raise f.error("offsets", f"{str(raw)[:120]}: {shape} (1 to {MAX_CHANNEL_OFFSETS} of them)")
+    # The channel [o - B/2, o + B/2] must not reach the carrier's own channel [-W/2, W/2]
+    # (W: carrier_bandwidth, or 0 when the carrier's is not known yet): o >= (B + W) / 2.
+    clear = (channel_hz + (main_hz or 0.0)) / 2.0
+    out: list[float] = []
+    for item in raw:
+        try:
+            offset = parse_freq_hz(item)
+        except UnitError as exc:
+            raise f.error("offsets", str(exc)) from None
+        if offset not in OFFSET:
+            raise f.error("offsets", f"{item!r}: {OFFSET.expected()}")
+        if main_hz is None and not offset > clear:
+            raise f.error(
+                "offsets",
+                f"{item!r}: expected an offset above half the channel bandwidth ({bandwidth_text(clear)}), "
+                "so that the channel does not reach the carrier's centre",
+            )
+        if main_hz is not None and offset < clear:
+            raise f.error(
+                "offsets",
+                f"{item!r}: expected an offset of at least (channel_bandwidth + carrier_bandwidth) / 2 "
+                f"= {bandwidth_text(clear)}, so that the channel does not overlap the carrier's own",
+            )
+        if out and offset <= out[-1]:
+            raise f.error("offsets", f"{item!r}: expected offsets that increase")
+        out.append(offset)
+    return tuple(out)
+
+
 def _clip(rule: Rule, start: float, stop: float, band: str) -> Rule:
     return replace(
         rule,
@@ -616,7 +762,16 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
         )
         for i, t in enumerate(_list(f, "band"), start=1)
     )
-    if inline_rules or inline_bands:
+    inline_adjacent = tuple(
+        read_adjacent_channel(
+            Fields(t, file, f"[[mask.adjacent_channel]] {i}"),
+            origin="lineup",
+            default_source="lineup file",
+            status_required=False,
+        )
+        for i, t in enumerate(_list(f, "adjacent_channel"), start=1)
+    )
+    if inline_rules or inline_bands or inline_adjacent:
         sets.append(
             RuleSet(
                 name="lineup",
@@ -624,6 +779,7 @@ def read_mask(table, file: str, base_dir: Path) -> Mask:
                 source=file,
                 rules=inline_rules,
                 bands=inline_bands,
+                adjacent_channels=inline_adjacent,
             )
         )
     gain = _antenna_gain(f)

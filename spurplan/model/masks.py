@@ -20,6 +20,11 @@ range) and ``when_power_dbm`` (the carrier's mean power range), as in 47 CFR 97.
 Where rules overlap the most stringent holds: the one that leaves the least
 margin for the product at hand (reference bandwidths may differ).
 
+An :class:`AdjacentChannelRule` limits the power in channels beside each carrier
+rather than a product's level: the adjacent-channel power ratio (ACPR), the power in
+a channel of stated bandwidth centred at stated offsets either side of the carrier,
+relative to the carrier's own power (dBc), and optionally that power in dBm.
+
 A product of carriers with occupied bandwidths ``B_k`` spreads over about
 ``sum |m_k| B_k`` (an approximation: the convolution of the carrier spectra has that
 width; carriers without a bandwidth are CW).  Wider than the rule's reference
@@ -233,11 +238,11 @@ class Rule:
     @property
     def describe(self) -> str:
         """Short human form of the limit, e.g. ``-36 dBm/100 kHz``."""
-        bw = "" if self.rbw_hz is None else f"/{_bw(self.rbw_hz)}"
+        bw = "" if self.rbw_hz is None else f"/{bandwidth_text(self.rbw_hz)}"
         if self.offsets:
 
             def at(o: float) -> str:
-                return f"{100 * o:g} %" if self.offsets_of_bandwidth else (_bw(o) if o else "0 Hz")
+                return f"{100 * o:g} %" if self.offsets_of_bandwidth else (bandwidth_text(o) if o else "0 Hz")
 
             points = ", ".join(f"{d:g} dBc at {at(o)}" for o, d in self.offsets)
             return f"{points}{bw}"
@@ -250,6 +255,134 @@ class Rule:
             return f"{self.value:g}+10logP dB{cap}{bw}"
         value = f"{10 ** (self.value / 20):.6g}/F(kHz) uV/m" if self.per_khz else f"{self.value:.4g} dBuV/m"
         return f"{value} @ {self.distance_m:g} m{bw}"
+
+
+@dataclass(frozen=True)
+class AdjacentChannelRule:
+    """A limit on the power in the channels beside every carrier (ACPR).
+
+    For a carrier at ``f_c`` each offset ``o`` gives two channels, the lower one
+    ``[f_c - o - B/2, f_c - o + B/2]`` and the upper one ``[f_c + o - B/2, f_c + o + B/2]``
+    with ``B`` the channel bandwidth.  The power in a channel ``P_ch`` less the
+    carrier's own power ``P_c`` is the adjacent-channel power ratio, ``ACPR = P_ch - P_c``
+    (dBc).  Where both limits are stated both must hold, so the more stringent one
+    decides (:meth:`channel_limit_dbm`); a rule that allows the less stringent of two
+    figures is not of this form.
+
+    Attributes
+    ----------
+    name : str
+    channel_bandwidth_hz : float
+        Bandwidth of each adjacent channel (Hz).
+    offsets_hz : tuple of float
+        Offsets of the adjacent channels' centres from the carrier's centre (Hz), > 0,
+        increasing; each is judged on both sides.
+    limit_dbc : float or None
+        Highest ACPR (dBc); ``None`` for none.
+    absolute_limit_dbm : float or None
+        Highest power in the channel (dBm); ``None`` for none.  At least one of the two
+        limits is stated.
+    carrier_bandwidth_hz : float or None
+        Bandwidth of the carrier's own (main) channel (Hz); ``None`` takes the carrier's
+        stated bandwidth, else the channel bandwidth (:meth:`main_bandwidth_hz`).
+    source : str
+        Document, section, edition.
+    status : str
+        One of :data:`STATUSES`: how the values were checked.
+    origin : str
+        The rule set (file) or ``"lineup"`` it came from.
+    """
+
+    name: str
+    channel_bandwidth_hz: float
+    offsets_hz: tuple[float, ...]
+    limit_dbc: float | None = None
+    absolute_limit_dbm: float | None = None
+    carrier_bandwidth_hz: float | None = None
+    source: str = ""
+    status: str = "user"
+    origin: str = "lineup"
+
+    @property
+    def label(self) -> str:
+        """How outputs name the rule: ``"origin: name"``."""
+        return f"{self.origin}: {self.name}"
+
+    def main_bandwidth_hz(self, stated_hz: float | None) -> float:
+        """Bandwidth (Hz) of a carrier's own channel under this rule.
+
+        Parameters
+        ----------
+        stated_hz : float or None
+            The carrier's stated occupied bandwidth (Hz), ``None`` for a CW carrier.
+
+        Returns
+        -------
+        float
+            :attr:`carrier_bandwidth_hz` when the rule states one, else ``stated_hz``, else
+            the channel bandwidth (a CW carrier is measured in a channel like its
+            neighbours; common practice, no source).
+        """
+        if self.carrier_bandwidth_hz is not None:
+            return self.carrier_bandwidth_hz
+        return stated_hz if stated_hz else self.channel_bandwidth_hz
+
+    def channels_hz(self, carrier_hz: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The adjacent channels of a carrier at ``carrier_hz``: lower side first, each
+        side in offset order.
+
+        Parameters
+        ----------
+        carrier_hz : float
+            The carrier's centre frequency (Hz).
+
+        Returns
+        -------
+        offset_hz, start_hz, stop_hz : ndarray, shape (2 N,)
+            Signed offset of each channel's centre from the carrier (Hz; negative below
+            it) and the channel's edges (Hz).
+        """
+        offsets = np.asarray(self.offsets_hz, dtype=float)
+        signed = np.concatenate([-offsets, offsets])
+        centre = carrier_hz + signed
+        half = self.channel_bandwidth_hz / 2.0
+        return signed, centre - half, centre + half
+
+    def channel_limit_dbm(self, carrier_dbm) -> np.ndarray:
+        """The power (dBm) a channel may hold beside a carrier of ``carrier_dbm``.
+
+        ``min(P_c + limit_dbc, absolute_limit_dbm)`` over the limits stated: both hold,
+        and in dB the margin to each is that limit less the channel power, so the lower
+        one leaves the least margin.
+
+        Parameters
+        ----------
+        carrier_dbm : float or array_like
+            The carrier's power (dBm).
+
+        Returns
+        -------
+        ndarray
+            The limit (dBm), the shape of ``carrier_dbm``.
+        """
+        p = np.asarray(carrier_dbm, dtype=float)
+        limit = np.full(p.shape, np.inf)
+        if self.limit_dbc is not None:
+            limit = np.minimum(limit, p + self.limit_dbc)
+        if self.absolute_limit_dbm is not None:
+            limit = np.minimum(limit, self.absolute_limit_dbm)
+        return limit
+
+    @property
+    def describe(self) -> str:
+        """Short human form, e.g. ``-60 dBc, -36 dBm in 16 kHz at +/-25 kHz, +/-50 kHz``."""
+        limits = [
+            f"{v:g} {u}"
+            for v, u in ((self.limit_dbc, "dBc"), (self.absolute_limit_dbm, "dBm"))
+            if v is not None
+        ]
+        at = ", ".join(f"+/-{bandwidth_text(o)}" for o in self.offsets_hz)
+        return f"{', '.join(limits)} in {bandwidth_text(self.channel_bandwidth_hz)} at {at}"
 
 
 def field_to_eirp_dbm(field_dbuv_m, distance_m: float):
@@ -272,7 +405,8 @@ def field_to_eirp_dbm(field_dbuv_m, distance_m: float):
     return np.asarray(field_dbuv_m, dtype=float) - FIELD_CONSTANT_DB + 20.0 * math.log10(distance_m)
 
 
-def _bw(hz: float) -> str:
+def bandwidth_text(hz: float) -> str:
+    """A bandwidth or offset (Hz) in the unit that reads best: ``"25 kHz"``, ``"1.5 MHz"``."""
     for scale, unit in ((1e6, "MHz"), (1e3, "kHz")):
         if hz >= scale:
             return f"{hz / scale:g} {unit}"
@@ -315,7 +449,7 @@ class Examined:
 
 @dataclass(frozen=True)
 class RuleSet:
-    """Rules and bands from one file (shipped in ``bands/``, or the user's)."""
+    """Rules, bands and adjacent-channel (ACPR) rules from one file (shipped in ``bands/``, or the user's)."""
 
     name: str
     title: str
@@ -324,6 +458,7 @@ class RuleSet:
     bands: tuple[Band, ...] = ()
     examined: Examined = Examined()
     notes: str = ""
+    adjacent_channels: tuple[AdjacentChannelRule, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -355,6 +490,11 @@ class Mask:
     @property
     def bands(self) -> list[Band]:
         return [b for s in self.sets for b in s.bands]
+
+    @property
+    def adjacent_channels(self) -> list[AdjacentChannelRule]:
+        """Every set's adjacent-channel (ACPR) rules."""
+        return [a for s in self.sets for a in s.adjacent_channels]
 
     def antenna_gain_dbi(self, freq_hz: np.ndarray) -> np.ndarray:
         f = np.asarray(freq_hz, dtype=float)

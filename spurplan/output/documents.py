@@ -13,7 +13,7 @@ import html
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from spurplan.analyses.check import NOISE_LABEL
+from spurplan.analyses.check import ACPR_DOMAIN, NOISE_LABEL
 from spurplan.notices import PLANNING_NOTICE
 from spurplan.output.formatting import html_table, to_csv, to_json
 from spurplan.output.provenance import provenance
@@ -155,6 +155,7 @@ def check_summary(outcome: CheckResult) -> dict:
         "complete": outcome.complete,
         "unjudged_out_of_band": len(outcome.unjudged_rows),
         "noise_not_judged": list(outcome.noise_not_judged),
+        "acpr_not_judged": list(outcome.acpr_not_judged),
         "missing_figures": [{"stage": st, "figure": what} for st, what in outcome.missing_figures],
         "figures_met": not outcome.figures_missed,
         "figure_checks": figure_check_rows(lineup),
@@ -174,7 +175,8 @@ def check_summary(outcome: CheckResult) -> dict:
 def check_document(outcome: CheckResult) -> Document:
     """:func:`check_summary` and the checked products under ``"products"``; the output
     noise judged under each rule (one row per rule, where it leaves the least margin)
-    under the summary's ``"noise"``.
+    under the summary's ``"noise"``, and every adjacent channel an ACPR rule judges
+    (:data:`spurplan.analyses.check.ACPR_KEYS`) under its ``"acpr"``.
 
     Parameters
     ----------
@@ -187,10 +189,12 @@ def check_document(outcome: CheckResult) -> Document:
     """
     rows = outcome.rows
     noise = [i for i, label in enumerate(rows["label"]) if label == NOISE_LABEL]
-    skip = set(noise)
+    acpr = {i for i, domain in enumerate(rows["domain"]) if domain == ACPR_DOMAIN}
+    skip = set(noise) | acpr
     products = {c: [v for i, v in enumerate(col) if i not in skip] for c, col in rows.items()}
     summary = check_summary(outcome)
     summary["noise"] = [{c: rows[c][i] for c in rows if c not in ("order", "mix")} for i in noise]
+    summary["acpr"] = [dict(entry) for entry in outcome.acpr]
     return Document(summary, "products", products)
 
 

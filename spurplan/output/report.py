@@ -372,7 +372,10 @@ def _assumptions_section(lineup) -> Section:
             "name": [s.name for s in sets],
             "title": [s.title for s in sets],
             "source": [s.source for s in sets],
-            "status": [", ".join(sorted({e.status for e in (*s.rules, *s.bands)})) for s in sets],
+            "status": [
+                ", ".join(sorted({e.status for e in (*s.rules, *s.bands, *s.adjacent_channels)}))
+                for s in sets
+            ],
         }
         sec.parts.append(("text", "Rule sets and band lists used, with their sources:"))
         sec.parts.append(_table(cols, RULESET_TABLE))

@@ -53,8 +53,9 @@ def model_caveat(lineup) -> str:
     return f"; {word}: {model_gaps(missing, missed)}"
 
 
-# Sweeps and yield judge the discrete products; the output noise only check judges.
-PRODUCTS_ONLY = " (products only: check judges the noise)"
+# Sweeps and yield judge the discrete products; the output noise and adjacent-channel
+# power only check judges.
+PRODUCTS_ONLY = " (products only: check judges the noise and ACPR)"
 
 
 def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
