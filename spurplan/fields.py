@@ -86,6 +86,45 @@ def read_text_file(path, what: str, max_bytes: int) -> str:
         One line naming the file, what is wrong and ``what`` was expected
         (e.g. "a lineup file (TOML)").
     """
+    data = read_file_bytes(path, what, max_bytes)
+    name = str(path)
+
+    def refuse(message: str) -> LineupError:
+        return LineupError(f"{message}: expected {what}", file=name)
+
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        raise refuse(f"holds a NUL byte at byte {nul} (binary data, not text)")
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise refuse(f"is not UTF-8 text (byte 0x{data[exc.start]:02x} at byte {exc.start})") from None
+
+
+def read_file_bytes(path, what: str, max_bytes: int) -> bytes:
+    """The bytes of a regular file of at most ``max_bytes`` bytes (binary data: ``.npy``).
+
+    The same limits as :func:`read_text_file` (only a regular file is opened, without a
+    read that could block; at most ``max_bytes + 1`` bytes are read), without decoding.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The file to read.
+    what : str
+        What the file was expected to be, for the message.
+    max_bytes : int
+        Largest size accepted (bytes).
+
+    Returns
+    -------
+    bytes
+
+    Raises
+    ------
+    LineupError
+        One line naming the file, what is wrong and what was expected.
+    """
     name = str(path)
 
     def refuse(message: str) -> LineupError:
@@ -120,13 +159,7 @@ def read_text_file(path, what: str, max_bytes: int) -> str:
             raise refuse(f"cannot read ({exc.__class__.__name__})") from None
     if len(data) > max_bytes:
         raise LineupError(f"is larger than {_bytes(max_bytes)}: expected {what} of at most that", file=name)
-    nul = data.find(b"\x00")
-    if nul >= 0:
-        raise refuse(f"holds a NUL byte at byte {nul} (binary data, not text)")
-    try:
-        return data.decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        raise refuse(f"is not UTF-8 text (byte 0x{data[exc.start]:02x} at byte {exc.start})") from None
+    return data
 
 
 def _bytes(n: int) -> str:

@@ -28,9 +28,13 @@ import numpy as np
 
 from spurplan.errors import LineupError
 from spurplan.model.masks import bandwidth_text
+from spurplan.model.products import label
 
-if TYPE_CHECKING:  # annotations only; the check runs on a Result it is handed
+if TYPE_CHECKING:
     from spurplan.engine.result import Result
+    from spurplan.engine.spectra import (
+        LineSpectrum,
+    )  # annotations only; the check runs on a Result it is handed
 
 CHECK_COLUMNS = [
     "freq_hz",
@@ -82,6 +86,8 @@ class CheckResult:
         Adjacent channels an ACPR rule asks for but the check cannot judge (a channel
         that overlaps its own carrier's, a modulated carrier whose own spectral regrowth
         the model leaves out): the status is then INCOMPLETE.
+    spectrum : LineSpectrum or None
+        With modulated carriers, the output's line spectrum the rows were judged on.
     """
 
     result: Result
@@ -92,6 +98,7 @@ class CheckResult:
     notes: tuple[str, ...]
     noise_not_judged: tuple[str, ...] = ()
     acpr: tuple[dict, ...] = ()
+    spectrum: LineSpectrum | None = None
     acpr_not_judged: tuple[str, ...] = ()
 
     @property
@@ -330,7 +337,7 @@ def require_mask(lineup):
     return mask
 
 
-def evaluate(lineup, result, levels) -> MaskEvaluation:
+def evaluate(lineup, result, levels, in_rbw_dbm=None) -> MaskEvaluation:
     """Apply the lineup's mask to node levels of a run (every batch element at once).
 
     Parameters
@@ -340,6 +347,10 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
         The run (its tone frequencies per batch element follow a tuning sweep).
     levels : NodeLevels
         Output-node levels of that run (:meth:`Result.levels`), shape (B, G).
+    in_rbw_dbm : callable, optional
+        ``in_rbw_dbm(rbw_hz) -> (B, G)``: each slot's level in a reference bandwidth, for
+        slots that are lines of a spectrum (:class:`spurplan.engine.spectra.LineSpectrum`);
+        default the product's whole power, spread over ``sum |m_k| B_k``.
 
     Returns
     -------
@@ -392,7 +403,9 @@ def evaluate(lineup, result, levels) -> MaskEvaluation:
         if not covers.any():
             continue
         in_rbw = level
-        if rule.rbw_hz is not None:
+        if rule.rbw_hz is not None and in_rbw_dbm is not None:
+            in_rbw = in_rbw_dbm(rule.rbw_hz)
+        elif rule.rbw_hz is not None:
             with np.errstate(divide="ignore", invalid="ignore"):
                 in_rbw = level - np.where(
                     bandwidth > rule.rbw_hz, 10 * np.log10(bandwidth / rule.rbw_hz), 0.0
@@ -447,6 +460,10 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
     """
     mask = require_mask(lineup)
     result = result if result is not None else lineup.run()
+    from spurplan.engine.spectra import is_modulated
+
+    if is_modulated(lineup):
+        return _check_spectrum(lineup, mask, result, combine)
     rows = result.product_rows(None, combine, batch)
     sel = slice(batch, batch + 1)
     levels = result.levels(None, combine, rows=sel)
@@ -804,15 +821,20 @@ def _listed(items: list[str], most: int = 3) -> str:
     return ", ".join(items[:most]) + (", ..." if len(items) > most else "")
 
 
-def _add_acpr_rows(out, lineup, mask, result, levels, spread_hz, batch) -> _AcprOutcome:
+def _add_acpr_rows(
+    out, lineup, mask, result, levels, spread_hz, batch, carriers_dbm=None, regrowth_modelled: bool = False
+) -> _AcprOutcome:
     """One row per adjacent-channel rule, output carrier, offset and side: the channel's
     power (:func:`channel_power_dbm`) against the rule; rows go into ``out`` in margin order.
 
     ``levels`` are the output levels of the checked batch element (one row), ``spread_hz``
     each slot's spread (Hz).  A channel that overlaps another carrier's own channel is
     occupied and skipped (a note); one that overlaps its own carrier's channel cannot be
-    judged as the rule states it, and neither can a modulated carrier's own spectral
-    regrowth, which the model does not make: both keep the check from PASS.  Without a
+    judged as the rule states it, and neither can a carrier's own spectral regrowth where
+    the model does not make it (a bandwidth without a ``modulation``): both keep the check
+    from PASS.  ``carriers_dbm`` overrides the carriers' output powers (a modulated
+    lineup's, from its spectrum); ``regrowth_modelled`` says the levels are a spectrum's
+    lines, regrowth included.  Without a
     noise figure for every active stage, or beyond a data-based stage's data, a channel's
     power is its products' alone, and the noise in it is not judged.
     """
@@ -822,7 +844,8 @@ def _add_acpr_rows(out, lineup, mask, result, levels, spread_hz, batch) -> _Acpr
     if not mask.adjacent_channels:
         return outcome
     carriers_hz = result.carrier_freqs_hz()[batch]
-    carriers_dbm = result.carrier_levels_dbm(None, batch)
+    if carriers_dbm is None:
+        carriers_dbm = result.carrier_levels_dbm(None, batch)
     stated = [c.bandwidth_hz for c in lineup.carriers]
     names = _carrier_names(lineup)
     slots = levels.valid[0] & ~levels.is_carrier[0]
@@ -963,8 +986,10 @@ def _add_acpr_rows(out, lineup, mask, result, levels, spread_hz, batch) -> _Acpr
     # the spectral regrowth that sets a modulated carrier's ACPR is missing, so a channel
     # beside one can fail but not be shown to pass.
     nonlinear = any(st.transfer is not None or st.conversion is not None for st in lineup.stages)
-    modulated = sorted({names[k] for _, k, *_ in channels if stated[k]})
-    if nonlinear and modulated:
+    modulated = sorted(
+        {names[k] for _, k, *_ in channels if stated[k] and lineup.carriers[k].modulation is None}
+    )
+    if nonlinear and modulated and not regrowth_modelled:
         outcome.not_judged.append(
             f"the spectral regrowth of {_listed(modulated)} (a modulated carrier's own intermodulation "
             "is not modelled: products and noise only)"
@@ -987,6 +1012,169 @@ class _Rows:
     @property
     def mix(self):
         return self.result.mix
+
+
+class _SpectrumRows:
+    """What :func:`evaluate` reads of a modulated lineup's spectrum: the carriers' output
+    frequencies, and no spread of the lines (each is a line of the density)."""
+
+    def __init__(self, result, n_lines: int):
+        self.result = result
+        self.mix = np.zeros((n_lines, result.mix.shape[1]), dtype=np.int64)
+
+    def carrier_freqs_hz(self):
+        return self.result.carrier_freqs_hz()[:1]
+
+
+def _spectrum_levels(spec):
+    """A :class:`~spurplan.engine.node_table.NodeLevels` (one row) of a spectrum's lines."""
+    from spurplan.engine.node_table import NodeLevels
+
+    n = len(spec.freq_hz)
+    carrier = spec.is_carrier[None, :]
+    ref = np.max(np.where(spec.is_carrier, spec.power_dbm, -np.inf))
+    return NodeLevels(
+        freq_hz=spec.freq_hz[None, :],
+        level_dbm=spec.power_dbm[None, :],
+        valid=np.ones((1, n), dtype=bool),
+        is_carrier=carrier,
+        beyond=np.zeros((1, n), dtype=bool),
+        rep=np.arange(n)[None, :],
+        sign=np.ones((1, n), dtype=int),
+        members=np.ones((1, n), dtype=int),
+        top_source=spec.top_source[None, :],
+        group=np.arange(n)[None, :],
+        carrier_ref_dbm=np.array([ref]),
+    )
+
+
+def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
+    """The check of a lineup with modulated carriers: every line of the output spectrum
+    (:func:`spurplan.engine.spectra.line_spectrum`) is judged in each rule's reference
+    bandwidth, and the table holds one row per cluster of lines and domain (a harmonic
+    zone, the regrowth on one side of a carrier, an intermodulation band) at its least
+    margin.  ``result`` is the lineup's CW run (carrier frequencies, budget, figures)."""
+    from spurplan.engine.spectra import expand, spectrum_of
+
+    ex = expand(lineup)
+    spec_result = ex.lineup.run(carrier_phasors_v=ex.phasors_v)
+    spec = spectrum_of(spec_result, ex, None, combine)
+    levels = _spectrum_levels(spec)
+    ev = evaluate(
+        lineup, _SpectrumRows(result, len(spec.freq_hz)), levels, lambda rbw: spec.in_rbw_dbm(rbw)[None, :]
+    )
+    names = lineup.tone_names
+    sources = result.source_names()
+    extrapolated = bool(spec_result.propagation.extrapolated.any())
+    ref = float(levels.carrier_ref_dbm[0])
+    unwanted = np.nonzero(~spec.is_carrier)[0]
+    gap = max([c.bandwidth_hz or 0.0 for c in lineup.carriers] + [2 * spec.step_hz])
+    f = spec.freq_hz[unwanted]
+    cluster = np.cumsum(np.r_[True, np.diff(f) > gap]) - 1 if len(f) else np.zeros(0, dtype=int)
+    domain = ev.domain[0, unwanted]
+    out: dict[str, list] = {c: [] for c in CHECK_COLUMNS}
+    added = []
+    for c in np.unique(cluster):
+        for d in np.unique(domain[cluster == c]):
+            members = unwanted[(cluster == c) & (domain == d)]
+            judged = members[ev.rule[0, members] >= 0]
+            strongest = members[np.argmax(spec.power_dbm[members])]
+            g = judged[np.argmin(ev.margin_db[0, judged])] if judged.size else strongest
+            j = int(ev.rule[0, g])
+            rule = ev.rules[j][0] if j >= 0 else None
+            with np.errstate(divide="ignore"):
+                total = float(10 * np.log10(np.sum(10 ** (spec.power_dbm[members] / 10))))
+            mix = spec.mix[strongest]
+            added.append(
+                {
+                    "freq_hz": float(spec.freq_hz[g]),
+                    "level_dbm": total,
+                    "level_in_rbw_dbm": float(ev.level_in_rbw_dbm[0, g]) if rule else None,
+                    "bandwidth_hz": float(
+                        spec.freq_hz[members].max() - spec.freq_hz[members].min() + spec.step_hz
+                    ),
+                    "limit_dbm": float(ev.limit_dbm[0, g]) if rule else None,
+                    "margin_db": float(ev.margin_db[0, g]) if rule else None,
+                    "pass": bool(ev.margin_db[0, g] >= 0) if rule else None,
+                    "rule": rule.label if rule else None,
+                    "limit_form": rule.describe if rule else None,
+                    "rbw_hz": rule.rbw_hz if rule else None,
+                    "rule_source": f"{rule.source} [{rule.status}]" if rule else None,
+                    "band": bands_at(mask, float(spec.freq_hz[g])),
+                    "domain": DOMAINS[int(d)],
+                    "stage": sources[int(spec.top_source[strongest])],
+                    "order": int(np.abs(mix).sum()),
+                    "mix": mix.tolist(),
+                    "label": _cluster_label(mix, names, float(spec.freq_hz[g]), result),
+                    "dbc": total - ref,
+                    "beyond_data": False,
+                    "model_extrapolated": extrapolated,
+                }
+            )
+    added.sort(
+        key=lambda r: (
+            r["margin_db"] is None,
+            r["margin_db"] if r["margin_db"] is not None else 0.0,
+            r["freq_hz"],
+        )
+    )
+    _merge_rows(out, added)
+    f_highest = highest_output_carrier_hz(result, 0)
+    carrier_dbm = float(ev.carrier_dbm[0])
+    noise_not_judged = _add_noise_rows(out, lineup, mask, result, 0, carrier_dbm, f_highest, ev.rules)
+    owners = np.argmax(np.abs(spec.mix[:, len(lineup.mixers) :]), axis=1)
+    carriers_dbm = np.array([_carrier_power_dbm(spec, owners, k) for k in range(len(lineup.carriers))])
+    acpr = _add_acpr_rows(
+        out, lineup, mask, result, levels, np.zeros(len(spec.freq_hz)), 0, carriers_dbm, True
+    )
+    margins = [m for m in out["margin_db"] if m is not None]
+    worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
+    return CheckResult(
+        result=result,
+        rows=out,
+        passed=all(m >= 0 for m in margins),
+        worst=worst,
+        carrier_dbm=carrier_dbm,
+        notes=tuple(_coverage_notes(lineup, mask, f_highest) + acpr.notes + [_spectrum_note(lineup, spec)]),
+        noise_not_judged=tuple(noise_not_judged + acpr.noise_not_judged),
+        acpr=tuple(acpr.entries),
+        acpr_not_judged=tuple(acpr.not_judged),
+        spectrum=spec,
+    )
+
+
+def _cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:
+    """A cluster's name: the product its strongest line belongs to, with the multisines'
+    tones read as their carriers (``2f1 zone``, ``f1-f2 zone``), the spectral regrowth of
+    a carrier (``f1 regrowth above``) or the band of its tones' differences."""
+    if not np.any(mix):
+        return "difference band"
+    carriers = result.lineup.carrier_vectors()
+    for k, v in enumerate(carriers):
+        if np.array_equal(mix, v) or np.array_equal(mix, -v):
+            side = "above" if freq_hz > float(result.carrier_freqs_hz()[0, k]) else "below"
+            return f"{label(mix, names)} regrowth {side}"
+    return f"{label(mix, names)} zone"
+
+
+def _carrier_power_dbm(spec, owners: np.ndarray, k: int) -> float:
+    """Output power (dBm) of carrier ``k``: its lines, in-band distortion included."""
+    take = spec.is_carrier & (owners == k)
+    with np.errstate(divide="ignore"):
+        return float(10 * np.log10(np.sum(10 ** (spec.power_dbm[take] / 10))))
+
+
+def _spectrum_note(lineup, spec) -> str:
+    """How the modulated carriers were modelled, for the notes."""
+    parts = [
+        f"{name}: {c.modulation.describe()}"
+        for name, c in zip(_carrier_names(lineup), lineup.carriers, strict=True)
+        if c.modulation is not None
+    ]
+    return (
+        f"modulated carriers run as multisines ({'; '.join(parts)}); the spectrum is judged line by line "
+        f"(density on a {spec.step_hz:.6g} Hz raster), one row per cluster of lines"
+    )
 
 
 def output_carrier_hz(result, batch: int = 0) -> float:

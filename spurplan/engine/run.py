@@ -36,7 +36,9 @@ SETTLE_DB = 0.01
 SETTLE_FLOOR = 1e-10
 
 
-def run(lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None, carrier_phasors_v=None) -> Result:
+def run(
+    lineup: Lineup, drive_offset_db=0.0, tone_freqs_hz=None, *, stages=None, carrier_phasors_v=None
+) -> Result:
     """Compute every product at every stage of ``lineup``.
 
     Parameters

@@ -82,11 +82,15 @@ def expand(lineup: Lineup) -> Expansion:
         steps.append(ms.step_hz)
         for f_hz, u in zip(c.freq_hz + ms.offsets_hz(), ms.phasors.T, strict=True):
             power = float(np.mean(np.abs(u) ** 2))
-            tones.append(Carrier(freq_hz=float(f_hz), power_dbm=c.power_dbm + 10 * np.log10(max(power, 1e-30))))
+            tones.append(
+                Carrier(freq_hz=float(f_hz), power_dbm=c.power_dbm + 10 * np.log10(max(power, 1e-30)))
+            )
             owner.append(k)
             columns.append((amp_v * u * np.exp(1j * c.phase_rad))[:, None])
     realizations = max(len(col) for col in columns)
-    phasors = np.hstack([np.broadcast_to(col, (realizations, 1)) if len(col) == 1 else col for col in columns])
+    phasors = np.hstack(
+        [np.broadcast_to(col, (realizations, 1)) if len(col) == 1 else col for col in columns]
+    )
     return Expansion(
         lineup=replace(lineup, carriers=tuple(tones)),
         owner=np.asarray(owner, dtype=np.int64),
@@ -203,7 +207,9 @@ def line_spectrum(lineup: Lineup, stage: str | None = None, combine: str | None 
     return spectrum_of(result, ex, stage, combine)
 
 
-def spectrum_of(result: Result, ex: Expansion, stage: str | None = None, combine: str | None = None) -> LineSpectrum:
+def spectrum_of(
+    result: Result, ex: Expansion, stage: str | None = None, combine: str | None = None
+) -> LineSpectrum:
     """:func:`line_spectrum` from a run of the expansion (its batch: the realizations).
 
     Parameters

@@ -8,7 +8,7 @@ and position), the field, the value and what was expected.
 File layout (key names are the interface: extend, don't rename)::
 
     [lineup]      name, impedance
-    [[carrier]]   freq, power, bandwidth, phase
+    [[carrier]]   freq, power, bandwidth, phase, modulation (see spurplan.io.modulation_files)
     [[stage]]     kind, name, and the keys of that kind (see spurplan.model.stages)
     [analysis]    max_order, combine, beyond_data, linear_sections, strict, raster,
                   raster_tolerance
@@ -28,6 +28,7 @@ from spurplan.errors import LineupError, SweepError
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER, Fields, Within, read_toml
 from spurplan.io.channels import sweep_points
 from spurplan.io.mask_files import read_mask
+from spurplan.io.modulation_files import read_modulation
 from spurplan.io.tolerances import read_corners, read_tolerance
 from spurplan.io.touchstone import read_touchstone
 from spurplan.model.ladders import BEYOND_POLICIES
@@ -42,6 +43,7 @@ from spurplan.model.lineup import (
     ReportSpec,
     reference_carrier_index,
 )
+from spurplan.model.modulation import multisine
 from spurplan.model.stages import KINDS, LoadContext
 from spurplan.model.tolerances import Tolerance, Tolerances
 from spurplan.model.tone_lattice import RASTER_TOLERANCE_HZ, lattice_for, raster_steps_hz
@@ -133,7 +135,9 @@ def from_dict(
     r_ohm = head.quantity("impedance", parse_impedance_ohm, within=IMPEDANCE) or 50.0
     head.finish()
 
-    carriers = tuple(_carrier(t, name, i) for i, t in enumerate(_array(doc, "carrier", name), start=1))
+    carriers = tuple(
+        _carrier(t, name, i, base_dir) for i, t in enumerate(_array(doc, "carrier", name), start=1)
+    )
     if not carriers:
         raise LineupError("no [[carrier]] table: expected at least one carrier", file=name)
     if len(carriers) > MAX_CARRIERS:
@@ -219,7 +223,7 @@ def _array(doc: dict, key: str, file: str) -> list:
     return value
 
 
-def _carrier(table, file: str, index: int) -> Carrier:
+def _carrier(table, file: str, index: int, base_dir: Path = Path(".")) -> Carrier:
     f = Fields(table, file, f"carrier {index}")
     freq = f.quantity("freq", parse_freq_hz, required=True)
     if freq <= 0:
@@ -231,6 +235,9 @@ def _carrier(table, file: str, index: int) -> Carrier:
         raise f.error("bandwidth", f"{f.raw('bandwidth')!r}: expected a bandwidth > 0 Hz")
     if bandwidth is not None:
         f.require_within("bandwidth", bandwidth, BANDWIDTH)
+    modulation = None
+    if f.has("modulation"):
+        modulation, bandwidth = read_modulation(f.raw("modulation"), f, bandwidth, base_dir)
     if bandwidth is not None and not bandwidth < 2 * freq:
         raise f.error(
             "bandwidth",
@@ -239,7 +246,9 @@ def _carrier(table, file: str, index: int) -> Carrier:
         )
     phase = f.quantity("phase", parse_angle_rad) or 0.0
     f.finish()
-    return Carrier(freq_hz=freq, power_dbm=power, bandwidth_hz=bandwidth, phase_rad=phase)
+    return Carrier(
+        freq_hz=freq, power_dbm=power, bandwidth_hz=bandwidth, phase_rad=phase, modulation=modulation
+    )
 
 
 def _analysis(table, file: str) -> Analysis:
@@ -403,6 +412,28 @@ def _check_size(stages, carriers, n_lo: int, analysis: Analysis, file: str) -> N
         n_lo, tuple(c.freq_hz for c in carriers), analysis.raster_hz, analysis.raster_tolerance_hz, m
     )
     points, degree = grid_points(stages, lattice, m)
+    if points <= MAX_GRID_POINTS and any(c.modulation is not None for c in carriers):
+        # Modulated carriers run as their multisines' tones: the grid of those.
+        tones = [
+            float(f)
+            for c in carriers
+            for f in (
+                [c.freq_hz]
+                if c.modulation is None
+                else c.freq_hz + multisine(c.modulation, c.bandwidth_hz or 0.0).offsets_hz()
+            )
+        ]
+        lattice = lattice_for(n_lo, tuple(tones), None, analysis.raster_tolerance_hz, m)
+        points = grid_points(stages, lattice, m)[0]
+        if points > MAX_GRID_POINTS:
+            raise LineupError(
+                f"{m}: the modulated carriers run as {len(tones)} tones, which need {points:.3g} grid points "
+                f"(at most {MAX_GRID_POINTS:.3g}) to order {m}: expected fewer tones (modulation tones), a lower "
+                "max_order, or carriers closer together",
+                file=file,
+                stage="[analysis]",
+                field="max_order",
+            )
     if points > MAX_GRID_POINTS:
         shared = "on a raster" if lattice.raster_hz else "on no common raster"
         raise LineupError(

@@ -379,7 +379,9 @@ class Lineup:
             phasors = np.atleast_2d(np.asarray(carrier_phasors_v, dtype=complex))
         batch = max(offset.size, len(phasors))
         x = np.zeros((batch, len(mix)), dtype=complex)
-        x[:, cols] = phasors * (10 ** (offset / 20))[:, None] if offset.size > 1 else phasors * 10 ** (offset[0] / 20)
+        x[:, cols] = (
+            phasors * (10 ** (offset / 20))[:, None] if offset.size > 1 else phasors * 10 ** (offset[0] / 20)
+        )
         return x
 
     def run(self, drive_offset_db=0.0, tone_freqs_hz=None, carrier_phasors_v=None):

@@ -93,9 +93,11 @@ class Modulation:
 
     def describe(self) -> str:
         """One line for notes and reports: what the multisine is."""
-        if self.kind == "iq":
+        if self.kind == "iq" and self.iq_rate_hz and self.iq_length:
             return f"I/Q record {self.source or ''}: {self.tones} DFT bins of {self.iq_rate_hz / self.iq_length:g} Hz"
-        what = {"gaussian": "noise-like", "constant-envelope": "constant envelope", "par": "stated PAR"}[self.kind]
+        what = {"gaussian": "noise-like", "constant-envelope": "constant envelope", "par": "stated PAR"}[
+            self.kind
+        ]
         par = f" {self.par_db:g} dB" if self.par_db is not None else ""
         return f"{what}{par}: {self.tones} tones x {self.realizations} realizations (seed {self.seed})"
 

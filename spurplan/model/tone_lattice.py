@@ -119,11 +119,13 @@ class ToneLattice:
         -------
         int
             The product over the axes of ``alias_free_grid(degree, m, m)``, ``m`` the
-            largest coordinate on that axis.
+            largest coordinate a product reaches on that axis: ``order`` times the largest
+            of any tone there (the tone taken ``order`` times), known without listing them.
         """
-        from spurplan.model.torus_grid import alias_free_shape
+        from spurplan.model.torus_grid import alias_free_grid
 
-        return math.prod(alias_free_shape(degree, self.products(order).coords))
+        reach = order * np.abs(self.coords).max(axis=0)
+        return math.prod(alias_free_grid(degree, int(m), int(m)) for m in reach)
 
     def products(self, order: int) -> ProductSet:
         """Every product up to ``order`` (cached per order).
