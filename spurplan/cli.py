@@ -190,12 +190,25 @@ def _warn(result) -> None:
 @_combine_option
 def spectrum(lineup, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
+    from spurplan.engine.spectra import is_modulated
     from spurplan.output.documents import products_document
     from spurplan.output.terminal import products_text
 
-    result = _load(lineup).run()
+    loaded = _load(lineup)
     if stage is not None:
-        result.node_index(stage)
+        loaded.stage_index(stage)
+    if is_modulated(loaded):
+        from spurplan.analyses.spectrum_view import node_spectrum
+        from spurplan.output.documents import spectrum_document
+        from spurplan.output.terminal import spectrum_text
+
+        spec, cw = node_spectrum(loaded, stage, combine)
+        doc = spectrum_document(spec, loaded, cw, stage, combine)
+        _warn(cw)
+        if not _machine_output(fmt, doc):
+            click.echo(spectrum_text(doc), nl=False)
+        return
+    result = loaded.run()
     doc = products_document(result, stage, combine)
     _warn(result)
     if not _machine_output(fmt, doc):

@@ -316,3 +316,68 @@ def test_csv_record_with_header_reads(tmp_path):
     m = lineup.carriers[0].modulation
     assert m.iq_bins.tolist() == [1]
     assert lineup.carriers[0].bandwidth_hz == pytest.approx(3e3)
+
+
+MODULATED_LINEUP = """
+[lineup]
+name = "noise-like carrier (invented)"
+[[carrier]]
+freq = "450 MHz"
+power = "-10 dBm"
+bandwidth = "1 MHz"
+modulation = { kind = "gaussian", tones = 64, realizations = 16 }
+[[stage]]
+kind = "amplifier"
+name = "pa"
+gain = "30 dB"
+oip3 = "+40 dBm"
+h2 = "-30 dBc @ +20 dBm"
+psat = "+33 dBm"
+noise_figure = "5 dB"
+[analysis]
+max_order = 3
+[mask]
+use = ["itu-sm329-cat-a"]
+"""
+
+
+def test_spectrum_command_lists_every_line_with_its_density(tmp_path):
+    import csv
+    import io
+    import json
+
+    path = write(tmp_path, "mod.toml", MODULATED_LINEUP)
+    doc = json.loads(invoke("spectrum", path, "--format", "json").stdout)
+    lines = doc["lines"]
+    # Density = line power over the raster (B / tones = 15625 Hz, arithmetic).
+    assert doc["summary"]["raster_hz"] == pytest.approx(1e6 / 64)
+    for line in lines[:50]:
+        assert line["psd_dbm_hz"] == pytest.approx(line["level_dbm"] - 10 * math.log10(1e6 / 64), abs=1e-9)
+        # The output noise beside it: k T0 F G (-173.975 dBm/Hz + 5 dB + 30 dB; k exact in SI
+        # 2019, T0 = 290 K) at frequencies the flat-gain stage passes.
+        assert line["noise_dbm_hz"] == pytest.approx(-173.975 + 5 + 30, abs=0.01)
+    # The clusters' powers are their lines' power sums.
+    zone2 = next(c for c in doc["summary"]["clusters"] if c["label"] == "2f1 zone")
+    inside = [ln["level_dbm"] for ln in lines if zone2["start_hz"] <= ln["freq_hz"] <= zone2["stop_hz"]]
+    assert zone2["level_dbm"] == pytest.approx(10 * math.log10(sum(10 ** (v / 10) for v in inside)), abs=1e-9)
+    rows = list(csv.DictReader(io.StringIO(invoke("spectrum", path, "--format", "csv").stdout)))
+    assert len(rows) == len(lines) and set(rows[0]) >= {"freq_hz", "psd_dbm_hz", "noise_dbm_hz"}
+    text = invoke("spectrum", path).stdout
+    assert "2f1 zone" in text and "f1 regrowth above" in text and "64 tones x 16 realizations" in text
+
+
+def test_check_json_plot_and_sweep_headline_of_a_modulated_lineup(tmp_path):
+    import json
+
+    path = write(tmp_path, "mod.toml", MODULATED_LINEUP)
+    r = invoke("check", path, "--format", "json", "--plot", tmp_path / "c.png", expect=(0, 1))
+    summary = json.loads(r.stdout)["summary"]
+    assert summary["spectrum"]["raster_hz"] == pytest.approx(1e6 / 64)
+    assert len(summary["spectrum"]["freq_hz"]) == len(summary["spectrum"]["psd_dbm_hz"]) > 100
+    assert (tmp_path / "c.png").stat().st_size > 10_000
+    # Regrowth next to the carrier with no out-of-band rule: not judged, so not a PASS.
+    assert summary["status"] != "PASS"
+    out = invoke(
+        "drive", path, "--start", "-20 dBm", "--stop", "-10 dBm", "--step", "5 dB", expect=None
+    ).stdout
+    assert "INCOMPLETE" in out and "swept as CW" in out

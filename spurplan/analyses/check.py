@@ -1152,7 +1152,8 @@ def _cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) ->
     carriers = result.lineup.carrier_vectors()
     for k, v in enumerate(carriers):
         if np.array_equal(mix, v) or np.array_equal(mix, -v):
-            side = "above" if freq_hz > float(result.carrier_freqs_hz()[0, k]) else "below"
+            centre = float(result.carrier_freqs_hz()[0, k])
+            side = "above" if freq_hz > centre else "below"
             return f"{label(mix, names)} regrowth {side}"
     return f"{label(mix, names)} zone"
 
@@ -1246,6 +1247,27 @@ def _covers(rule, examined, freq: np.ndarray, f_highest) -> np.ndarray:
 def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     """Most stringent conducted limit (dBm, each in its own RBW) at ``freq_hz``; NaN where none.
 
+    See :func:`limit_line_rbw`, which also gives each point's reference bandwidth.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        A check of batch element 0 of a run.
+    freq_hz : ndarray
+        Frequencies (Hz), any shape.
+
+    Returns
+    -------
+    ndarray, same shape as ``freq_hz``
+        The lowest limit of the rules covering each frequency (dBm), NaN where none does.
+    """
+    return limit_line_rbw(outcome, freq_hz)[0]
+
+
+def limit_line_rbw(outcome: CheckResult, freq_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Most stringent conducted limit (dBm) at ``freq_hz`` and the reference bandwidth (Hz)
+    of the rule that sets it; NaN where no rule covers a frequency (or it states no RBW).
+
     Parameters
     ----------
     outcome : CheckResult
@@ -1256,8 +1278,8 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
 
     Returns
     -------
-    ndarray, same shape as ``freq_hz``
-        The lowest limit of the rules covering each frequency (dBm), NaN where none does.
+    (ndarray, ndarray), each the shape of ``freq_hz``
+        The lowest limit of the rules covering each frequency (dBm) and that rule's RBW (Hz).
     """
     mask = outcome.result.lineup.mask
     assert mask is not None  # check() made the outcome, and it refuses a lineup without one
@@ -1266,6 +1288,7 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
     freq_hz = np.asarray(freq_hz, dtype=float)
     gain = mask.antenna_gain_dbi(freq_hz)
     line = np.full(freq_hz.shape, np.inf)
+    rbw = np.full(freq_hz.shape, np.nan)
     pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
     # The out-of-band domain around each carrier with a stated bandwidth, and the offset
     # from the nearest one (as evaluate() reads them).
@@ -1288,8 +1311,53 @@ def limit_line(outcome: CheckResult, freq_hz: np.ndarray) -> np.ndarray:
             limit = rule.offset_limit_dbm(np.where(near, offset, 0.0), outcome.carrier_dbm)
         else:
             limit = rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)
-        line = np.where(covers, np.minimum(line, limit), line)
-    return np.where(np.isinf(line), np.nan, line)
+        tighter = covers & (limit < line)
+        rbw = np.where(tighter, np.nan if rule.rbw_hz is None else rule.rbw_hz, rbw)
+        line = np.where(tighter, limit, line)
+    return np.where(np.isinf(line), np.nan, line), rbw
+
+
+def continuous_in_rbw_dbm(outcome: CheckResult, freq_hz: np.ndarray) -> dict[str, np.ndarray]:
+    """The continuous parts of the output in the limit line's reference bandwidth (dBm).
+
+    ``"noise"``: the output noise density (:func:`spurplan.engine.noise.output_noise_dbm_hz`)
+    plus ``10 log10(RBW)``, where every active stage states a noise figure; ``"spectrum"``
+    (modulated carriers): the unwanted lines of the output spectrum within ``RBW / 2`` of
+    each frequency, as the check reads them.  NaN where no rule with an RBW covers a point.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+    freq_hz : ndarray, (F,)
+        Frequencies (Hz).
+
+    Returns
+    -------
+    dict of str to ndarray (F,)
+    """
+    from spurplan.engine.noise import output_noise_dbm_hz, unknown_noise_stages
+
+    freq_hz = np.asarray(freq_hz, dtype=float)
+    _, rbw = limit_line_rbw(outcome, freq_hz)
+    lineup = outcome.result.lineup
+    out: dict[str, np.ndarray] = {}
+    if not unknown_noise_stages(lineup):
+        density = output_noise_dbm_hz(lineup, np.maximum(freq_hz, 1.0), outcome.result.tone_freqs_hz[0])
+        with np.errstate(invalid="ignore"):
+            out["noise"] = density + 10 * np.log10(rbw)
+    spec = outcome.spectrum
+    if spec is not None:
+        mw = np.where(spec.is_carrier, 0.0, 10 ** (spec.power_dbm / 10))
+        cum = np.concatenate([[0.0], np.cumsum(mw)])
+        half = np.where(np.isfinite(rbw), rbw / 2, 0.0)
+        lo = np.searchsorted(spec.freq_hz, freq_hz - half, side="left")
+        hi = np.searchsorted(spec.freq_hz, freq_hz + half, side="right")
+        with np.errstate(divide="ignore", invalid="ignore"):
+            level = 10 * np.log10(np.maximum(cum[hi] - cum[lo], 0.0))
+            # A window narrower than the lines' raster reads the density times its width.
+            narrow = 10 * np.log10(np.interp(freq_hz, spec.freq_hz, mw) * rbw / spec.step_hz)
+        out["spectrum"] = np.where(np.isfinite(rbw), np.where(rbw < spec.step_hz, narrow, level), np.nan)
+    return out
 
 
 def _offsets(lineup, freq: np.ndarray, carriers_hz: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -106,6 +106,44 @@ def products_document(result: Result, stage: str | None = None, combine: str | N
     return Document(summary, "products", rows)
 
 
+def spectrum_document(spec, lineup, result, stage: str | None = None, combine: str | None = None) -> Document:
+    """The line spectrum of a modulated lineup at a node: how the carriers were modelled,
+    the raster, then every line (:func:`spurplan.analyses.spectrum_view.line_rows`) under
+    ``"lines"``, its density in dBm/Hz beside the output noise density.
+
+    Parameters
+    ----------
+    spec : LineSpectrum
+    lineup : Lineup
+    result : Result
+        The lineup's CW run.
+    stage : str or None
+    combine : str or None
+
+    Returns
+    -------
+    Document
+    """
+    from spurplan.analyses.spectrum_view import cluster_rows, line_rows
+
+    clusters = cluster_rows(spec, lineup, result)
+    summary = {
+        "lineup": lineup.name,
+        "node": stage or "output",
+        "combine": combine or lineup.analysis.combine,
+        "modulation": [None if c.modulation is None else c.modulation.describe() for c in lineup.carriers],
+        "raster_hz": spec.step_hz,
+        "realizations": spec.realizations,
+        "n_lines": len(spec.freq_hz),
+        "clusters": [
+            dict(zip(clusters, values, strict=True)) for values in zip(*clusters.values(), strict=True)
+        ],
+        "notes": list(lineup.notes),
+        **provenance(lineup),
+    }
+    return Document(summary, "lines", line_rows(spec, lineup, result, stage))
+
+
 def budget_document(result: Result) -> Document:
     """The cascade budget: the lineup's name and provenance, then one row per stage.
 
@@ -195,6 +233,16 @@ def check_document(outcome: CheckResult) -> Document:
     summary = check_summary(outcome)
     summary["noise"] = [{c: rows[c][i] for c in rows if c not in ("order", "mix")} for i in noise]
     summary["acpr"] = [dict(entry) for entry in outcome.acpr]
+    spec = outcome.spectrum
+    if spec is not None:
+        # The judged spectrum itself: every line's frequency (Hz) and density (dBm/Hz).
+        summary["spectrum"] = {
+            "raster_hz": spec.step_hz,
+            "realizations": spec.realizations,
+            "freq_hz": spec.freq_hz.tolist(),
+            "psd_dbm_hz": spec.psd_dbm_hz.tolist(),
+            "kind": ["carrier" if c else "product" for c in spec.is_carrier],
+        }
     return Document(summary, "products", products)
 
 

@@ -125,6 +125,17 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     line = outcome.limit_line_dbm(grid)
     ax.plot(grid / scale, line, color="black", lw=1.4, drawstyle="steps-mid", label="limit (most stringent)")
     mask = outcome.result.lineup.mask
+    # The continuous parts (noise, a modulated carrier's spectrum) in the same bandwidth.
+    from spurplan.analyses.check import continuous_in_rbw_dbm
+
+    spec = outcome.spectrum
+    where = grid if spec is None else np.union1d(grid, spec.freq_hz[spec.freq_hz < top])
+    curves = continuous_in_rbw_dbm(outcome, where)
+    styles = {"noise": ("tab:gray", "output noise"), "spectrum": ("tab:purple", "modulated spectrum")}
+    for key, values in curves.items():
+        color, text = styles[key]
+        shown = np.where(np.isfinite(values), values, np.nan)
+        ax.plot(where / scale, shown, color=color, lw=0.9, alpha=0.9, label=f"{text} (in the rule's RBW)")
     shown_bands = [b for b in mask.bands if b.start_hz < top]
     for b in shown_bands:
         ax.axvspan(b.start_hz / scale, min(b.stop_hz, top) / scale, color="tab:orange", alpha=0.18, lw=0)

@@ -163,6 +163,49 @@ def products_text(result: Result, rows: dict, stage: str | None = None, combine:
     )
 
 
+def spectrum_text(doc) -> str:
+    """``spurplan spectrum`` of a modulated lineup: one line per cluster of its spectrum.
+
+    Parameters
+    ----------
+    doc : Document
+        :func:`spurplan.output.documents.spectrum_document`.
+
+    Returns
+    -------
+    str
+        Heading, how the carriers were modelled, the cluster table (MHz, dBm, dBm/Hz) and
+        the planning notice.
+    """
+    s = doc.summary
+    modelled = "; ".join(m for m in s["modulation"] if m)
+    rows = {
+        "start": [c["start_hz"] / 1e6 for c in s["clusters"]],
+        "stop": [c["stop_hz"] / 1e6 for c in s["clusters"]],
+        "part": [c["label"] for c in s["clusters"]],
+        "power": [c["level_dbm"] for c in s["clusters"]],
+        "peak": [c["peak_psd_dbm_hz"] for c in s["clusters"]],
+        "stage": [c["stage"] for c in s["clusters"]],
+    }
+    spec = [
+        ("start", "from (MHz)", ".6f"),
+        ("stop", "to (MHz)", ".6f"),
+        ("part", "part", None),
+        ("power", "power (dBm)", ".2f"),
+        ("peak", "peak density (dBm/Hz)", ".2f"),
+        ("stage", "largest from", None),
+    ]
+    return (
+        _lines(f"{s['lineup']}: spectrum at {s['node']} (combine = {s['combine']})")
+        + _lines(
+            f"modulated carriers as multisines: {modelled}; {s['n_lines']} lines on a {s['raster_hz']:.6g} Hz "
+            "raster (--format csv lists every line with its density and the output noise density)"
+        )
+        + text_table(rows, spec)
+        + _lines(PLANNING_NOTICE)
+    )
+
+
 def budget_text(result: Result, rows: dict) -> str:
     """``spurplan budget``: the cascade budget.
 

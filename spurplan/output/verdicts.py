@@ -47,10 +47,18 @@ def model_caveat(lineup) -> str:
     from spurplan.analyses.check import model_gaps
 
     missing, missed = lineup.missing_figures(), lineup.figures_missed()
-    if not missing and not missed:
+    modulated = [f"f{k + 1}" for k, c in enumerate(lineup.carriers) if c.modulation is not None]
+    if not missing and not missed and not modulated:
         return ""
-    word = "INCOMPLETE" if missing else "UNCERTAIN"
-    return f"; {word}: {model_gaps(missing, missed)}"
+    word = "INCOMPLETE" if missing or modulated else "UNCERTAIN"
+    gaps = [model_gaps(missing, missed)] if missing or missed else []
+    if modulated:
+        # Sweeps and yield run the carriers as CW tones: a modulated carrier's regrowth and
+        # its wider, stronger zones are the check's alone.
+        gaps.append(
+            f"modulated carrier{'s' * (len(modulated) > 1)} {', '.join(modulated)} swept as CW (check judges the spectrum)"
+        )
+    return f"; {word}: {'; '.join(gaps)}"
 
 
 # Sweeps and yield judge the discrete products; the output noise and adjacent-channel
