@@ -26,9 +26,10 @@ a channel of stated bandwidth centred at stated offsets either side of the carri
 relative to the carrier's own power (dBc), and optionally that power in dBm.
 
 A product of carriers with occupied bandwidths ``B_k`` spreads over about
-``sum |m_k| B_k`` (an approximation: the convolution of the carrier spectra has that
-width; carriers without a bandwidth are CW).  Wider than the rule's reference
-bandwidth RBW, it reads ``10 log10(B / RBW)`` lower in that bandwidth.
+``sum |m_k| B_k`` (the convolution of the carrier spectra has that width).  The check
+judges a product of carriers without a modulation with its whole power in the rule's
+reference bandwidth (conservative); with a modulation it judges the output spectrum's
+lines in each RBW (:mod:`spurplan.engine.spectra`).
 """
 
 from __future__ import annotations
