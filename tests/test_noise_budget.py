@@ -158,3 +158,21 @@ def test_noise_a_rule_cannot_judge_keeps_the_check_from_pass():
     assert (
         "noise not judged under rules without a reference bandwidth (lineup: whole power)" in outcome.verdict
     )
+
+
+def test_spectrum_document_carries_the_noise_density_beside_each_product():
+    # Pad 6 dB then an amplifier of NF 3 dB and 20 dB gain (flat): k T0 + 9 dB + 14 dB at
+    # every product's frequency (Friis, as above; k T0 = -173.975 dBm/Hz).
+    from spurplan.output.documents import products_document
+
+    stages = [
+        {"kind": "attenuator", "name": "pad", "loss": "6 dB"},
+        amp("amp", gain="20 dB", oip3="+30 dBm", oip2="+40 dBm", p1db="+20 dBm", noise_figure="3 dB"),
+    ]
+    doc = products_document(lineup(stages).run())
+    assert len(doc.rows["noise_dbm_hz"]) == len(doc.rows["freq_hz"]) > 3
+    for value in doc.rows["noise_dbm_hz"]:
+        assert value == pytest.approx(KT0_DBM_HZ + 9.0 + 14.0, abs=1e-9)
+    # At an inner node the output noise is not what the column means: left empty.
+    inner = products_document(lineup(stages).run(), "pad")
+    assert set(inner.rows["noise_dbm_hz"]) == {None}

@@ -13,6 +13,8 @@ import html
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+import numpy as np
+
 from spurplan.analyses.check import ACPR_DOMAIN, NOISE_LABEL
 from spurplan.notices import PLANNING_NOTICE
 from spurplan.output.formatting import html_table, to_csv, to_json
@@ -83,12 +85,22 @@ def products_document(result: Result, stage: str | None = None, combine: str | N
     Document
         Summary: lineup name, node, combining mode, carrier levels (dBm), product count,
         the strongest product (Hz, dBm, dBc), flagged stages, notes and provenance; rows
-        under ``"products"`` (:meth:`~spurplan.engine.result.Result.product_rows`).
+        under ``"products"`` (:meth:`~spurplan.engine.result.Result.product_rows`, with the
+        output noise density at each product's frequency, ``noise_dbm_hz``).
     """
     rows = result.product_rows(stage, combine)
     products = [i for i, kind in enumerate(rows["kind"]) if kind == "product"]
     worst = max(products, key=lambda i: rows["level_dbm"][i]) if products else None
     lineup = result.lineup
+    # The continuous part beside the discrete products: the output noise density at each
+    # product's frequency (dBm/Hz; None at an inner node or where a stage lacks a figure).
+    from spurplan.engine.noise import output_noise_dbm_hz, unknown_noise_stages
+
+    noise = None
+    if stage is None and not unknown_noise_stages(lineup) and rows["freq_hz"]:
+        freqs = np.maximum(np.asarray(rows["freq_hz"], dtype=float), 1.0)
+        noise = np.asarray(output_noise_dbm_hz(lineup, freqs, result.tone_freqs_hz[0])).tolist()
+    rows = {**rows, "noise_dbm_hz": noise if noise is not None else [None] * len(rows["freq_hz"])}
     summary = {
         "lineup": lineup.name,
         "node": stage or "output",

@@ -208,7 +208,9 @@ def modulated(label: str, saturating: bool) -> None:
     def doc(tones: int, realizations: int) -> dict:
         d = lineup_doc("450.025 MHz", saturating=saturating)
         modulation = {"kind": "gaussian", "tones": tones, "realizations": realizations}
-        d["carrier"] = [{"freq": "450 MHz", "power": "-7 dBm", "bandwidth": "25 kHz", "modulation": modulation}]
+        d["carrier"] = [
+            {"freq": "450 MHz", "power": "-7 dBm", "bandwidth": "25 kHz", "modulation": modulation}
+        ]
         return d
 
     def adjacent_dbm(spec) -> float:
