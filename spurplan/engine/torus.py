@@ -69,8 +69,8 @@ class MemorylessResult:
 
 
 def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[int, ...]):
-    """Apply ``transfer`` on a grid of ``shape`` (points per axis); return output phasors
-    and input peaks."""
+    """Apply ``transfer`` on a grid of ``shape`` (points per axis); return output phasors,
+    input peaks and the largest magnitude in the grid's outer band."""
     batch, _ = x_phasors.shape
     k = mix.shape[1]
     axes = tuple(range(1, k + 1))
@@ -84,7 +84,8 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[i
     # Absurd figures can overflow the model; propagate() turns that into an error.
     with np.errstate(over="ignore", invalid="ignore"):
         out = transfer(samples)
-    return torus_coefficients(out, mix), flat.min(axis=1), flat.max(axis=1)
+    phasors, edge = torus_coefficients(out, mix, tail=True)
+    return phasors, flat.min(axis=1), flat.max(axis=1), edge
 
 
 def apply_memoryless(
@@ -122,23 +123,31 @@ def apply_memoryless(
     if degree is None:
         n = tuple(max(v, 32) for v in n)
 
-    y, lo, hi = _eval_chunked(x_phasors, mix, transfer, n, np.arange(batch))
-    converged = np.full(batch, degree is not None)
+    y, lo, hi, edge = _eval_chunked(x_phasors, mix, transfer, n, np.arange(batch))
+    converged = np.full(batch, degree is not None) | _resolved(y, edge)
     grid_used = n
-    # Oversampled models: double the grid for the batch elements that have not
-    # settled yet; elements that agree between two grids keep the finer result.
+    # Oversampled models: double the grid for the batch elements that have not settled
+    # yet.  An element has settled when two grids agree, or when its grid's outer band
+    # holds nothing above the floor: the aliases that reach a kept product lie farther out
+    # than that band, where the coefficients of a smooth model have decayed further still
+    # (spectral convergence; common practice in spectral methods, no source).
     todo = np.nonzero(~converged)[0]
     while todo.size and math.prod(n) * 2 ** len(n) <= MAX_GRID_POINTS:
         n = tuple(2 * v for v in n)
-        y2, lo2, hi2 = _eval_chunked(x_phasors[todo], mix, transfer, n, todo)
+        y2, lo2, hi2, edge2 = _eval_chunked(x_phasors[todo], mix, transfer, n, todo)
         scale = np.abs(y2).max(axis=1, keepdims=True)
         tol = rtol * np.abs(y2) + CONVERGENCE_FLOOR * scale
-        ok = np.all(np.abs(y2 - y[todo]) <= tol, axis=1)
+        ok = np.all(np.abs(y2 - y[todo]) <= tol, axis=1) | _resolved(y2, edge2)
         y[todo], lo[todo], hi[todo] = y2, lo2, hi2
         converged[todo] = ok
         todo = todo[~ok]
         grid_used = n
     return MemorylessResult(spectrum=y, peak_neg_v=lo, peak_pos_v=hi, converged=converged, grid=grid_used)
+
+
+def _resolved(y: np.ndarray, edge: np.ndarray) -> np.ndarray:
+    """Batch elements whose grid's outer band is below the floor of their strongest product."""
+    return edge <= CONVERGENCE_FLOOR * np.abs(y).max(axis=1)
 
 
 def _eval_chunked(x_phasors: np.ndarray, mix: np.ndarray, transfer, n: tuple[int, ...], rows: np.ndarray):

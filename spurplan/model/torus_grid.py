@@ -23,7 +23,7 @@ CONVERGENCE_RTOL = 1e-4
 CONVERGENCE_FLOOR = 1e-11
 
 
-def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
+def torus_coefficients(samples: np.ndarray, mix: np.ndarray, tail: bool = False):
     """Peak phasors (B, P) of the canonical products in real torus samples (B, N_1, ..., N_K).
 
     Parameters
@@ -34,10 +34,16 @@ def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
     mix : ndarray of int, shape (P, K)
         Canonical mixing vectors to read.
 
+    tail : bool
+        Also return, per batch element, an estimate (V peak) of the largest alias that
+        reaches a kept product (:func:`_alias_estimate`).
+
     Returns
     -------
     ndarray, complex, shape (B, P)
         Peak phasor (V) of each product: twice the forward-normalised DFT coefficient.
+    ndarray, shape (B,)
+        With ``tail``: the alias estimate.
     """
     k = mix.shape[1]
     sizes = samples.shape[1:]
@@ -48,7 +54,10 @@ def torus_coefficients(samples: np.ndarray, mix: np.ndarray) -> np.ndarray:
     src = np.where(direct[:, None], mix, -mix)
     idx = (*tuple(src[:, i] % sizes[i] for i in range(k - 1)), src[:, -1])
     coeff = out[(slice(None), *idx)]
-    return 2.0 * np.where(direct[None, :], coeff, np.conj(coeff))
+    phasors = 2.0 * np.where(direct[None, :], coeff, np.conj(coeff))
+    if not tail:
+        return phasors
+    return phasors, _alias_estimate(out, sizes, np.abs(mix).max(axis=0))
 
 
 def torus_analytic(x_phasors: np.ndarray, mix: np.ndarray, freqs_hz: np.ndarray, n) -> np.ndarray:
@@ -152,3 +161,38 @@ def alias_free_shape(degree: int, mix: np.ndarray, active: np.ndarray | None = N
     return tuple(
         alias_free_grid(degree, max(int(i), 1), max(int(o), 1)) for i, o in zip(m_in, keep, strict=True)
     )
+
+
+def _alias_estimate(out: np.ndarray, sizes, keep: np.ndarray) -> np.ndarray:
+    """Estimate (V peak, (B,)) of the largest alias on a kept product, from a grid's spectrum.
+
+    On an axis of ``N`` points a kept index ``m`` (``|m| <= M``) receives the images of
+    ``m +- N``, at least ``N - M`` from the origin.  The coefficients are read in two bands
+    of the computed spectrum, around ``N/4`` (largest ``c1``) and just below ``N/2``
+    (``c2``); a geometric decay ``r = c2 / c1`` per ``N/4`` carried on to ``N - M`` gives
+    the estimate ``c2 r^((N/2 - M) / (N/4))``.  Where the coefficients do not decay
+    (``r >= 1``) the estimate is ``c2`` itself; the largest over the axes is returned.
+    (Tail extrapolation of a spectral series; common practice in spectral methods, no source.)
+    """
+    k = len(sizes)
+    estimate = np.zeros(len(out))
+    flat = np.abs(out).reshape(len(out), -1)
+    for axis, n in enumerate(sizes):
+        if n < 16:
+            estimate = np.maximum(estimate, flat.max(axis=1))
+            continue
+        j = np.arange(out.shape[1 + axis])
+        dist = j if axis == k - 1 else np.minimum(j, n - j)
+        width = max(2, n // 16)
+        shape = [1] * k
+        shape[axis] = len(j)
+        bands = []
+        for lo, hi in ((n // 4 - width, n // 4 + width), (n // 2 - width, n // 2)):
+            sel = np.broadcast_to(((dist >= lo) & (dist <= hi)).reshape(shape), out.shape[1:]).ravel()
+            bands.append(2.0 * flat[:, sel].max(axis=1))
+        c1, c2 = bands
+        with np.errstate(divide="ignore", invalid="ignore"):
+            r = np.where(c1 > 0, c2 / c1, 0.0)
+        steps = max(n / 2 - int(keep[axis]), 0.0) / (n / 4)
+        estimate = np.maximum(estimate, np.where(r < 1, c2 * r**steps, c2))
+    return estimate
