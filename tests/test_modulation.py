@@ -381,3 +381,12 @@ def test_check_json_plot_and_sweep_headline_of_a_modulated_lineup(tmp_path):
         "drive", path, "--start", "-20 dBm", "--stop", "-10 dBm", "--step", "5 dB", expect=None
     ).stdout
     assert "INCOMPLETE" in out and "swept as CW" in out
+
+
+def test_remedy_does_not_call_an_incomplete_check_met(tmp_path):
+    # Every judged product has its margin, but the regrowth beside the carrier has no rule:
+    # the check is INCOMPLETE, and the remedy says so rather than "already meets the mask".
+    path = write(tmp_path, "mod.toml", MODULATED_LINEUP)
+    out = invoke("remedy", path, "--margin", "1 dB", expect=None).stdout
+    assert "already meets" not in out
+    assert "INCOMPLETE" in out and "out-of-band domain not judged" in out

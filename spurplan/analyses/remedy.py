@@ -207,6 +207,12 @@ def remedy(
         return Remedy(**{**base, **kw})
 
     if not needed["freq_hz"]:
+        if before.status != "PASS":
+            # A filter cannot fix what the check could not judge: say so, not "meets".
+            return result(
+                reason=f"every product the check judged has {margin_db:g} dB margin, but the check is "
+                f"{before.status}: {before.verdict.split(': ', 1)[-1]}"
+            )
         return result(reason=f"the lineup already meets the mask with {margin_db:g} dB margin")
     carriers = list(before.result.carrier_freqs_hz()[0])
     lo, hi = min(carriers), max(carriers)
