@@ -501,22 +501,39 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
         out["domain"].append(DOMAINS[int(ev.domain[0, g])])
         for key in ("stage", "order", "mix", "label", "dbc", "beyond_data", "model_extrapolated"):
             out[key].append(rows[key][i])
+    return _finish(out, lineup, mask, result, ev, levels, ev.bandwidth_hz[0], batch)
+
+
+def _finish(
+    out, lineup, mask, result, ev, levels, spread_hz, batch, carriers_dbm=None, spectrum=None
+) -> CheckResult:
+    """Add the noise and ACPR rows to the product rows ``out`` and make the CheckResult.
+
+    ``spectrum`` (a modulated lineup's line spectrum) means ``levels`` are its lines,
+    regrowth included; ``carriers_dbm`` then are the carriers' powers read from it.
+    """
     f_highest = highest_output_carrier_hz(result, batch)
     carrier_dbm = float(ev.carrier_dbm[0])
     noise_not_judged = _add_noise_rows(out, lineup, mask, result, batch, carrier_dbm, f_highest, ev.rules)
-    acpr = _add_acpr_rows(out, lineup, mask, result, levels, ev.bandwidth_hz[0], batch)
+    acpr = _add_acpr_rows(
+        out, lineup, mask, result, levels, spread_hz, batch, carriers_dbm, spectrum is not None
+    )
     margins = [m for m in out["margin_db"] if m is not None]
     worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
+    notes = _coverage_notes(lineup, mask, f_highest) + acpr.notes
+    if spectrum is not None:
+        notes.append(_spectrum_note(lineup, spectrum))
     return CheckResult(
         result=result,
         rows=out,
         passed=all(m >= 0 for m in margins),
         worst=worst,
         carrier_dbm=carrier_dbm,
-        notes=tuple(_coverage_notes(lineup, mask, f_highest) + acpr.notes),
+        notes=tuple(notes),
         noise_not_judged=tuple(noise_not_judged + acpr.noise_not_judged),
         acpr=tuple(acpr.entries),
         acpr_not_judged=tuple(acpr.not_judged),
+        spectrum=spectrum,
     )
 
 
@@ -1118,28 +1135,9 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
         )
     )
     _merge_rows(out, added)
-    f_highest = highest_output_carrier_hz(result, 0)
-    carrier_dbm = float(ev.carrier_dbm[0])
-    noise_not_judged = _add_noise_rows(out, lineup, mask, result, 0, carrier_dbm, f_highest, ev.rules)
     owners = np.argmax(np.abs(spec.mix[:, len(lineup.mixers) :]), axis=1)
     carriers_dbm = np.array([_carrier_power_dbm(spec, owners, k) for k in range(len(lineup.carriers))])
-    acpr = _add_acpr_rows(
-        out, lineup, mask, result, levels, np.zeros(len(spec.freq_hz)), 0, carriers_dbm, True
-    )
-    margins = [m for m in out["margin_db"] if m is not None]
-    worst = int(np.argmin([m if m is not None else math.inf for m in out["margin_db"]])) if margins else None
-    return CheckResult(
-        result=result,
-        rows=out,
-        passed=all(m >= 0 for m in margins),
-        worst=worst,
-        carrier_dbm=carrier_dbm,
-        notes=tuple(_coverage_notes(lineup, mask, f_highest) + acpr.notes + [_spectrum_note(lineup, spec)]),
-        noise_not_judged=tuple(noise_not_judged + acpr.noise_not_judged),
-        acpr=tuple(acpr.entries),
-        acpr_not_judged=tuple(acpr.not_judged),
-        spectrum=spec,
-    )
+    return _finish(out, lineup, mask, result, ev, levels, np.zeros(len(spec.freq_hz)), 0, carriers_dbm, spec)
 
 
 def _cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from spurplan.engine.spectra import LineSpectrum, expand, spectrum_of
+from spurplan.engine.spectra import LineSpectrum, line_spectrum
 from spurplan.model.products import label
 
 LINE_COLUMNS = ["freq_hz", "level_dbm", "psd_dbm_hz", "noise_dbm_hz", "kind", "label", "stage"]
@@ -34,9 +34,7 @@ def node_spectrum(lineup, stage: str | None = None, combine: str | None = None):
     -------
     (LineSpectrum, Result)
     """
-    ex = expand(lineup)
-    spec = spectrum_of(ex.lineup.run(carrier_phasors_v=ex.phasors_v), ex, stage, combine)
-    return spec, lineup.run()
+    return line_spectrum(lineup, stage, combine), lineup.run()
 
 
 def line_rows(spec: LineSpectrum, lineup, result, stage: str | None = None) -> dict[str, list]:
