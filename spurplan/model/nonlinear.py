@@ -269,6 +269,24 @@ class Saturating:
             return v
         ratio = np.abs(v) / per_sample(self.rail_v, v)
         two_s = 2.0 * self.smoothness
+        if two_s == int(two_s) and two_s <= 16:
+            # An integer power by squaring and one exp/log1p pair (the fitted knees are
+            # whole numbers); far beyond the rail (ratio > 1e30, where the power would
+            # overflow) the output is the rail itself, v / ratio, to double precision.
+            r2 = ratio * ratio
+            power = np.ones_like(r2)
+            base, e = r2, int(two_s) // 2
+            while e:
+                if e & 1:
+                    power = power * base
+                e >>= 1
+                if e:
+                    base = base * base
+            if int(two_s) % 2:
+                power = power * ratio
+            with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+                near = v * np.exp(-np.log1p(power) / two_s)
+                return np.where(ratio > 1e30, v / ratio, near)
         # exp/log instead of a float power of a signed array (numpy's fast path);
         # logaddexp(0, t) = log(1 + e^t) without overflow, and ratio = 0 gives exactly v.
         with np.errstate(divide="ignore"):
@@ -287,7 +305,21 @@ class Saturating:
         return -hi, hi
 
     def __call__(self, x):
-        return self.rail(self.inner(x)) + self.even_part(x)
+        x = np.asarray(x, dtype=float)
+        simple = (
+            self.inner_exponent == 0.5
+            and not np.any(np.asarray(self.a3_exp) != 0)
+            and len(self.even) == 1
+            and self.even[0][0] == 2
+            and np.array_equal(np.asarray(self.gamma_even), np.asarray(self.gamma))
+        )
+        if not simple:
+            return self.rail(self.inner(x)) + self.even_part(x)
+        # The common fit (one even term, the inner and even parts sharing their knee): the
+        # same sums as inner() and even_part(), with x^2 and sqrt(1 + gamma x^2) shared.
+        x2 = x * x
+        root = np.sqrt(1.0 + per_sample(self.gamma, x) * x2)
+        return self.rail(per_sample(self.a1, x) * x / root) + per_sample(self.even[0][1], x) * x2 / root
 
 
 @dataclass(frozen=True)
