@@ -269,24 +269,25 @@ class Saturating:
             return v
         ratio = np.abs(v) / per_sample(self.rail_v, v)
         two_s = 2.0 * self.smoothness
-        if two_s == int(two_s) and two_s <= 16:
-            # An integer power by squaring and one exp/log1p pair (the fitted knees are
-            # whole numbers); far beyond the rail (ratio > 1e30, where the power would
-            # overflow) the output is the rail itself, v / ratio, to double precision.
-            r2 = ratio * ratio
-            power = np.ones_like(r2)
-            base, e = r2, int(two_s) // 2
-            while e:
-                if e & 1:
-                    power = power * base
-                e >>= 1
-                if e:
-                    base = base * base
-            if int(two_s) % 2:
-                power = power * ratio
+        if two_s == int(two_s) and 2 <= two_s <= 16:
+            # An integer power and one log1p/exp pair, in place (the fitted knees are whole
+            # numbers); far beyond the rail (ratio > 1e30, where the power would overflow)
+            # the output is the rail itself, v / ratio, to double precision.
+            n = int(two_s)
+            power = np.array(ratio * ratio, dtype=float)
+            if n & (n - 1) == 0:  # a power of two: squarings only
+                for _ in range(n.bit_length() - 2):
+                    power *= power
+            else:
+                power = np.array(ratio**n, dtype=float)
             with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-                near = v * np.exp(-np.log1p(power) / two_s)
-                return np.where(ratio > 1e30, v / ratio, near)
+                np.log1p(power, out=power)
+                power *= -1.0 / two_s
+                np.exp(power, out=power)
+                power *= v
+                if np.max(ratio, initial=0.0) > 1e30:
+                    power = np.where(ratio > 1e30, v / ratio, power)
+            return power if power.ndim else power[()]
         # exp/log instead of a float power of a signed array (numpy's fast path);
         # logaddexp(0, t) = log(1 + e^t) without overflow, and ratio = 0 gives exactly v.
         with np.errstate(divide="ignore"):
