@@ -74,12 +74,26 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[i
     batch, _ = x_phasors.shape
     k = mix.shape[1]
     axes = tuple(range(1, k + 1))
-    grid = np.zeros((batch, *shape), dtype=complex)
-    pos: tuple[slice | np.ndarray, ...] = (slice(None), *(mix[:, i] % shape[i] for i in range(k)))
-    neg: tuple[slice | np.ndarray, ...] = (slice(None), *((-mix[:, i]) % shape[i] for i in range(k)))
-    grid[pos] = 0.5 * x_phasors
-    grid[neg] += 0.5 * np.conj(x_phasors)
-    samples = sfft.ifftn(grid, axes=axes, norm="forward").real
+    # The half spectrum (last axis 0 .. N/2) of the real signal, for a real inverse FFT:
+    # each product at +m where its last index is >= 0, its conjugate at -m where it is <= 0
+    # (both on the plane of last index 0, which makes that plane Hermitian).
+    half = (*shape[:-1], shape[-1] // 2 + 1)
+    grid = np.zeros((batch, *half), dtype=complex)
+    last = mix[:, -1]
+    up, down = last >= 0, last <= 0
+    pos: tuple[slice | np.ndarray, ...] = (
+        slice(None),
+        *(mix[up, i] % shape[i] for i in range(k - 1)),
+        mix[up, -1],
+    )
+    neg: tuple[slice | np.ndarray, ...] = (
+        slice(None),
+        *((-mix[down, i]) % shape[i] for i in range(k - 1)),
+        -mix[down, -1],
+    )
+    grid[pos] += 0.5 * x_phasors[:, up]
+    grid[neg] += 0.5 * np.conj(x_phasors[:, down])
+    samples = sfft.irfftn(grid, s=shape, axes=axes, norm="forward")
     flat = samples.reshape(batch, -1)
     # Absurd figures can overflow the model; propagate() turns that into an error.
     with np.errstate(over="ignore", invalid="ignore"):

@@ -319,8 +319,16 @@ class Saturating:
         # The common fit (one even term, the inner and even parts sharing their knee): the
         # same sums as inner() and even_part(), with x^2 and sqrt(1 + gamma x^2) shared.
         x2 = x * x
-        root = np.sqrt(1.0 + per_sample(self.gamma, x) * x2)
-        return self.rail(per_sample(self.a1, x) * x / root) + per_sample(self.even[0][1], x) * x2 / root
+        root = per_sample(self.gamma, x) * x2
+        root += 1.0
+        np.sqrt(root, out=root)
+        u = per_sample(self.a1, x) * x
+        u /= root
+        x2 *= per_sample(self.even[0][1], x)
+        x2 /= root
+        out = self.rail(u)
+        out += x2
+        return out
 
 
 @dataclass(frozen=True)
