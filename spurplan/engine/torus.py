@@ -133,9 +133,13 @@ def apply_memoryless(
     active = np.any(x_phasors != 0, axis=0)
     degree = transfer.degree
     # Per axis: a raster's step axis spreads much further than its zone axis.
-    n = alias_free_shape(degree if degree else 4, mix, active)
-    if degree is None:
-        n = tuple(max(v, 32) for v in n)
+    if degree is not None:
+        n = alias_free_shape(degree, mix, active)
+    else:
+        # A model of every order: start from the smallest grid that reads the kept
+        # products apart (2 M + 1 per axis, at least 32) and let the alias estimate and
+        # the doubling below decide how fine it must be.
+        n = tuple(max(v, 32) for v in alias_free_shape(1, mix, np.zeros(len(mix), dtype=bool)))
 
     y, lo, hi, edge = _eval_chunked(x_phasors, mix, transfer, n, np.arange(batch))
     converged = np.full(batch, degree is not None) | _resolved(y, edge)
