@@ -90,33 +90,53 @@ def run(
     # without any kept beyond it.
     extras = list(range(0, MAX_EXTRA_ORDER + 1, EXTRA_ORDER_STEP)) if len(nonlinear) > 1 else [0]
     degree = max((d for s in stages if (d := getattr(s, "grid_degree", None)) is not None), default=1)
+    if carrier_phasors_v is not None:
+        carrier_phasors_v = np.broadcast_to(
+            np.atleast_2d(np.asarray(carrier_phasors_v, dtype=complex)), (batch, len(lineup.carriers))
+        )
     unsettled = np.zeros(batch, dtype=bool)
+    rows = np.arange(batch)
+    prop: Propagation | None = None
     previous = None
     for step, extra in enumerate(extras):
         if step and lattice.grid_points(degree, order + extra) > MAX_GRID_POINTS:
             # No wider set fits the grid budget: what has not settled stays flagged.
-            unsettled |= step == 1
+            unsettled[rows] |= step == 1
             break
         products = lattice.products(order + extra)
         n_report = int(np.searchsorted(products.orders, order, side="right"))
         # Each product's frequency from its tones: exactly what the tones give (a product at
         # 7 x 100 + 2 x 130 MHz is at 960 MHz, not a rounding either side of a rule's edge).
-        freqs = tones @ products.mix.T.astype(float)
-        x_in = lineup.input_phasors(products.mix, offset, carrier_phasors_v)
-        prop = _cut(propagate(stages, x_in, products.coords, freqs, ref, axes), n_report)
+        freqs = tones[rows] @ products.mix.T.astype(float)
+        phasors = None if carrier_phasors_v is None else carrier_phasors_v[rows]
+        x_in = lineup.input_phasors(products.mix, offset[rows], phasors)
+        part = _cut(propagate(stages, x_in, products.coords, freqs, ref[:, rows], axes[rows]), n_report)
+        prop = part if prop is None else _merge(prop, part, rows)
         if previous is not None:
-            unsettled = ~_settled(previous.nodes, prop.nodes)
-            if not unsettled.any():
+            ok = _settled(previous, part.nodes)
+            unsettled[rows] = ~ok
+            if ok.all():
                 break
-        previous = prop
+            if nominal:
+                # Only what has not settled is carried further (the lineup's stages are the
+                # same for every row; a Monte Carlo batch's are per row, and run whole).
+                rows, part_nodes = rows[~ok], part.nodes[:, ~ok]
+            else:
+                part_nodes = part.nodes
+            previous = part_nodes
+        else:
+            previous = part.nodes
+    assert prop is not None  # the first pass always runs
     if unsettled.any():
         # The kept order reached its limit before every reported level settled: the levels
         # are flagged as not converged (the check then qualifies its verdict).
         converged = prop.converged.copy()
         converged[nonlinear] &= ~unsettled[None, :]
         prop = replace(prop, converged=converged)
+    products = lattice.products(order)
+    n_report = len(products.orders)
     mix = products.mix[:n_report]
-    freqs = freqs[:, :n_report]
+    freqs = tones @ mix.T.astype(float)
     if nominal and lineup.analysis.beyond_data == "error":
         _raise_beyond_data(lineup, prop, mix, freqs)
     return Result(lineup=lineup, mix=mix, freqs_hz=freqs, propagation=prop, tone_freqs_hz=tones)
@@ -130,6 +150,26 @@ def _cut(prop: Propagation, n: int) -> Propagation:
         added=prop.added[..., :n],
         response=prop.response[..., :n],
         beyond=prop.beyond[..., :n],
+    )
+
+
+def _merge(prop: Propagation, part: Propagation, rows: np.ndarray) -> Propagation:
+    """``prop`` with the batch rows ``rows`` replaced by ``part`` (a finer pass over them)."""
+    if len(rows) == prop.nodes.shape[1]:
+        return part
+
+    def put(whole, new, axis=1):
+        out = whole.copy()
+        out[(slice(None),) * axis + (rows,)] = new
+        return out
+
+    return Propagation(
+        nodes=put(prop.nodes, part.nodes),
+        added=put(prop.added, part.added),
+        response=put(prop.response, part.response),
+        extrapolated=put(prop.extrapolated, part.extrapolated),
+        converged=put(prop.converged, part.converged),
+        beyond=put(prop.beyond, part.beyond),
     )
 
 
