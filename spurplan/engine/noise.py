@@ -103,7 +103,11 @@ def output_noise_dbm_hz(lineup: Lineup, freq_hz, tone_freqs_hz=None) -> np.ndarr
             gain = (
                 np.abs(np.reshape(response_at(stage.response, np.reshape(f_next, (1, -1))), f_out.shape)) ** 2
             )
-        nf_db = stage.cascade_figures(lineup.r_ohm).noise_figure_db
+        # The stated figure itself where the stage holds one (cascade_figures() would also
+        # fit P1dB, for nothing here).
+        nf_db = getattr(stage, "noise_figure_db", None)
+        if nf_db is None:
+            nf_db = stage.cascade_figures(lineup.r_ohm).noise_figure_db
         if stage.transfer is None and stage.conversion is None:
             factor = 1.0 / np.maximum(np.minimum(gain, 1.0), 1e-300)
         else:

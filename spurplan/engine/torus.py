@@ -27,13 +27,13 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-import scipy.fft as sfft
 
 from spurplan.model.torus_grid import (  # re-exported: the engine's grid rules
     CONVERGENCE_FLOOR,
     CONVERGENCE_RTOL,
     MAX_GRID_POINTS,
     alias_free_shape,
+    fft_module,
     torus_coefficients,
 )
 
@@ -93,7 +93,7 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[i
     )
     grid[pos] += 0.5 * x_phasors[:, up]
     grid[neg] += 0.5 * np.conj(x_phasors[:, down])
-    samples = sfft.irfftn(grid, s=shape, axes=axes, norm="forward")
+    samples = fft_module(batch * math.prod(shape)).irfftn(grid, s=shape, axes=axes, norm="forward")
     flat = samples.reshape(batch, -1)
     # Absurd figures can overflow the model; propagate() turns that into an error.
     with np.errstate(over="ignore", invalid="ignore"):

@@ -404,6 +404,9 @@ class Amplifier(StageDefaults):
     band: PassBand | None = None
     ref_freq_hz: float = 0.0
     noise_figure_db: float | None = None
+    # cascade_figures() per impedance: the model's P1dB and Psat are fitted by bisection,
+    # and a check asks for them many times (not an init field: replace() starts afresh).
+    _figures: dict = field(default_factory=dict, init=False, compare=False, repr=False)
 
     kind = "amplifier"
 
@@ -443,13 +446,17 @@ class Amplifier(StageDefaults):
         -------
         CascadeFigures
         """
-        return CascadeFigures(
-            oip3_dbm=self.figures.oip3_dbm,
-            p1db_stated_dbm=self.figures.p1db_dbm,
-            p1db_model_dbm=output_p1db_dbm(self.transfer, r_ohm),
-            psat_model_dbm=amplifier_fit.model_psat_dbm(self.transfer, r_ohm),
-            noise_figure_db=self.noise_figure_db,
-        )
+        hit = self._figures.get(r_ohm)
+        if hit is None:
+            hit = CascadeFigures(
+                oip3_dbm=self.figures.oip3_dbm,
+                p1db_stated_dbm=self.figures.p1db_dbm,
+                p1db_model_dbm=output_p1db_dbm(self.transfer, r_ohm),
+                psat_model_dbm=amplifier_fit.model_psat_dbm(self.transfer, r_ohm),
+                noise_figure_db=self.noise_figure_db,
+            )
+            self._figures[r_ohm] = hit
+        return hit
 
     def spread_figures(self) -> dict[str, str]:
         """Gain, intercepts and compression points, each in dB."""

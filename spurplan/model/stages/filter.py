@@ -150,7 +150,12 @@ class Filter(StageDefaults):
         """Complex S21 at ``freq_hz`` (>= 0, any shape)."""
         if self.table is not None:
             return self.table(freq_hz)
-        return self.s_matrix(freq_hz)[..., 1, 0]
+        # The ABCD product in numpy (Pozar, from memory; ladders.ladder_s21), the same
+        # circuit as the scikit-rf network that s_matrix() builds, without its per-call
+        # network objects: the hot path of noise and sweeps.
+        assert self.prototype is not None  # exactly one of table and prototype is set
+        f = np.asarray(freq_hz, dtype=float)
+        return ladder_s21(self.prototype, f.reshape(-1), self.r_ohm).reshape(f.shape)
 
     def s_matrix(self, freq_hz: np.ndarray) -> np.ndarray:
         """Full 2x2 S-matrix at ``freq_hz`` (any shape), shape ``freq_hz.shape + (2, 2)``."""
