@@ -98,6 +98,9 @@ def _torus_eval(x_phasors: np.ndarray, mix: np.ndarray, transfer, shape: tuple[i
     # Absurd figures can overflow the model; propagate() turns that into an error.
     with np.errstate(over="ignore", invalid="ignore"):
         out = transfer(samples)
+    if transfer.degree is not None:
+        # A polynomial on its alias-free grid has no aliases to estimate.
+        return torus_coefficients(out, mix), flat.min(axis=1), flat.max(axis=1), np.zeros(batch)
     phasors, edge = torus_coefficients(out, mix, tail=True)
     return phasors, flat.min(axis=1), flat.max(axis=1), edge
 
