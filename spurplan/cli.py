@@ -343,7 +343,7 @@ def check(lineup, fmt, combine, plot_file, plot_size, strict):
 
     The verdict is PASS, FAIL, INCOMPLETE (the modelled products pass but a stage
     lacks a figure, so some products are not modelled) or UNCERTAIN (they pass but
-    the model misses a stated figure).  Exit status: 0 the mask is met, 1 it is
+    the model misses a stated figure, or its levels did not settle).  Exit status: 0 the mask is met, 1 it is
     violated (with --strict or [analysis] strict = true: also INCOMPLETE and
     UNCERTAIN), 2 bad input.
     """

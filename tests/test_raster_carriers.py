@@ -264,3 +264,50 @@ def test_a_saturating_grid_is_accepted_only_when_its_aliases_are_below_the_floor
     want = torus._eval_chunked(x, products.coords, transfer, fine, np.arange(len(x)))[0]
     scale = np.abs(want).max()
     assert np.all(np.abs(got.spectrum - want) <= CONVERGENCE_RTOL * np.abs(want) + CONVERGENCE_FLOOR * scale)
+
+
+def test_levels_that_do_not_settle_keep_the_check_from_pass():
+    # Two carriers driven deep into three saturating stages: products of every order stay
+    # strong, and within max_order + 12 the reported levels still move by more than 0.01 dB.
+    # A lax invented limit that every product meets: the check must not read PASS.
+    from spurplan.analyses.check import check
+
+    stages = [
+        {
+            "kind": "amplifier",
+            "name": "driver",
+            "gain": "16 dB",
+            "oip3": "+34 dBm",
+            "oip2": "+50 dBm",
+            "psat": "+24 dBm",
+        },
+        {
+            "kind": "amplifier",
+            "name": "pre",
+            "gain": "12 dB",
+            "oip3": "+40 dBm",
+            "oip2": "+56 dBm",
+            "psat": "+30 dBm",
+        },
+        {
+            "kind": "amplifier",
+            "name": "pa",
+            "gain": "15 dB",
+            "oip3": "+48 dBm",
+            "oip2": "+64 dBm",
+            "psat": "+39 dBm",
+        },
+    ]
+    doc = {
+        "carrier": [{"freq": "455 MHz", "power": "0 dBm"}, {"freq": "455.025 MHz", "power": "0 dBm"}],
+        "stage": [{**st, "noise_figure": "5 dB"} for st in stages],
+        "mask": {
+            "rule": [{"name": "lax", "start": "9 kHz", "stop": "10 GHz", "limit": "+60 dBm", "rbw": "1 MHz"}]
+        },
+        "analysis": {"max_order": 10},
+    }
+    outcome = check(from_dict(doc))
+    assert outcome.passed and not outcome.missing_figures  # preconditions
+    assert outcome.not_converged
+    assert outcome.status == "UNCERTAIN"
+    assert "levels not settled" in outcome.verdict

@@ -88,6 +88,9 @@ class CheckResult:
         the model leaves out): the status is then INCOMPLETE.
     spectrum : LineSpectrum or None
         With modulated carriers, the output's line spectrum the rows were judged on.
+    not_converged : tuple of str
+        Stages whose levels did not settle (a grid at its limit, or products kept beyond
+        ``max_order`` still moving them): the status is then at best UNCERTAIN.
     """
 
     result: Result
@@ -99,6 +102,7 @@ class CheckResult:
     noise_not_judged: tuple[str, ...] = ()
     acpr: tuple[dict, ...] = ()
     spectrum: LineSpectrum | None = None
+    not_converged: tuple[str, ...] = ()
     acpr_not_judged: tuple[str, ...] = ()
 
     @property
@@ -141,7 +145,7 @@ class CheckResult:
             return "FAIL"
         if self.missing_figures or self.unjudged_rows or self.noise_not_judged or self.acpr_not_judged:
             return "INCOMPLETE"
-        if self.figures_missed:
+        if self.figures_missed or self.not_converged:
             return "UNCERTAIN"
         return "PASS"
 
@@ -182,6 +186,12 @@ class CheckResult:
         if self.acpr_not_judged:
             acpr = "ACPR not judged: " + "; ".join(self.acpr_not_judged)
             gaps = f"{acpr}; {gaps}" if gaps else acpr
+        if self.not_converged:
+            unsettled = (
+                f"levels not settled at {', '.join(repr(s) for s in self.not_converged)} (the model needs "
+                "more products or a finer grid than spurplan allows there: a lower max_order or drive)"
+            )
+            gaps = f"{unsettled}; {gaps}" if gaps else unsettled
         return f"{status}, {core}" + (f"; {gaps}" if gaps else "")
 
     def strict_failure(self, strict: bool | None = None) -> bool:
@@ -505,12 +515,13 @@ def check(lineup, result=None, combine: str | None = None, batch: int = 0) -> Ch
 
 
 def _finish(
-    out, lineup, mask, result, ev, levels, spread_hz, batch, carriers_dbm=None, spectrum=None
+    out, lineup, mask, result, ev, levels, spread_hz, batch, carriers_dbm=None, spectrum=None, unsettled=None
 ) -> CheckResult:
     """Add the noise and ACPR rows to the product rows ``out`` and make the CheckResult.
 
     ``spectrum`` (a modulated lineup's line spectrum) means ``levels`` are its lines,
-    regrowth included; ``carriers_dbm`` then are the carriers' powers read from it.
+    regrowth included; ``carriers_dbm`` then are the carriers' powers read from it, and
+    ``unsettled`` the stages whose spectrum did not settle (default: the run's own).
     """
     f_highest = highest_output_carrier_hz(result, batch)
     carrier_dbm = float(ev.carrier_dbm[0])
@@ -534,7 +545,14 @@ def _finish(
         acpr=tuple(acpr.entries),
         acpr_not_judged=tuple(acpr.not_judged),
         spectrum=spectrum,
+        not_converged=tuple(_unsettled(result, batch) if unsettled is None else unsettled),
     )
+
+
+def _unsettled(result, batch: int) -> list[str]:
+    """Stages of a run whose levels did not settle at batch element ``batch``."""
+    flags = ~result.propagation.converged[:, batch]
+    return [s.name for s, bad in zip(result.lineup.stages, flags, strict=True) if bad]
 
 
 # Frequencies per rule at which the output noise is read (log-spaced over the range the
@@ -1137,7 +1155,13 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
     _merge_rows(out, added)
     owners = np.argmax(np.abs(spec.mix[:, len(lineup.mixers) :]), axis=1)
     carriers_dbm = np.array([_carrier_power_dbm(spec, owners, k) for k in range(len(lineup.carriers))])
-    return _finish(out, lineup, mask, result, ev, levels, np.zeros(len(spec.freq_hz)), 0, carriers_dbm, spec)
+    # The spectrum's realizations are its run's batch: a stage is unsettled if any one is.
+    flags = ~spec_result.propagation.converged.all(axis=1)
+    unsettled = [s.name for s, bad in zip(lineup.stages, flags, strict=True) if bad]
+    unsettled += [n for n in _unsettled(result, 0) if n not in unsettled]
+    return _finish(
+        out, lineup, mask, result, ev, levels, np.zeros(len(spec.freq_hz)), 0, carriers_dbm, spec, unsettled
+    )
 
 
 def _cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:

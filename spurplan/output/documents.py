@@ -205,6 +205,7 @@ def check_summary(outcome: CheckResult) -> dict:
         "complete": outcome.complete,
         "unjudged_out_of_band": len(outcome.unjudged_rows),
         "noise_not_judged": list(outcome.noise_not_judged),
+        "not_converged": list(outcome.not_converged),
         "acpr_not_judged": list(outcome.acpr_not_judged),
         "missing_figures": [{"stage": st, "figure": what} for st, what in outcome.missing_figures],
         "figures_met": not outcome.figures_missed,
