@@ -381,6 +381,25 @@ def bands(name, fmt):
         click.echo(catalogue_text(rows) if name is None else ruleset_text(rows, summary), nl=False)
 
 
+_scheduler_option = click.option(
+    "--scheduler", help="Address of a running dask.distributed scheduler, e.g. tcp://127.0.0.1:8786."
+)
+_workers_option = click.option(
+    "--workers", type=click.IntRange(1, 256), help="Start a local Dask cluster with this many workers."
+)
+
+
+def _cluster_choice(scheduler, workers):
+    """The checked scheduler address (or None); --scheduler and --workers exclude each other."""
+    from spurplan.analyses.cluster import check_scheduler_address
+
+    if scheduler is not None and workers is not None:
+        raise click.UsageError("give either --scheduler or --workers")
+    if scheduler is not None:
+        scheduler = check_scheduler_address(scheduler)  # '' is an error, not "in process"
+    return scheduler
+
+
 def _progress(total: int, label: str):
     """A progress bar on a terminal (stderr), nothing when piped."""
     import contextlib
@@ -418,7 +437,9 @@ def _parse(kind, text, option, within=None):
 @_combine_option
 @click.option("--plot", "plot_file", type=_OutputFile(), help="Draw products and limits against drive.")
 @_plot_size_option
-def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size):
+@_scheduler_option
+@_workers_option
+def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size, scheduler, workers):
     """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
     from spurplan.analyses.sweep import drive_sweep
     from spurplan.io.channels import sweep_points
@@ -428,6 +449,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
     lo, hi = _parse("power", start, "--start"), _parse("power", stop, "--stop")
     dstep = _parse("db", step, "--step")
     size = _size(plot_size)
+    scheduler = _cluster_choice(scheduler, workers)
     lu = _load(lineup)
     n = len(sweep_points(lo, hi, dstep, "drive", "dBm", "dB"))
     with _progress(n, "drive sweep") as bar:
@@ -439,6 +461,8 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
             target_output=target_output,
             combine=combine,
             progress=None if bar is None else bar.update,
+            scheduler=scheduler,
+            workers=workers,
         )
     _warn_model(lu)
     if plot_file:
@@ -464,7 +488,9 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 @_combine_option
 @_plot_option("Draw product frequency against carrier frequency.")
 @_plot_size_option
-def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size):
+@_scheduler_option
+@_workers_option
+def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size, scheduler, workers):
     """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
     from spurplan.analyses.sweep import tune_sweep
     from spurplan.io.channels import read_channels, sweep_points
@@ -481,9 +507,17 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
             raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
         lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
         freqs = sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
+    scheduler = _cluster_choice(scheduler, workers)
     lu = _load(lineup)
     with _progress(len(freqs), "tuning sweep") as bar:
-        sw = tune_sweep(lu, freqs, combine=combine, progress=None if bar is None else bar.update)
+        sw = tune_sweep(
+            lu,
+            freqs,
+            combine=combine,
+            progress=None if bar is None else bar.update,
+            scheduler=scheduler,
+            workers=workers,
+        )
     _warn_model(lu)
     if plot_file:
         from spurplan.output.plots import save_tune_plot
@@ -661,25 +695,18 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
     type=click.Path(dir_okay=False),
     help="Also evaluate at these channels (one frequency per line).",
 )
-@click.option(
-    "--scheduler", help="Address of a running dask.distributed scheduler, e.g. tcp://127.0.0.1:8786."
-)
-@click.option(
-    "--workers", type=click.IntRange(1, 256), help="Start a local Dask cluster with this many workers."
-)
+@_scheduler_option
+@_workers_option
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
 @click.option("--plot", "plot_file", type=_OutputFile(), help="Draw the histogram of worst margins.")
 def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
     """Monte Carlo yield of LINEUP over its part tolerances and corners."""
-    from spurplan.analyses.montecarlo import check_scheduler_address, run_yield
+    from spurplan.analyses.montecarlo import run_yield
     from spurplan.io.channels import read_channels
     from spurplan.output.documents import yield_document
     from spurplan.output.terminal import yield_text
 
-    if scheduler is not None and workers is not None:
-        raise click.UsageError("give either --scheduler or --workers")
-    if scheduler is not None:
-        scheduler = check_scheduler_address(scheduler)  # '' is an error, not "in process"
+    scheduler = _cluster_choice(scheduler, workers)
     lu = _load(lineup)
     channels = read_channels(channel_file) if channel_file else None
     with _progress(samples, "yield") as bar:

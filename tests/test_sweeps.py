@@ -331,3 +331,22 @@ def test_sweep_and_yield_headlines_say_incomplete_when_a_figure_is_missing(tmp_p
             code, out, _, _, _ = run_in_process([*args, "--format", "json"])
             summary = json.loads(out)["summary"]
             assert summary["model_gaps"].startswith("INCOMPLETE") is caveat
+
+
+@pytest.mark.slow
+def test_sweeps_on_a_local_dask_cluster_equal_the_sweeps_in_process(monkeypatch):
+    # The same chunks run on two worker processes: every margin is the same number.
+    pytest.importorskip("dask.distributed")
+    from spurplan.analyses import sweep as sweep_module
+
+    monkeypatch.setattr(sweep_module, "CHUNK_POINTS", 16)  # several jobs from a short sweep
+    lineup = _uhf_band_lineup()
+    here = drive_sweep(lineup, -10.0, 5.0, 0.25)
+    there = drive_sweep(lineup, -10.0, 5.0, 0.25, workers=2)
+    np.testing.assert_array_equal(here.margin_db, there.margin_db)
+    assert here.status == there.status
+    channels = np.arange(460e6, 470e6 + 1, 125e3)
+    t_here = tune_sweep(lineup, channels)
+    t_there = tune_sweep(lineup, channels, workers=2)
+    np.testing.assert_array_equal(t_here.worst_margin_db, t_there.worst_margin_db)
+    assert t_here.failing == t_there.failing

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.analyses.check import bands_at, check, evaluate, require_mask
+from spurplan.analyses.cluster import map_on_dask
 from spurplan.errors import SweepError  # re-exported (lives in errors.py)
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER
 from spurplan.io.channels import sweep_points
@@ -99,14 +100,45 @@ def _drive_range(start_dbm: float, stop_dbm: float, target_output: bool) -> None
     check_within(stop_dbm, within, "stop", "dBm")
 
 
-def _batched(run, points: np.ndarray, progress):
-    """Evaluate ``run(points[chunk])`` chunk by chunk; concatenate the arrays it returns."""
-    parts = []
-    for s in range(0, len(points), CHUNK_POINTS):
-        parts.append(run(points[s : s + CHUNK_POINTS]))
-        if progress is not None:
-            progress(min(CHUNK_POINTS, len(points) - s))
+def _batched(function, lineup, points: np.ndarray, combine, progress, scheduler=None, workers=None):
+    """Evaluate ``function(lineup, points[chunk], combine)`` chunk by chunk, in process or on
+    a Dask cluster (``scheduler`` or ``workers``, as the yield's); concatenate the arrays it
+    returns.  The chunks and their arithmetic are the same either way, so are the results."""
+    starts = range(0, len(points), CHUNK_POINTS)
+    jobs = [(lineup, points[s : s + CHUNK_POINTS], combine) for s in starts]
+    if scheduler is not None or workers is not None:
+        parts, _ = map_on_dask(function, jobs, scheduler, workers, progress, size_of=lambda job: len(job[1]))
+    else:
+        parts = []
+        for job in jobs:
+            parts.append(function(*job))
+            if progress is not None:
+                progress(len(job[1]))
     return [np.concatenate(p) for p in zip(*parts, strict=True)]
+
+
+def _drive_chunk(lineup, chunk: np.ndarray, combine):
+    """One chunk of a drive sweep: slot frequencies and levels, limits, margins, worst margin,
+    reference-carrier output and the extrapolation flag, per drive offset (dB)."""
+    result, levels, ev, out = _drive_eval(lineup, chunk, combine)
+    return (
+        levels.freq_hz,
+        levels.level_dbm,
+        ev.limit_dbm,
+        ev.margin_db,
+        ev.worst_margin_db,
+        out,
+        result.propagation.extrapolated.any(axis=0),
+    )
+
+
+def _tune_chunk(lineup, chunk: np.ndarray, combine):
+    """One chunk of a tuning sweep: slot frequencies, margins, rules, representatives, signs
+    and the worst margin, per swept frequency (Hz)."""
+    result = lineup.run(tone_freqs_hz=lineup.tuned_tones_hz(chunk))
+    levels = result.levels(None, combine)
+    ev = evaluate(lineup, result, levels)
+    return levels.freq_hz, ev.margin_db, ev.rule, levels.rep, levels.sign, ev.worst_margin_db
 
 
 def _drive_eval(lineup, offsets_db: np.ndarray, combine):
@@ -212,6 +244,8 @@ def drive_sweep(
     target_output: bool = False,
     combine=None,
     progress=None,
+    scheduler: str | None = None,
+    workers: int | None = None,
 ) -> DriveSweep:
     """Sweep the drive; find the highest compliant drive.
 
@@ -229,6 +263,10 @@ def drive_sweep(
         Override of the analysis combining mode.
     progress : callable, optional
         Called with the number of points evaluated after each chunk.
+    scheduler : str or None, optional
+        Run the chunks on this dask.distributed scheduler (identical results).
+    workers : int or None, optional
+        Run the chunks on a local Dask cluster of this many workers (identical results).
 
     Returns
     -------
@@ -256,19 +294,9 @@ def drive_sweep(
     valid = np.isfinite(offsets)
     run_offsets = np.where(valid, offsets, 0.0)
 
-    def one_chunk(chunk):
-        result, levels, ev, out = _drive_eval(lineup, chunk, combine)
-        return (
-            levels.freq_hz,
-            levels.level_dbm,
-            ev.limit_dbm,
-            ev.margin_db,
-            ev.worst_margin_db,
-            out,
-            result.propagation.extrapolated.any(axis=0),
-        )
-
-    freq, level, limit, margin, worst, out, extrap = _batched(one_chunk, run_offsets, progress)
+    freq, level, limit, margin, worst, out, extrap = _batched(
+        _drive_chunk, lineup, run_offsets, combine, progress, scheduler, workers
+    )
     worst = np.where(valid, worst, np.nan)
     labels = _slot_labels(lineup, run_offsets[:1], combine)
     inputs = nominal + offsets
@@ -434,7 +462,14 @@ class TuneSweep:
 
 
 def tune_sweep(
-    lineup, carrier_hz: np.ndarray, *, combine=None, refine: bool = True, progress=None
+    lineup,
+    carrier_hz: np.ndarray,
+    *,
+    combine=None,
+    refine: bool = True,
+    progress=None,
+    scheduler: str | None = None,
+    workers: int | None = None,
 ) -> TuneSweep:
     """Sweep the tuning at fixed drive.
 
@@ -454,6 +489,10 @@ def tune_sweep(
         Refine the edges of failing channel ranges by bisection.
     progress : callable, optional
         Called with the number of channels evaluated after each chunk.
+    scheduler : str or None, optional
+        Run the chunks on this dask.distributed scheduler (identical results).
+    workers : int or None, optional
+        Run the chunks on a local Dask cluster of this many workers (identical results).
 
     Returns
     -------
@@ -481,13 +520,9 @@ def tune_sweep(
     if why := work_refusal(lineup, carrier_hz.size, "channels"):
         raise SweepError(why)
 
-    def one_chunk(chunk):
-        result = lineup.run(tone_freqs_hz=tones_for(chunk))
-        levels = result.levels(None, combine)
-        ev = evaluate(lineup, result, levels)
-        return levels.freq_hz, ev.margin_db, ev.rule, levels.rep, levels.sign, ev.worst_margin_db
-
-    freq, margin, rule, rep, sign, worst = _batched(one_chunk, carrier_hz, progress)
+    freq, margin, rule, rep, sign, worst = _batched(
+        _tune_chunk, lineup, carrier_hz, combine, progress, scheduler, workers
+    )
     result0 = lineup.run(tone_freqs_hz=tones_for(carrier_hz[:1]))
     plus, minus = labels(result0.mix, lineup.tone_names)
     label = np.where(sign > 0, np.asarray(plus, dtype=object)[rep], np.asarray(minus, dtype=object)[rep])
