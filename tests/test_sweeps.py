@@ -350,3 +350,22 @@ def test_sweeps_on_a_local_dask_cluster_equal_the_sweeps_in_process(monkeypatch)
     t_there = tune_sweep(lineup, channels, workers=2)
     np.testing.assert_array_equal(t_here.worst_margin_db, t_there.worst_margin_db)
     assert t_here.failing == t_there.failing
+
+
+def test_drive_points_whose_levels_do_not_settle_make_the_headline_uncertain():
+    # Three saturating stages driven hard (the case of
+    # tests/test_raster_carriers.py::test_levels_that_do_not_settle_keep_the_check_from_pass):
+    # a lax invented limit is met at every drive, but the range is no compliance claim.
+    from spurplan.output.verdicts import drive_verdict
+
+    stages = [
+        amp("driver", gain="16 dB", oip3="+34 dBm", oip2="+50 dBm", psat="+24 dBm", noise_figure="5 dB"),
+        amp("pre", gain="12 dB", oip3="+40 dBm", oip2="+56 dBm", psat="+30 dBm", noise_figure="5 dB"),
+        amp("pa", gain="15 dB", oip3="+48 dBm", oip2="+64 dBm", psat="+39 dBm", noise_figure="5 dB"),
+    ]
+    carriers = [{"freq": "455 MHz", "power": "0 dBm"}, {"freq": "455.025 MHz", "power": "0 dBm"}]
+    mask = {"rule": [{"name": "lax", "start": "9 kHz", "stop": "10 GHz", "limit": "+60 dBm", "rbw": "1 MHz"}]}
+    sweep = drive_sweep(_lineup(stages, carriers, mask), -2.0, 0.0, 1.0)
+    assert sweep.status == "compliant throughout"  # precondition
+    assert sweep.unsettled_signed >= 1
+    assert "UNCERTAIN: levels not settled" in drive_verdict(sweep)

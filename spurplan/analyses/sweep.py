@@ -129,6 +129,7 @@ def _drive_chunk(lineup, chunk: np.ndarray, combine):
         ev.worst_margin_db,
         out,
         result.propagation.extrapolated.any(axis=0),
+        ~result.propagation.converged.all(axis=0),
     )
 
 
@@ -138,7 +139,8 @@ def _tune_chunk(lineup, chunk: np.ndarray, combine):
     result = lineup.run(tone_freqs_hz=lineup.tuned_tones_hz(chunk))
     levels = result.levels(None, combine)
     ev = evaluate(lineup, result, levels)
-    return levels.freq_hz, ev.margin_db, ev.rule, levels.rep, levels.sign, ev.worst_margin_db
+    unsettled = ~result.propagation.converged.all(axis=0)
+    return levels.freq_hz, ev.margin_db, ev.rule, levels.rep, levels.sign, ev.worst_margin_db, unsettled
 
 
 def _drive_eval(lineup, offsets_db: np.ndarray, combine):
@@ -189,6 +191,14 @@ class DriveSweep:
     status: str
     extrapolated: np.ndarray
     target_output: bool = False
+    unsettled: np.ndarray | None = None
+
+    @property
+    def unsettled_signed(self) -> int:
+        """Points within the compliant range whose levels did not settle (at most UNCERTAIN)."""
+        if self.unsettled is None or self.max_compliant_input_dbm is None:
+            return 0
+        return int(np.sum(self.unsettled & (self.input_dbm <= self.max_compliant_input_dbm + 1e-9)))
 
     @property
     def rows(self) -> dict[str, list]:
@@ -294,7 +304,7 @@ def drive_sweep(
     valid = np.isfinite(offsets)
     run_offsets = np.where(valid, offsets, 0.0)
 
-    freq, level, limit, margin, worst, out, extrap = _batched(
+    freq, level, limit, margin, worst, out, extrap, unsettled = _batched(
         _drive_chunk, lineup, run_offsets, combine, progress, scheduler, workers
     )
     worst = np.where(valid, worst, np.nan)
@@ -331,6 +341,7 @@ def drive_sweep(
         limiting=limiting,
         status=status,
         extrapolated=extrap,
+        unsettled=np.asarray(unsettled, dtype=bool),
         target_output=target_output,
     )
 
@@ -429,6 +440,7 @@ class TuneSweep:
     worst_margin_db: np.ndarray
     rows: dict
     failing: list
+    unsettled: np.ndarray | None = None
 
     def _repr_html_(self) -> str:
         """Jupyter: how many ranges fail, then the rows that fail or land in a band."""
@@ -520,7 +532,7 @@ def tune_sweep(
     if why := work_refusal(lineup, carrier_hz.size, "channels"):
         raise SweepError(why)
 
-    freq, margin, rule, rep, sign, worst = _batched(
+    freq, margin, rule, rep, sign, worst, unsettled = _batched(
         _tune_chunk, lineup, carrier_hz, combine, progress, scheduler, workers
     )
     result0 = lineup.run(tone_freqs_hz=tones_for(carrier_hz[:1]))
@@ -557,6 +569,7 @@ def tune_sweep(
         worst_margin_db=worst,
         rows=rows,
         failing=failing,
+        unsettled=np.asarray(unsettled, dtype=bool),
     )
 
 

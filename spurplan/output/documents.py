@@ -277,6 +277,7 @@ def drive_summary(sweep: DriveSweep) -> dict:
         "lineup": sweep.lineup.name,
         "status": sweep.status,
         "model_gaps": model_caveat(sweep.lineup).lstrip("; "),
+        "unsettled_points": sweep.unsettled_signed,
         "max_compliant_input_dbm": sweep.max_compliant_input_dbm,
         "max_compliant_output_dbm": sweep.max_compliant_output_dbm,
         "limiting": sweep.limiting,
@@ -315,6 +316,7 @@ def tune_document(sweep: TuneSweep) -> Document:
     summary = {
         "lineup": sweep.lineup.name,
         "model_gaps": model_caveat(sweep.lineup).lstrip("; "),
+        "unsettled_channels": 0 if sweep.unsettled is None else int(sweep.unsettled.sum()),
         "swept": sweep.variable,
         "channels": len(sweep.carrier_hz),
         "pass": sweep.passed,

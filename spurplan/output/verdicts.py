@@ -66,6 +66,28 @@ def model_caveat(lineup) -> str:
 PRODUCTS_ONLY = " (products only: check judges the noise and ACPR)"
 
 
+def unsettled_caveat(count: int, total: int, what: str) -> str:
+    """``"; UNCERTAIN: levels not settled at N of M points"`` (empty for none).
+
+    Parameters
+    ----------
+    count, total : int
+        Points whose levels did not settle, and points in all.
+    what : str
+        What the points are ("drive points", "channels").
+
+    Returns
+    -------
+    str
+    """
+    if not count:
+        return ""
+    return (
+        f"; UNCERTAIN: levels not settled at {count} of {total} {what} (the model needs more products "
+        "or a finer grid than spurplan allows there: a lower max_order or drive)"
+    )
+
+
 def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
     """The highest compliant drive of a sweep, and the product and rule that set it.
 
@@ -100,6 +122,7 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
             + _in_band(lim["band"])
             + PRODUCTS_ONLY
             + model_caveat(sweep.lineup)
+            + unsettled_caveat(sweep.unsettled_signed, len(sweep.input_dbm), "drive points")
         )
     if sweep.status == "fails throughout":
         if report:
@@ -120,7 +143,10 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
         return "The mask is met over the whole sweep."
     return (
         "HIGHEST COMPLIANT DRIVE: the mask is met over the whole range "
-        f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)" + PRODUCTS_ONLY + model_caveat(sweep.lineup)
+        f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)"
+        + PRODUCTS_ONLY
+        + model_caveat(sweep.lineup)
+        + unsettled_caveat(sweep.unsettled_signed, len(sweep.input_dbm), "drive points")
     )
 
 
@@ -160,7 +186,13 @@ def tune_verdict(sweep: TuneSweep) -> list[str]:
         the one line that says every channel meets the mask.
     """
     if not sweep.failing:
-        return ["TUNING RANGE: every channel meets the mask" + PRODUCTS_ONLY + model_caveat(sweep.lineup)]
+        unsettled = 0 if sweep.unsettled is None else int(sweep.unsettled.sum())
+        return [
+            "TUNING RANGE: every channel meets the mask"
+            + PRODUCTS_ONLY
+            + model_caveat(sweep.lineup)
+            + unsettled_caveat(unsettled, len(sweep.carrier_hz), "channels")
+        ]
     return [
         f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
         + _in_band(r["band"])
