@@ -369,3 +369,25 @@ def test_drive_points_whose_levels_do_not_settle_make_the_headline_uncertain():
     assert sweep.status == "compliant throughout"  # precondition
     assert sweep.unsettled_signed >= 1
     assert "UNCERTAIN: levels not settled" in drive_verdict(sweep)
+
+
+def test_yield_samples_whose_levels_do_not_settle_make_the_headline_uncertain():
+    # The same hard-driven chain with a small gain spread: every sample meets the lax limit,
+    # and those counted as passing without settled levels keep the yield from a clean claim.
+    from spurplan.analyses.montecarlo import run_yield
+    from spurplan.output.verdicts import yield_verdict
+
+    stages = [
+        amp("driver", gain="16 dB", oip3="+34 dBm", oip2="+50 dBm", psat="+24 dBm", noise_figure="5 dB"),
+        amp("pre", gain="12 dB", oip3="+40 dBm", oip2="+56 dBm", psat="+30 dBm", noise_figure="5 dB"),
+        {
+            **amp("pa", gain="15 dB", oip3="+48 dBm", oip2="+64 dBm", psat="+39 dBm", noise_figure="5 dB"),
+            "tolerance": {"gain": "0.2 dB"},
+        },
+    ]
+    carriers = [{"freq": "455 MHz", "power": "0 dBm"}, {"freq": "455.025 MHz", "power": "0 dBm"}]
+    mask = {"rule": [{"name": "lax", "start": "9 kHz", "stop": "10 GHz", "limit": "+60 dBm", "rbw": "1 MHz"}]}
+    res = run_yield(_lineup(stages, carriers, mask), 8, seed=1)
+    assert res.passed == 8  # precondition
+    assert res.unsettled_passing >= 1
+    assert "UNCERTAIN: levels not settled" in yield_verdict(res)

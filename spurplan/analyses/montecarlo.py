@@ -210,12 +210,14 @@ def evaluate_batch(
     -------
     dict
         ``worst_margin_db`` ndarray (n,) in dB over every corner and channel, ``label``
-        and ``rule`` lists of str (n), ``passed`` ndarray of bool (n,).
+        and ``rule`` lists of str (n), ``passed`` ndarray of bool (n,), ``unsettled``
+        ndarray of bool (n,): a sample whose levels did not settle at some corner or channel.
     """
     deltas = draw(tolerances, n, seed, batch)
     corners = tolerances.corners or (None,)
     tones = np.atleast_2d(lineup.tone_freqs_hz if channels_hz is None else lineup.tuned_tones_hz(channels_hz))
     worst = np.full(n, np.inf)
+    unsettled = np.zeros(n, dtype=bool)
     labels = np.full(n, "", dtype=object)
     rules = np.full(n, "", dtype=object)
     for corner in corners:
@@ -225,6 +227,7 @@ def evaluate_batch(
             levels = result.levels(None, combine)
             ev = evaluate(lineup, result, levels)
             w = ev.worst_margin_db
+            unsettled |= ~result.propagation.converged.all(axis=0)
             slot = ev.worst_slot
             names = _slot_names(result, levels, slot)
             rule = [
@@ -234,7 +237,13 @@ def evaluate_batch(
             worst = np.where(better, w, worst)
             labels = np.where(better, names, labels)
             rules = np.where(better, np.asarray(rule, dtype=object), rules)
-    return {"worst_margin_db": worst, "label": labels.tolist(), "rule": rules.tolist(), "passed": worst >= 0}
+    return {
+        "worst_margin_db": worst,
+        "label": labels.tolist(),
+        "rule": rules.tolist(),
+        "passed": worst >= 0,
+        "unsettled": unsettled,
+    }
 
 
 def _slot_names(result, levels, slot: np.ndarray) -> np.ndarray:
@@ -283,6 +292,7 @@ class YieldResult:
     worst_margin_db: np.ndarray
     causes: list
     where: str
+    unsettled_passing: int = 0
 
     @property
     def yield_fraction(self) -> float:
@@ -392,6 +402,7 @@ def run_yield(
     labels = [x for p in parts for x in p["label"]]
     rules = [x for p in parts for x in p["rule"]]
     failing = worst < 0
+    unsettled = np.concatenate([p["unsettled"] for p in parts])
     counts: dict = {}
     for i in np.nonzero(failing)[0]:
         counts[(labels[i], rules[i])] = counts.get((labels[i], rules[i]), 0) + 1
@@ -407,4 +418,5 @@ def run_yield(
         worst_margin_db=worst,
         causes=causes,
         where=where,
+        unsettled_passing=int((unsettled & ~failing).sum()),
     )

@@ -374,6 +374,7 @@ def yield_document(res: YieldResult) -> Document:
     summary = {
         "lineup": res.lineup.name,
         "model_gaps": model_caveat(res.lineup).lstrip("; "),
+        "unsettled_passing_samples": res.unsettled_passing,
         "samples": res.samples,
         "seed": res.seed,
         "passed": res.passed,

@@ -242,7 +242,10 @@ def yield_verdict(res: YieldResult) -> str:
     lo, hi = res.interval
     return (
         f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {res.samples} pass); "
-        f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %" + PRODUCTS_ONLY + model_caveat(res.lineup)
+        f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+        + PRODUCTS_ONLY
+        + model_caveat(res.lineup)
+        + unsettled_caveat(res.unsettled_passing, res.samples, "samples (counted as passing)")
     )
 
 
