@@ -390,3 +390,24 @@ def test_remedy_does_not_call_an_incomplete_check_met(tmp_path):
     out = invoke("remedy", path, "--margin", "1 dB", expect=None).stdout
     assert "already meets" not in out
     assert "INCOMPLETE" in out and "out-of-band domain not judged" in out
+
+
+def test_lines_beyond_a_touchstone_stages_data_are_flagged():
+    # The bundled VHF example's filter data end at 2 GHz (examples/data/vhf_lpf.s2p): with a
+    # modulated carrier at 156.8 MHz and order 14, the 13th zone (2038 MHz, arithmetic) and the
+    # difference band (below its 1 MHz start) pass it beyond its data, and their rows say so,
+    # as CW products' do.
+    import tomllib
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1] / "examples"
+    doc = tomllib.loads((root / "vhf_marine_touchstone.toml").read_text())
+    doc["carrier"][0]["bandwidth"] = "25 kHz"
+    doc["carrier"][0]["modulation"] = {"kind": "gaussian", "tones": 16, "realizations": 4}
+    doc["analysis"].update({"max_order": 14, "beyond_data": "hold"})
+    outcome = check(from_dict(doc, base_dir=root))
+    rows = outcome.rows
+    flagged = {(lab, b) for lab, b in zip(rows["label"], rows["beyond_data"], strict=True)}
+    assert ("13f1 zone", True) in flagged
+    assert ("difference band", True) in flagged
+    assert ("2f1 zone", False) in flagged and ("2f1 zone", True) not in flagged

@@ -1072,7 +1072,7 @@ def _spectrum_levels(spec):
         level_dbm=spec.power_dbm[None, :],
         valid=np.ones((1, n), dtype=bool),
         is_carrier=carrier,
-        beyond=np.zeros((1, n), dtype=bool),
+        beyond=spec.beyond[None, :],
         rep=np.arange(n)[None, :],
         sign=np.ones((1, n), dtype=int),
         members=np.ones((1, n), dtype=int),
@@ -1141,7 +1141,7 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
                     "mix": mix.tolist(),
                     "label": _cluster_label(mix, names, float(spec.freq_hz[g]), result),
                     "dbc": total - ref,
-                    "beyond_data": False,
+                    "beyond_data": bool(spec.beyond[members].any()),
                     "model_extrapolated": extrapolated,
                 }
             )

@@ -119,6 +119,8 @@ class LineSpectrum:
     top_source : ndarray of int, (G,)
         Largest contributor to each line (0 the input, k stage k), in the first realization.
     realizations : int
+    beyond : ndarray of bool, (G,)
+        The line fell outside a data-based stage's data on its way (in any realization).
     """
 
     freq_hz: np.ndarray
@@ -128,6 +130,7 @@ class LineSpectrum:
     mix: np.ndarray
     top_source: np.ndarray
     realizations: int
+    beyond: np.ndarray
 
     @property
     def psd_dbm_hz(self) -> np.ndarray:
@@ -247,4 +250,5 @@ def spectrum_of(
         mix=reps @ fold,
         top_source=lv.top_source[0, keep],
         realizations=len(ex.phasors_v),
+        beyond=lv.beyond.any(axis=0)[keep],
     )
