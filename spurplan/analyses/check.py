@@ -1139,7 +1139,7 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
                     "stage": sources[int(spec.top_source[strongest])],
                     "order": int(np.abs(mix).sum()),
                     "mix": mix.tolist(),
-                    "label": _cluster_label(mix, names, float(spec.freq_hz[g]), result),
+                    "label": cluster_label(mix, names, float(spec.freq_hz[g]), result),
                     "dbc": total - ref,
                     "beyond_data": bool(spec.beyond[members].any()),
                     "model_extrapolated": extrapolated,
@@ -1164,7 +1164,7 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
     )
 
 
-def _cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:
+def cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:
     """A cluster's name: the product its strongest line belongs to, with the multisines'
     tones read as their carriers (``2f1 zone``, ``f1-f2 zone``), the spectral regrowth of
     a carrier (``f1 regrowth above``) or the band of its tones' differences."""

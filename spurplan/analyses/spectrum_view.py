@@ -89,7 +89,7 @@ def cluster_rows(spec: LineSpectrum, lineup, result) -> dict[str, list]:
     dict of str to list
         :data:`CLUSTER_COLUMNS`, by frequency.
     """
-    from spurplan.analyses.check import _cluster_label
+    from spurplan.analyses.check import cluster_label
 
     gap = max([c.bandwidth_hz or 0.0 for c in lineup.carriers] + [2 * spec.step_hz])
     out: dict[str, list] = {c: [] for c in CLUSTER_COLUMNS}
@@ -107,7 +107,7 @@ def cluster_rows(spec: LineSpectrum, lineup, result) -> dict[str, list]:
             if wanted:
                 name = f"{label(spec.mix[strongest], lineup.tone_names)} carrier band"
             else:
-                name = _cluster_label(
+                name = cluster_label(
                     spec.mix[strongest], lineup.tone_names, float(spec.freq_hz[strongest]), result
                 )
             out["label"].append(name)
