@@ -1167,7 +1167,23 @@ def _check_spectrum(lineup, mask, result, combine) -> CheckResult:
 def cluster_label(mix: np.ndarray, names: list[str], freq_hz: float, result) -> str:
     """A cluster's name: the product its strongest line belongs to, with the multisines'
     tones read as their carriers (``2f1 zone``, ``f1-f2 zone``), the spectral regrowth of
-    a carrier (``f1 regrowth above``) or the band of its tones' differences."""
+    a carrier (``f1 regrowth above``) or the band of its tones' differences.
+
+    Parameters
+    ----------
+    mix : ndarray of int, (K,)
+        The strongest line's product over the lineup's tones.
+    names : list of str
+        The tones' names.
+    freq_hz : float
+        The line's frequency (Hz): which side of its carrier regrowth lies.
+    result : Result
+        The lineup's CW run (carrier vectors and frequencies).
+
+    Returns
+    -------
+    str
+    """
     if not np.any(mix):
         return "difference band"
     carriers = result.lineup.carrier_vectors()
