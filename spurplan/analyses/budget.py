@@ -26,7 +26,7 @@ from __future__ import annotations
 import math
 
 from spurplan.engine.noise import KT0_DBM_HZ
-from spurplan.units import ratio_db, vpeak_to_dbm
+from spurplan.units import format_freq, ratio_db, vpeak_to_dbm
 
 BUDGET_COLUMNS = [
     "stage",
@@ -185,9 +185,14 @@ def budget_rows(result, batch: int = 0) -> dict[str, list]:
 
 def _figures_state(stage) -> str:
     """Stated figures the model misses, and missing figure classes, in a few words."""
-    parts = [
-        f"{c.figure} misses by {c.miss_db:+.2f} dB" if c.model is not None else f"{c.figure} not reached"
+    # A check at a figure table's frequency is of the model tune and yield use there.
+    named = [
+        (c, c.figure + (f" at {format_freq(c.freq_hz)}" if c.freq_hz is not None else ""))
         for c in stage.checks
+    ]
+    parts = [
+        f"{name} misses by {c.miss_db:+.2f} dB" if c.model is not None else f"{name} not reached"
+        for c, name in named
         if not c.met
     ]
     parts += [f"no {what.split(' (')[0]}" for what in stage.missing_figures()]

@@ -116,8 +116,14 @@ class CheckResult:
 
     @property
     def figures_missed(self) -> tuple:
-        """``(stage, FigureCheck)`` of stated figures the model does not meet."""
-        return self.result.lineup.figures_missed()
+        """``(stage, FigureCheck)`` of stated figures the model does not meet.
+
+        The check runs the loaded stages, fitted at the lineup's own channel: the checks
+        of the per-channel models that tuning sweeps and yield use at a figure table's
+        other frequencies (``FigureCheck.freq_hz``) are theirs, not the check's (they are
+        listed among the figure checks all the same).
+        """
+        return tuple((s, c) for s, c in self.result.lineup.figures_missed() if c.freq_hz is None)
 
     @property
     def complete(self) -> bool:
@@ -287,6 +293,7 @@ def figure_check_rows(lineup) -> list[dict]:
             "unit": c.unit,
             "miss_db": c.miss_db,
             "met": c.met,
+            "freq_hz": c.freq_hz,
         }
         for stage, c in lineup.figure_checks()
     ]

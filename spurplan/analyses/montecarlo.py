@@ -44,6 +44,7 @@ from spurplan.analyses.cluster import (  # re-exported: check_scheduler_address 
 )
 from spurplan.engine.run import run
 from spurplan.errors import LineupError, YieldError  # YieldError: re-exported (lives in errors.py)
+from spurplan.model.figure_tables import refuse_beyond, tabled_stages
 from spurplan.model.products import labels
 from spurplan.model.tolerances import Corner, Tolerances
 
@@ -146,8 +147,12 @@ def draw(tolerances: Tolerances, n: int, seed: int, batch: int) -> dict:
     return out
 
 
-def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
+def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int, tones_hz=None) -> list:
     """The lineup's stages with every sample's figures (per-sample model parameters).
+
+    With ``tones_hz`` (one channel), stages with figure tables against frequency take
+    the figures at that channel as well: the change of each tabled figure from the
+    loaded one (:meth:`channel_deltas`) is added to every sample's delta.
 
     Parameters
     ----------
@@ -159,6 +164,8 @@ def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
         A corner whose shifts are added to every sample; ``None`` for none.
     n : int
         Samples in the batch.
+    tones_hz : ndarray (K,), optional
+        Base-tone frequencies of one channel (Hz); ``None`` for the lineup's own.
 
     Returns
     -------
@@ -167,6 +174,7 @@ def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
         delta or shift applies.
     """
     shift = {(i, fig): v for i, fig, v in (corner.shifts if corner else ())}
+    ref = None if tones_hz is None else lineup.stage_reference_hz(np.atleast_2d(tones_hz))
     out = []
     for i, stage in enumerate(lineup.stages):
         d = {}
@@ -174,6 +182,13 @@ def sampled_stages(lineup, deltas: dict, corner: Corner | None, n: int) -> list:
             value = deltas.get((i, fig), 0.0) + shift.get((i, fig), 0.0)
             if np.ndim(value) or value:
                 d[fig] = np.broadcast_to(value, (n,) if fig != "elements" else np.shape(value) or (n,))
+        if ref is not None and getattr(stage, "figure_tables", None):
+            channel = {k: float(v[0]) for k, v in stage.channel_deltas(ref[i]).items() if v[0] != 0.0}
+            if channel:
+                for fig, change in channel.items():
+                    d[fig] = np.broadcast_to(d.get(fig, 0.0) + change, (n,))
+                out.append(stage.sampled(d, n, lineup.r_ohm, ref_hz=np.full(n, ref[i][0])))
+                continue
         # A stage with nothing moved is its nominal self.
         out.append(stage.sampled(d, n, lineup.r_ohm) if d else stage)
     return out
@@ -220,10 +235,13 @@ def evaluate_batch(
     unsettled = np.zeros(n, dtype=bool)
     labels = np.full(n, "", dtype=object)
     rules = np.full(n, "", dtype=object)
+    # With figure tables against frequency every channel has stages of its own.
+    per_channel = bool(tabled_stages(lineup.stages))
     for corner in corners:
-        stages = sampled_stages(lineup, deltas, corner, n)
+        stages = None if per_channel else sampled_stages(lineup, deltas, corner, n)
         for t in tones:
-            result = run(lineup, tone_freqs_hz=np.broadcast_to(t, (n, len(t))), stages=stages)
+            at = stages if stages is not None else sampled_stages(lineup, deltas, corner, n, tones_hz=t)
+            result = run(lineup, tone_freqs_hz=np.broadcast_to(t, (n, len(t))), stages=at)
             levels = result.levels(None, combine)
             ev = evaluate(lineup, result, levels)
             w = ev.worst_margin_db
@@ -363,6 +381,9 @@ def run_yield(
     OutOfDataRange
         The nominal run puts a product outside a stage's data under the default
         beyond-data policy.
+    LineupError
+        Under the default beyond-data policy, a channel puts the reference carrier
+        outside a stage's figure table.
     """
     from spurplan.analyses.sweep import work_refusal
 
@@ -384,8 +405,12 @@ def run_yield(
     if lineup.mask is None:
         raise LineupError("no emission limits: expected a [mask] table", file=str(lineup.source))
     # The nominal run first: it applies the lineup's beyond-data policy (an error by
-    # default) that the sampled runs, which go straight to the engine, do not.
+    # default) that the sampled runs, which go straight to the engine, do not; the
+    # channels' reference carriers against the stages' figure tables likewise.
     lineup.run()
+    if channels_hz is not None and tabled_stages(lineup.stages):
+        tuned = lineup.tuned_tones_hz(np.atleast_1d(np.asarray(channels_hz, dtype=float)))
+        refuse_beyond(lineup, lineup.stage_reference_hz(tuned))
     sizes = [min(batch_samples, samples - s) for s in range(0, samples, batch_samples)]
     jobs = [(lineup, tolerances, seed, b, size, channels_hz, combine) for b, size in enumerate(sizes)]
     if scheduler is not None or workers is not None:

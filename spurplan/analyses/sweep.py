@@ -19,6 +19,7 @@ from spurplan.analyses.cluster import map_on_dask
 from spurplan.errors import SweepError  # re-exported (lives in errors.py)
 from spurplan.fields import CARRIER_FREQ, CARRIER_POWER
 from spurplan.io.channels import sweep_points
+from spurplan.model.figure_tables import refuse_beyond, tabled_stages
 from spurplan.model.products import labels
 
 if TYPE_CHECKING:  # annotations only (the sweeps take a loaded lineup)
@@ -519,6 +520,9 @@ def tune_sweep(
     SweepError
         No channels, a tone at or below 0 Hz, a channel out of range, or more work than
         one run may do.
+    LineupError
+        Under the default beyond-data policy, a channel that puts the reference carrier
+        outside a stage's figure table (naming the file, stage and key).
     """
     mask = require_mask(lineup)
     carrier_hz = np.asarray(carrier_hz, dtype=float)
@@ -529,6 +533,9 @@ def tune_sweep(
         raise SweepError("a channel puts a tone at or below 0 Hz: expected positive frequencies")
 
     _check_channels(lineup, carrier_hz, tones_for(carrier_hz))
+    # Figure tables against frequency: a channel beyond one is refused before any work.
+    if tabled_stages(lineup.stages):
+        refuse_beyond(lineup, lineup.stage_reference_hz(tones_for(carrier_hz)))
     if why := work_refusal(lineup, carrier_hz.size, "channels"):
         raise SweepError(why)
 

@@ -18,6 +18,7 @@ from spurplan.engine.result import Result
 from spurplan.engine.sections import with_sections
 from spurplan.engine.torus import Propagation, propagate
 from spurplan.errors import OutOfDataRange
+from spurplan.model.figure_tables import channel_stages
 from spurplan.model.products import label
 from spurplan.model.torus_grid import MAX_GRID_POINTS
 
@@ -52,7 +53,10 @@ def run(
         :attr:`Lineup.tone_freqs_hz` (LOs, then carriers); default the lineup's own.
     stages : sequence of stages, optional
         Stages to propagate instead of the lineup's own: a Monte Carlo batch's per-sample
-        copies.  They are propagated as given (no linear-section cascade), and the
+        copies (with figure tables, the caller moves them to the channel as well:
+        :func:`spurplan.analyses.montecarlo.sampled_stages`).  Without, stages with
+        figure tables against frequency are moved to each row's channel
+        (:func:`spurplan.model.figure_tables.channel_stages`).  They are propagated as given (no linear-section cascade), and the
         beyond-data policy is left to the nominal run, which
         :func:`spurplan.analyses.montecarlo.run_yield` makes first.
     carrier_phasors_v : ndarray, complex, (B, K_c), optional
@@ -68,6 +72,9 @@ def run(
     ------
     OutOfDataRange
         With the default policy, when a product falls outside a stage's data range.
+    LineupError
+        With the default policy, when a row's channel puts the reference carrier outside
+        a stage's figure table.
     """
     lattice = lineup.tone_lattice
     order = lineup.analysis.max_order
@@ -80,10 +87,17 @@ def run(
     offset = np.broadcast_to(offset, (batch,))
     axes = lattice.axes_hz(tones)
     nominal = stages is None
+    # Stages whose parameters differ per batch row run whole (no row is cut away).
+    per_row = not nominal
     if nominal:
         stages = lineup.stages
         if lineup.analysis.linear_sections == "cascade":
             stages = with_sections(stages, lineup.r_ohm)
+        # Figures stated against frequency move with each row's channel
+        # (spurplan.model.figure_tables); None where nothing moves: the loaded stages.
+        moved = channel_stages(lineup, tones, stages)
+        if moved is not None:
+            stages, per_row = moved, True
     ref = lineup.stage_reference_hz(tones)
     nonlinear = [i for i, s in enumerate(stages) if s.transfer is not None]
     # One nonlinear stage sees the carriers only: its products up to the order are exact
@@ -117,9 +131,10 @@ def run(
             unsettled[rows] = ~ok
             if ok.all():
                 break
-            if nominal:
+            if not per_row:
                 # Only what has not settled is carried further (the lineup's stages are the
-                # same for every row; a Monte Carlo batch's are per row, and run whole).
+                # same for every row; a Monte Carlo batch's, or a sweep's with figure
+                # tables, are per row, and run whole).
                 rows, part_nodes = rows[~ok], part.nodes[:, ~ok]
             else:
                 part_nodes = part.nodes

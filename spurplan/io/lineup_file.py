@@ -190,6 +190,8 @@ def from_dict(
             stages[i] = stage.with_lo_index(lo_index)
             lo_index += 1
     _check_size(stages, carriers, lo_index, analysis, name)
+    if analysis.linear_sections == "cascade":
+        _check_cascade_tables(stages, name)
     notes = tuple(f"stage '{s.name}': {n}" for s in stages for n in s.notes)
     mask = read_mask(doc["mask"], name, base_dir) if "mask" in doc else None
     corners = read_corners(doc["corner"], name, stages) if "corner" in doc else ()
@@ -354,6 +356,22 @@ def _stage(table, file: str, index: int, context: LoadContext):
     stage = KINDS[kind].from_fields(f, context)
     f.finish()
     return stage
+
+
+def _check_cascade_tables(stages, file: str) -> None:
+    """A linear stage with a figure table cannot join a cascaded section: its loss per
+    channel would change its neighbours' reflections, which the per-channel model
+    (spurplan.model.figure_tables) does not cascade."""
+    for i, stage in enumerate(stages, start=1):
+        tables = getattr(stage, "figure_tables", None)
+        if stage.transfer is None and tables:
+            raise LineupError(
+                'is a table against frequency with [analysis] linear_sections = "cascade": expected one '
+                'value, or linear_sections = "matched"',
+                file=file,
+                stage=f"stage {i} {stage.name!r}",
+                field=tables.tables[0].key,
+            )
 
 
 def _converted(mixer, freqs_hz: list[float], file: str, index: int) -> list[float]:

@@ -66,6 +66,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from spurplan.fields import NOISE_FIGURE, Fields, Within
+from spurplan.model.figure_tables import SAME_FREQ_RTOL, FigureReader, StageTables
 from spurplan.model.ladders import SParameterTable
 from spurplan.model.nonlinear import Polynomial, Saturating
 from spurplan.model.stages import amplifier_fit
@@ -80,6 +81,7 @@ from spurplan.model.stages.base import (
 )
 from spurplan.units import (
     dbm_to_vpeak,
+    format_freq,
     parse_dbc_at,
     parse_freq_hz,
     parse_gain_db,
@@ -106,6 +108,19 @@ HARMONIC_DBC = Within("a harmonic level", -200.0, 0.0, "dBc", "below the carrier
 HARMONIC_AT = Within("the output power of a harmonic figure", -50.0, 90.0, "dBm")
 # Figures a tolerance or corner may move (dB; ohipN output-referred).
 SPREAD_FIGURES = ("gain", "oip3", "oip2", "psat", "p1db", *(f"ohip{n}" for n in range(2, MAX_HARMONIC + 1)))
+# Keys that may be tables against frequency (spurplan.model.figure_tables).
+TABLE_KEYS = (
+    "gain",
+    "oip3",
+    "iip3",
+    "oip2",
+    "iip2",
+    "p1db",
+    "psat",
+    "noise_figure",
+    *(f"ohip{n}" for n in range(2, MAX_HARMONIC + 1)),
+    *(f"h{n}" for n in range(2, MAX_HARMONIC + 1)),
+)
 # Knots of the zone weights run to this zone; beyond, what the stage generates keeps
 # the memoryless level (0 dB), shaped by the pass band.
 _WEIGHT_ZONES = MAX_HARMONIC + 1
@@ -392,6 +407,12 @@ class Amplifier(StageDefaults):
     band : PassBand or None
     ref_freq_hz : float
         Carrier frequency at the stage input where the figures hold (Hz).
+    noise_figure_db : float or None
+        Stated noise figure (dB).
+    figure_tables : StageTables or None
+        Figures stated against frequency (:mod:`spurplan.model.figure_tables`): the
+        loaded model holds them at ``ref_freq_hz``; sweeps move them per channel
+        (:meth:`channel_deltas`).
     """
 
     name: str
@@ -404,6 +425,7 @@ class Amplifier(StageDefaults):
     band: PassBand | None = None
     ref_freq_hz: float = 0.0
     noise_figure_db: float | None = None
+    figure_tables: StageTables | None = None
     # cascade_figures() per impedance: the model's P1dB and Psat are fitted by bisection,
     # and a check asks for them many times (not an init field: replace() starts afresh).
     _figures: dict = field(default_factory=dict, init=False, compare=False, repr=False)
@@ -432,6 +454,11 @@ class Amplifier(StageDefaults):
                 f"{b.high_hz / 1e6:g} MHz" if b.high_hz else "-",
             ]
             parts.append(f"pass band {edges[0]} to {edges[1]} (order {b.order})")
+        if self.figure_tables:
+            keys = ", ".join(t.key for t in self.figure_tables.tables)
+            parts.append(
+                f"at {format_freq(self.figure_tables.ref_freq_hz)} from tables against frequency ({keys})"
+            )
         return ", ".join(parts)
 
     def cascade_figures(self, r_ohm: float) -> CascadeFigures:
@@ -462,7 +489,9 @@ class Amplifier(StageDefaults):
         """Gain, intercepts and compression points, each in dB."""
         return dict.fromkeys(SPREAD_FIGURES, DB)
 
-    def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float) -> SampledStage:
+    def sampled(
+        self, deltas: dict[str, np.ndarray], n: int, r_ohm: float, ref_hz: np.ndarray | None = None
+    ) -> SampledStage:
         """The amplifier with every sample's figures (:func:`sampled_model`).
 
         Parameters
@@ -473,6 +502,12 @@ class Amplifier(StageDefaults):
             Samples in the batch.
         r_ohm : float
             System impedance (ohm).
+        ref_hz : ndarray (n,), optional
+            Each element's reference carrier at the stage input (Hz), for figures at
+            each channel (:mod:`spurplan.model.figure_tables`).  With a gain table, the
+            carrier of each element then gets the gain the table states there, and the
+            pass band and Touchstone shape act relative to it (without, they shape the
+            gain across channels as well).
 
         Returns
         -------
@@ -481,12 +516,59 @@ class Amplifier(StageDefaults):
         """
         transfer, weights = sampled_model(self, deltas, r_ohm)
         gain = 10 ** (deltas.get("gain", 0.0) / 20)
+        tables = self.figure_tables
+        if ref_hz is not None and tables and "gain" in tables and (self.band or self.shape):
+            ref = np.asarray(ref_hz, dtype=float)
+            shape_at_ref = np.abs(self.response(ref)) / 10.0 ** (self.figures.gain_db / 20.0)
+            gain = gain / shape_at_ref
 
         def amp_response(f):
             return self.response(f) * np.reshape(gain, (-1, 1))
 
         weight = functools.partial(self.generated_weight, weights_db=weights)
         return SampledStage(self.name, transfer, amp_response, self.data_range_hz, weight)
+
+    def channel_deltas(self, ref_hz: np.ndarray) -> dict[str, np.ndarray]:
+        """The change of every tabled figure from the loaded one, per channel (dB).
+
+        Keys are :data:`SPREAD_FIGURES` (what :meth:`sampled` moves): ``gain``; ``oip3``
+        and ``oip2`` (an input-referred table, or a fixed input-referred figure with a
+        gain table, moves with the gain as well); ``psat``, ``p1db``; ``ohipN`` for
+        ``ohipN`` tables and for ``hN`` tables, whose dBc change is ``-(n - 1)`` times
+        the OHIPn change (module docstring).
+
+        Parameters
+        ----------
+        ref_hz : ndarray (B,)
+            The reference carrier at the stage input per channel (Hz).
+
+        Returns
+        -------
+        dict of str -> ndarray (B,)
+            Only the figures that a table moves.
+        """
+        tables = self.figure_tables
+        if not tables:
+            return {}
+        ref = np.asarray(ref_hz, dtype=float)
+        out: dict[str, np.ndarray] = {}
+        if "gain" in tables:
+            out["gain"] = tables.change("gain", ref)
+        gain = out.get("gain", np.zeros(ref.shape))
+        for key in ("oip3", "oip2"):
+            if key in tables.input_referred:
+                out[key] = tables.change("i" + key[1:], ref) + gain
+            elif key in tables:
+                out[key] = tables.change(key, ref)
+        for key in ("psat", "p1db"):
+            if key in tables:
+                out[key] = tables.change(key, ref)
+        for n in range(2, MAX_HARMONIC + 1):
+            if f"ohip{n}" in tables:
+                out[f"ohip{n}"] = tables.change(f"ohip{n}", ref)
+            elif f"h{n}" in tables:
+                out[f"ohip{n}"] = -tables.change(f"h{n}", ref) / (n - 1)
+        return {k: v for k, v in out.items() if k in SPREAD_FIGURES}
 
     @property
     def data_range_hz(self) -> tuple[float, float] | None:
@@ -629,12 +711,28 @@ class Amplifier(StageDefaults):
             Naming the file, stage and field of a missing or unacceptable value, or of a
             Touchstone file that does not cover the carrier.
         """
-        figures = read_figures(fields)
+        reader = FigureReader(fields, context.ref_freq_hz, context.beyond_data, TABLE_KEYS)
+        figures = read_figures(reader)
         band = read_band(fields, context)
         amp = cls.from_figures(fields.raw("name"), figures, context.r_ohm, band, context.ref_freq_hz)
-        nf = fields.quantity("noise_figure", parse_gain_db, within=NOISE_FIGURE)
+        nf = reader.quantity("noise_figure", parse_gain_db, within=NOISE_FIGURE)
         if nf is not None:
             amp = replace(amp, noise_figure_db=nf)
+        referred = tuple(
+            out
+            for out, inp in (("oip3", "iip3"), ("oip2", "iip2"))
+            if fields.has(inp) and not fields.has(out)
+        )
+        tables = reader.stage_tables(referred)
+        if tables is not None:
+            _check_tables(reader, figures)
+            amp = replace(amp, figure_tables=tables)
+            channel = channel_checks(amp, context.r_ohm)
+            amp = replace(
+                amp,
+                checks=amp.checks + channel,
+                notes=amp.notes + reader.notes() + tuple(c.describe() for c in channel if not c.met),
+            )
         fields.raw("input_port")
         fields.raw("touchstone")
         if not fields.has("touchstone"):
@@ -841,8 +939,9 @@ def _with_nominal_row(nominal, sampled):
     )
 
 
-def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | None:
+def _pair(fields: Fields | FigureReader, out_key: str, in_key: str, gain_db: float) -> float | None:
     """An intercept given output-referred, input-referred or both (must agree)."""
+    _one_form_if_tabled(fields, out_key, in_key)
     out = fields.quantity(out_key, parse_power_dbm, within=OUTPUT_INTERCEPT)
     inp = fields.quantity(in_key, parse_power_dbm, within=INPUT_INTERCEPT)
     if out is not None and inp is not None and abs(out - (inp + gain_db)) > CONSISTENCY_DB:
@@ -856,7 +955,7 @@ def _pair(fields: Fields, out_key: str, in_key: str, gain_db: float) -> float | 
     return None if inp is None else inp + gain_db
 
 
-def read_figures(fields: Fields) -> AmplifierFigures:
+def read_figures(fields: Fields | FigureReader) -> AmplifierFigures:
     """Parse and cross-check the amplifier keys of one ``[[stage]]`` table.
 
     ``hN`` and ``oipN`` of the same order are independent facts (the output network
@@ -869,6 +968,7 @@ def read_figures(fields: Fields) -> AmplifierFigures:
     ohip: dict[int, float] = {}
     harmonics: dict[int, tuple[float, float]] = {}
     for n in range(2, MAX_HARMONIC + 1):
+        _one_form_if_tabled(fields, f"ohip{n}", f"h{n}")
         from_ohip = fields.quantity(f"ohip{n}", parse_power_dbm, within=OUTPUT_INTERCEPT)
         point = fields.quantity(f"h{n}", parse_dbc_at, within=(HARMONIC_DBC, HARMONIC_AT))
         if from_ohip is not None and point is not None:
@@ -911,6 +1011,110 @@ def read_figures(fields: Fields) -> AmplifierFigures:
         psat_dbm=psat,
         expansive=cubic == "expansive",
     )
+
+
+def _one_form_if_tabled(fields, out_key: str, in_key: str) -> None:
+    """Refuse two forms of one figure (``oip3`` and ``iip3``, ``ohipN`` and ``hN``) when
+    either is a table against frequency: they could only agree row by row."""
+    table = fields.table
+    if out_key in table and in_key in table and any(isinstance(table[k], list) for k in (out_key, in_key)):
+        raise fields.error(
+            in_key,
+            f"{in_key} and {out_key} are both given and one of them is a table against frequency: "
+            "expected one of them (they state one figure in two forms)",
+        )
+
+
+def _check_tables(reader: FigureReader, fig: AmplifierFigures) -> None:
+    """The cross-checks of :func:`read_figures` at every table frequency: ``p1db <= psat``,
+    and no harmonic figure stated above saturation."""
+    tables = reader.tables
+
+    def value(key: str, scalar, f_hz: float) -> float:
+        t = tables.get(key)
+        return float(t(f_hz)) if t is not None else scalar
+
+    def freqs(*keys: str) -> list[float]:
+        return sorted({f for k in keys if k in tables for f in tables[k].freq_hz})
+
+    if fig.p1db_dbm is not None and fig.psat_dbm is not None:
+        for f in freqs("p1db", "psat"):
+            p1db, psat = value("p1db", fig.p1db_dbm, f), value("psat", fig.psat_dbm, f)
+            if p1db > psat:
+                raise reader.error(
+                    "p1db",
+                    f"at {format_freq(f)} p1db is {p1db:+.2f} dBm, above psat {psat:+.2f} dBm: expected "
+                    "p1db <= psat at every frequency",
+                )
+    if fig.psat_dbm is not None:
+        for n, (_, at_dbm) in sorted(fig.harmonics.items()):
+            for f in freqs("psat"):
+                psat = value("psat", fig.psat_dbm, f)
+                if at_dbm > psat + CONSISTENCY_DB:
+                    raise reader.error(
+                        f"h{n}",
+                        f"is stated at {at_dbm:+.2f} dBm, above psat {psat:+.2f} dBm at {format_freq(f)}: expected "
+                        f"the output power of a harmonic figure at or below saturation (within {CONSISTENCY_DB} dB)",
+                    )
+
+
+def channel_checks(amp: Amplifier, r_ohm: float) -> tuple[FigureCheck, ...]:
+    """The stated figures beside the per-channel model at every table frequency.
+
+    Sweeps and yield run an amplifier with figure tables as its per-sample model with
+    the figures moved to each channel (:meth:`Amplifier.sampled`, :func:`sampled_model`),
+    which holds gain, intercepts, Psat and every ``hN`` but does not refit P1dB (module
+    docstring, "Monte Carlo").  This reads that model where each table states its
+    figures, and gives one :class:`FigureCheck` (with ``freq_hz``) per large-signal
+    figure, as the loaded stage's fit does at its own frequency: P1dB, Psat and OIP3
+    of the saturating model, and every ``hN`` at its stated output power.
+
+    Parameters
+    ----------
+    amp : Amplifier
+        The loaded stage, with :attr:`Amplifier.figure_tables`.
+    r_ohm : float
+        System impedance (ohm).
+
+    Returns
+    -------
+    tuple of FigureCheck
+        Empty when no table moves a large-signal model figure, or the only table
+        frequency is the loaded stage's own.
+    """
+    tables = amp.figure_tables
+    if not tables:
+        return ()
+    freqs = tables.frequencies_hz()
+    freqs = freqs[np.abs(freqs - tables.ref_freq_hz) > SAME_FREQ_RTOL * tables.ref_freq_hz]
+    deltas = amp.channel_deltas(freqs) if freqs.size else {}
+    if not deltas:
+        return ()
+    transfer, weights = sampled_model(amp, deltas, r_ohm)
+    stated = _moved_figures(amp.figures, deltas, np.zeros(len(freqs)))
+    saturating = isinstance(amp.transfer, Saturating)
+    out: list[FigureCheck] = []
+    for k, f in enumerate(freqs.tolist()):
+        model = transfer.take(k)
+        if saturating and stated.p1db_dbm is not None:
+            p1db = float(np.asarray(stated.p1db_dbm)[k])
+            out.append(FigureCheck("p1db", p1db, output_p1db_dbm(model, r_ohm), "dBm", freq_hz=f))
+        if saturating and stated.psat_dbm is not None:
+            psat = float(np.asarray(stated.psat_dbm)[k])
+            out.append(
+                FigureCheck("psat", psat, amplifier_fit.model_psat_dbm(model, r_ohm), "dBm", freq_hz=f)
+            )
+        if saturating and stated.oip3_dbm is not None:
+            check = amplifier_fit.oip3_check(model, float(np.asarray(stated.oip3_dbm)[k]), r_ohm)
+            out.append(replace(check, freq_hz=f))
+        for n, (dbc, at_dbm) in sorted(stated.harmonics.items()):
+            drive_v = amplifier_fit.input_for_output_v(model, float(at_dbm), r_ohm)
+            weight = weights.get(n)
+            level = None
+            if drive_v is not None and weight is not None:
+                level = amplifier_fit.harmonic_dbc(model, drive_v, n) + float(np.asarray(weight)[k])
+            out.append(FigureCheck(f"h{n}", float(np.asarray(dbc)[k]), level, "dBc", float(at_dbm), f))
+    return tuple(out)
 
 
 def read_band(fields: Fields, context: LoadContext) -> PassBand | None:

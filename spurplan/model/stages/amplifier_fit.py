@@ -30,7 +30,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from spurplan.model.nonlinear import Polynomial, Saturating
-from spurplan.units import dbm_to_vpeak, vpeak_to_dbm
+from spurplan.units import dbm_to_vpeak, format_freq, vpeak_to_dbm
 
 ONE_TONE_POINTS = 512
 # Knee sharpness range searched for P1dB.  s > 1 keeps the cubic term exact; the
@@ -63,6 +63,11 @@ class FigureCheck:
     unit : str
     at_dbm : float or None
         Output power of the stated point (hN).
+    freq_hz : float or None
+        For a figure stated in a table against frequency, the table frequency (Hz) where
+        the model of the channels there (the per-channel model of a tuning sweep or a
+        yield, :mod:`spurplan.model.figure_tables`) was read; ``None`` for the loaded
+        stage's own fit.
     """
 
     figure: str
@@ -70,6 +75,7 @@ class FigureCheck:
     model: float | None
     unit: str
     at_dbm: float | None = None
+    freq_hz: float | None = None
 
     @property
     def miss_db(self) -> float | None:
@@ -88,6 +94,8 @@ class FigureCheck:
 
     def describe(self) -> str:
         at = f" @ {self.at_dbm:+.2f} dBm" if self.at_dbm is not None else ""
+        if self.freq_hz is not None:
+            at += f" at {format_freq(self.freq_hz)} (the model tune and yield use there)"
         if self.model is None:
             return f"{self.figure} {self.stated:+.2f} {self.unit}{at}: the model cannot reach this point"
         return (

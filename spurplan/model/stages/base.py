@@ -275,6 +275,9 @@ class StageDefaults:
     generated_weight: Callable | None = None
     notes: tuple[str, ...] = ()
     checks: tuple[FigureCheck, ...] = ()
+    # Figures stated against frequency (spurplan.model.figure_tables.StageTables); a kind
+    # with tables gives ``channel_deltas(ref_hz)`` and ``sampled(..., ref_hz=...)``.
+    figure_tables: Any = None
 
     @property
     def conversion(self) -> Conversion | None:
