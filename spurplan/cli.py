@@ -484,14 +484,33 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
     type=click.Path(dir_okay=False),
     help="A file of carrier frequencies, one per line with unit.",
 )
+@click.option(
+    "--per-channel",
+    is_flag=True,
+    help="Also list every channel's products that fail or land in a protected band (table format).",
+)
 @_format_option
 @_combine_option
-@_plot_option("Draw product frequency against carrier frequency.")
+@_plot_option("Draw product frequency against carrier frequency (LO frequency with a mixer).")
 @_plot_size_option
 @_scheduler_option
 @_workers_option
-def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_size, scheduler, workers):
-    """Sweep the carrier over a tuning range: which products fail or land in protected bands."""
+def tune(
+    lineup,
+    start,
+    stop,
+    step,
+    channel_file,
+    per_channel,
+    fmt,
+    combine,
+    plot_file,
+    plot_size,
+    scheduler,
+    workers,
+):
+    """Sweep the carrier (with a mixer, the first LO) over a tuning range: per product and rule
+    or protected band, where it fails or lands in a band and its worst channel."""
     from spurplan.analyses.sweep import tune_sweep
     from spurplan.io.channels import read_channels, sweep_points
     from spurplan.output.documents import tune_document
@@ -524,7 +543,7 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
 
         save_tune_plot(sw, plot_file, size)
     if not _machine_output(fmt, tune_document(sw)):
-        click.echo(tune_text(sw), nl=False)
+        click.echo(tune_text(sw, per_channel), nl=False)
     sys.exit(0 if sw.passed else 1)
 
 

@@ -431,6 +431,8 @@ class TuneSweep:
     failing : list of dict
         Contiguous channel ranges where a product fails, with the edges refined
         by bisection: ``start_hz, stop_hz, label, rule, band, worst_margin_db``.
+    row_channel : ndarray of int (R,) or None
+        Index into ``carrier_hz`` of the channel of each row.
     """
 
     lineup: Lineup
@@ -442,6 +444,16 @@ class TuneSweep:
     rows: dict
     failing: list
     unsettled: np.ndarray | None = None
+    row_channel: np.ndarray | None = None
+
+    @property
+    def summary(self) -> list[dict]:
+        """Per product and rule or protected band: the channels where it fails or lands in
+        a band and its worst channel and margin, worst first
+        (:func:`spurplan.analyses.tune_summary.tune_summary`; built afresh on each access)."""
+        from spurplan.analyses.tune_summary import tune_summary
+
+        return tune_summary(self)
 
     def _repr_html_(self) -> str:
         """Jupyter: how many ranges fail, then the rows that fail or land in a band."""
@@ -555,6 +567,7 @@ def tune_sweep(
     for b in mask.bands:
         in_band |= (freq >= b.start_hz) & (freq <= b.stop_hz)
     interesting = (failing_mask | (in_band & (rule >= 0))) & np.isfinite(freq)
+    row_channel = np.nonzero(interesting)[0]
     for i, g in zip(*np.nonzero(interesting), strict=True):
         j = int(rule[i, g])
         rows["carrier_hz"].append(float(carrier_hz[i]))
@@ -577,6 +590,7 @@ def tune_sweep(
         rows=rows,
         failing=failing,
         unsettled=np.asarray(unsettled, dtype=bool),
+        row_channel=row_channel,
     )
 
 

@@ -23,11 +23,13 @@ from spurplan.output.tables import (
     CHECK_TABLE,
     DRIVE_TABLE,
     PRODUCT_TABLE,
-    TUNE_TABLE,
     check_display,
     drive_display,
     product_display,
     tune_display,
+    tune_summary_display,
+    tune_summary_table,
+    tune_table,
 )
 from spurplan.output.verdicts import drive_verdict, model_caveat
 
@@ -310,8 +312,10 @@ def tune_document(sweep: TuneSweep) -> Document:
     Returns
     -------
     Document
-        Summary: lineup name, what was swept, the channel count, pass and the failing
-        ranges (Hz), then provenance.
+        Summary: lineup name, what was swept (``"carrier"``, or ``"LO"`` with a mixer: the
+        rows' ``carrier_hz`` holds it), the channel count, pass, the failing ranges (Hz),
+        ``by_product`` (:attr:`TuneSweep.summary`: per product and rule or band, where it
+        fails or lands and its worst channel and margin), then provenance.
     """
     summary = {
         "lineup": sweep.lineup.name,
@@ -321,6 +325,7 @@ def tune_document(sweep: TuneSweep) -> Document:
         "channels": len(sweep.carrier_hz),
         "pass": sweep.passed,
         "failing_ranges": sweep.failing,
+        "by_product": sweep.summary,
     }
     return Document({**summary, **provenance(sweep.lineup)}, "rows", sweep.rows)
 
@@ -521,7 +526,8 @@ def drive_html(sweep: DriveSweep) -> str:
 
 
 def tune_html(sweep: TuneSweep) -> str:
-    """A tuning sweep as HTML: how many ranges fail, then the rows that fail or land in a band.
+    """A tuning sweep as HTML: how many ranges fail, the summary per product and rule or band,
+    then the rows that fail or land in a band.
 
     Parameters
     ----------
@@ -533,5 +539,10 @@ def tune_html(sweep: TuneSweep) -> str:
     str
         HTML.
     """
+    from spurplan.analyses.tune_summary import band_rule_labels
+
     head = "every channel passes" if not sweep.failing else f"{len(sweep.failing)} failing range(s)"
-    return f"<p><b>{head}</b></p>" + html_table(tune_display(sweep.rows), TUNE_TABLE)
+    var = sweep.variable
+    summary = html_table(tune_summary_display(sweep.summary), tune_summary_table(var))
+    rows = html_table(tune_display(sweep.rows, band_rule_labels(sweep.lineup.mask)), tune_table(var))
+    return f"<p><b>{head}</b></p>{summary}<p>Per channel:</p>{rows}"

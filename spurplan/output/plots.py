@@ -306,6 +306,54 @@ def save_drive_plot(sweep, path, size_px=(1200, 700)):
     return _save(drive_figure(sweep, size_px), path)
 
 
+def product_traces(sweep, n_products: int = 10) -> list[tuple[str, np.ndarray, np.ndarray]]:
+    """The segments a tuning figure draws: each one product over consecutive channels.
+
+    A slot of a tuning sweep holds whichever product sits at its place in the node's
+    table at each channel (products are merged by frequency, so a slot's product can
+    change from channel to channel); drawing a slot as one line would join different
+    products with vertical jumps.  Each slot is cut where its label changes or its
+    product is absent, and only the ``n_products`` products whose margin comes lowest
+    anywhere are kept.
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.analyses.sweep.tune_sweep` found (Hz, dB).
+    n_products : int, optional
+        How many products (labels) to keep.
+
+    Returns
+    -------
+    list of (str, ndarray of int, ndarray of float)
+        The product's label, the channel indices of the segment and the product's
+        frequency at each (Hz).
+    """
+    labels = np.asarray(sweep.labels, dtype=object)
+    freq = sweep.freq_hz
+    margin = np.where(np.isnan(sweep.margin_db), np.inf, sweep.margin_db)
+    present = np.isfinite(freq)
+    names, code = np.unique(labels.astype(str), return_inverse=True)
+    code = code.reshape(labels.shape)
+    lowest = np.full(len(names), np.inf)
+    np.minimum.at(lowest, code[present], margin[present])
+    ranked = sorted(np.nonzero(np.isfinite(lowest))[0], key=lambda k: (lowest[k], names[k]))
+    keep = np.zeros(len(names), dtype=bool)
+    keep[ranked[:n_products]] = True
+    # A segment starts wherever a slot's product differs from the channel before, or the
+    # slot was empty there; its id counts the starts down each slot.
+    starts = np.ones(labels.shape, dtype=bool)
+    starts[1:] = (code[1:] != code[:-1]) | ~present[:-1]
+    seg = np.cumsum(starts, axis=0)
+    drawn = present & keep[code]
+    out = []
+    for g in np.nonzero(drawn.any(axis=0))[0]:
+        rows = np.nonzero(drawn[:, g])[0]
+        for ids in np.split(rows, np.nonzero(np.diff(seg[rows, g]))[0] + 1):
+            out.append((str(names[code[ids[0], g]]), ids, freq[ids, g]))
+    return out
+
+
 def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10):
     """Product frequency against carrier frequency; protected bands shaded, failures marked.
 
@@ -318,7 +366,8 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
     dpi : int, optional
         Dots per inch: the figure is ``size_px / dpi`` inches.
     n_products : int, optional
-        How many products to draw: those whose margin comes lowest anywhere.
+        How many products to draw: those whose margin comes lowest anywhere, each as
+        its own segments (:func:`product_traces`; a line's gid is ``"product:LABEL"``).
 
     Returns
     -------
@@ -329,11 +378,8 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     xc = sweep.carrier_hz
     sx, ux = _freq_axis(xc)
-    top = (
-        float(np.nanmax(sweep.freq_hz[:, _closest_slots(sweep.margin_db, n_products)]))
-        if np.isfinite(sweep.margin_db).any()
-        else float(xc.max())
-    )
+    traces = product_traces(sweep, n_products)
+    top = max((float(np.max(f)) for _, _, f in traces), default=float(xc.max()))
     sy, uy = _freq_axis(np.array([top]))
     for b in sweep.lineup.mask.bands:
         if b.start_hz <= top * 1.05:
@@ -346,20 +392,23 @@ def tune_figure(sweep, size_px=(1200, 700), dpi: int = 100, n_products: int = 10
                 va="center",
                 color="tab:brown",
             )
+    last: dict[str, tuple[float, float, int]] = {}
+    for label, idx, f in traces:
+        # One product per line: each segment is one product in one slot over consecutive
+        # channels, so no line joins two products (or a product across channels it is absent).
+        (line,) = ax.plot(xc[idx] / sx, f / sy, color="tab:blue", lw=1.0)
+        line.set_gid(f"product:{label}")
+        if idx[-1] >= last.get(label, (0.0, 0.0, -1))[2]:
+            last[label] = (xc[idx[-1]] / sx, f[-1] / sy, int(idx[-1]))
+    for label, (x_end, y_end, _) in last.items():
+        ax.annotate(plot_text(label), (x_end, y_end), fontsize=7, xytext=(3, 0), textcoords="offset points")
+    margin = sweep.margin_db
     labels = np.asarray(sweep.labels, dtype=object)
-    for g in _closest_slots(sweep.margin_db, n_products):
-        f = sweep.freq_hz[:, g]
-        ax.plot(xc / sx, f / sy, color="tab:blue", lw=1.0)
-        ax.annotate(
-            plot_text(labels[-1, g]),
-            (xc[-1] / sx, f[-1] / sy),
-            fontsize=7,
-            xytext=(3, 0),
-            textcoords="offset points",
-        )
-        bad = np.where(np.isnan(sweep.margin_db[:, g]), False, sweep.margin_db[:, g] < 0)
-        if bad.any():
-            ax.plot(xc[bad] / sx, f[bad] / sy, "s", color="tab:red", ms=3)
+    shown = {label for label, _, _ in traces}
+    bad = np.where(np.isnan(margin), False, margin < 0) & np.isin(labels, list(shown))
+    if bad.any():
+        i, g = np.nonzero(bad)
+        ax.plot(xc[i] / sx, sweep.freq_hz[i, g] / sy, "s", color="tab:red", ms=3, ls="none")
     for r in sweep.failing:
         ax.axvspan(r["start_hz"] / sx, r["stop_hz"] / sx, color="tab:red", alpha=0.08, lw=0)
     ax.set_xlabel(f"{'LO' if sweep.lineup.mixers else 'carrier'} frequency ({ux})")

@@ -1,11 +1,15 @@
 """Design-review report: one self-contained HTML file (or Markdown with figures beside it).
 
 Contents, in order: verdict and provenance; the lineup (carriers, stages); the
-cascade budget; the check with every product, its limit and margin; the output
-spectrum against the mask; drive and tuning sweeps where the lineup's ``[report]``
-table asks for them; the assumptions behind the numbers (model choices, combining
-mode, beyond-data policy, bandwidth approximation, the rule sets and their sources);
-and the cautions.  Figures are embedded as PNG data, styles are inline, and nothing
+cascade budget; the check with every product, its limit and margin, and the level below
+which products are not listed; the output spectrum against the mask; the drive sweep
+(highest compliant drive and what limits it) and the tuning sweep (per product and rule
+or protected band: where it fails or lands in a band, its worst channel and margin)
+where the lineup's ``[report]`` table asks for them (and a line saying how to ask where
+it does not); every filter stage with its element values and Q (or the data file it
+is); the Monte Carlo yield when the lineup states tolerances or corners; the assumptions
+behind the numbers (model choices, combining mode, beyond-data policy, bandwidth
+approximation, the rule sets and their sources); and the cautions.  Figures are embedded as PNG data, styles are inline, and nothing
 refers outside the file, so it opens offline and prints to PDF.
 
 The output is deterministic: the same lineup gives the same bytes, apart from the
@@ -24,17 +28,39 @@ from pathlib import Path
 
 from spurplan.analyses.budget import budget_rows
 from spurplan.analyses.check import check, figure_check_rows
+from spurplan.engine.result import REPORT_FLOOR_DBC
 from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
 from spurplan.output.files import check_folder, check_target, write_atomic, write_with_folder
 from spurplan.output.provenance import provenance
-from spurplan.output.tables import BUDGET_TABLE, CHECK_TABLE, check_display
-from spurplan.output.verdicts import drive_verdict
+from spurplan.output.tables import (
+    BUDGET_TABLE,
+    CAUSE_TABLE,
+    CHECK_TABLE,
+    ELEMENT_TABLE,
+    check_display,
+    element_display,
+    tune_summary_display,
+    tune_summary_table,
+)
+from spurplan.output.verdicts import (
+    drive_verdict,
+    model_caveat,
+    tune_verdict,
+    unsettled_caveat,
+    yield_verdict,
+)
 
 # Above this output power the report adds the RF-exposure and hot-parts caution
 # prominently (common practice, no source: a few watts is where burns and exposure
 # limits become real on a bench).
 HIGH_POWER_DBM = 33.0
 FIGURE_DPI = 100
+# Monte Carlo samples of the report's yield section: enough for a yield to a few per cent
+# (the 95 % Wilson interval is about +-3 % wide at 50 %, narrower near 0 or 100 %), quick
+# enough for a report; the yield command takes as many as asked for.  Seed fixed: the
+# same lineup gives the same report.
+REPORT_YIELD_SAMPLES = 1000
+REPORT_YIELD_SEED = 0
 
 CARRIER_TABLE = [
     ("name", "carrier", None),
@@ -48,13 +74,14 @@ STAGE_TABLE = [
     ("kind", "kind", None),
     ("figures", "figures", None),
 ]
-RANGE_TABLE = [
-    ("start_mhz", "from (MHz)", ".6f"),
-    ("stop_mhz", "to (MHz)", ".6f"),
-    ("label", "product", None),
+LIMITING_TABLE = [
+    ("max_in_dbm", "highest compliant input (dBm)", ".3f"),
+    ("max_out_dbm", "output there (dBm)", ".3f"),
+    ("label", "limiting product", None),
+    ("freq_mhz", "freq (MHz)", ".6f"),
     ("rule", "rule", None),
     ("band", "protected band", None),
-    ("worst_margin_db", "worst margin (dB)", ".2f"),
+    ("stage", "largest from", None),
 ]
 FIGURE_CHECK_TABLE = [
     ("stage", "stage", None),
@@ -210,7 +237,7 @@ def build_report(lineup) -> Report:
         (
             "text",
             f"{sum(failing)} of {sum(p is not None for p in rows['pass'])} checked products fail. "
-            "Rows are sorted by margin; failing rows are marked FAIL.",
+            "Rows are sorted by margin; failing rows are marked FAIL. " + listing_floor_text(outcome),
         )
     )
     check_sec.parts.append(_table(check_display(rows), CHECK_TABLE, lambda i: "fail" if failing[i] else None))
@@ -227,8 +254,21 @@ def build_report(lineup) -> Report:
     spec = lineup.report
     if spec is not None and spec.drive is not None:
         sections.append(_drive_section(lineup, spec.drive, drive_figure))
+    else:
+        sections.append(
+            _not_asked("Drive sweep", "drive", '{ start = "-20 dBm", stop = "+6 dBm", step = "0.25 dB" }')
+        )
     if spec is not None and spec.tune is not None:
         sections.append(_tune_section(lineup, spec.tune, tune_figure))
+    else:
+        sections.append(
+            _not_asked("Tuning sweep", "tune", '{ start = "440 MHz", stop = "470 MHz", step = "12.5 kHz" }')
+        )
+    filters = _filter_section(lineup)
+    if filters is not None:
+        sections.append(filters)
+    if has_tolerances(lineup):
+        sections.append(_yield_section(lineup))
     sections.append(_assumptions_section(lineup))
     sections.append(_cautions_section(outcome))
     return Report(
@@ -268,6 +308,34 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
     sw = drive_sweep(lineup, start, stop, step)
     sec = Section(f"Drive sweep, {start:+g} to {stop:+g} dBm input in {step:g} dB steps")
     sec.parts.append(("text", drive_verdict(sw, "report")))
+    if sw.limiting is not None:
+        lim = sw.limiting
+        cols = {
+            "max_in_dbm": [sw.max_compliant_input_dbm],
+            "max_out_dbm": [sw.max_compliant_output_dbm],
+            "label": [lim["label"]],
+            "freq_mhz": [lim["freq_hz"] / 1e6],
+            "rule": [lim["rule"]],
+            "band": [lim["band"]],
+            "stage": [lim["stage"]],
+        }
+        sec.parts.append(
+            (
+                "text",
+                "What limits it: the product that fails first above the highest compliant drive "
+                "(refined to 0.001 dB) and the rule that judges it.",
+            )
+        )
+        sec.parts.append(_table(cols, LIMITING_TABLE))
+    sec.parts.append(
+        (
+            "text",
+            _SWEEP_JUDGES
+            + model_caveat(lineup)
+            + unsettled_caveat(sw.unsettled_signed, len(sw.input_dbm), "drive points")
+            + ".",
+        )
+    )
     sec.parts.append(
         (
             "figure",
@@ -283,21 +351,182 @@ def _tune_section(lineup, tune, tune_figure) -> Section:
 
     start, stop, step = tune
     sw = tune_sweep(lineup, sweep_points(start, stop, step, "channel", "Hz"))
-    sec = Section(f"Tuning sweep, {start / 1e6:g} to {stop / 1e6:g} MHz in {step / 1e3:g} kHz steps")
-    if sw.failing:
-        cols = {c: [r[c] for r in sw.failing] for c in ("label", "rule", "band", "worst_margin_db")}
-        cols["start_mhz"] = [r["start_hz"] / 1e6 for r in sw.failing]
-        cols["stop_mhz"] = [r["stop_hz"] / 1e6 for r in sw.failing]
-        sec.parts.append(("text", "Channel ranges where a product fails (edges refined to 1 Hz):"))
-        sec.parts.append(_table(cols, RANGE_TABLE))
+    var = sw.variable
+    sec = Section(
+        f"Tuning sweep, the {var} from {start / 1e6:g} to {stop / 1e6:g} MHz in {step / 1e3:g} kHz steps"
+    )
+    sec.parts.append(("text", tune_verdict(sw, "report")[0]))
+    entries = sw.summary
+    if entries:
+        bands = sorted({e["band"] for e in entries if e["band"] is not None})
+        sec.parts.append(
+            (
+                "text",
+                f"Per product and rule or protected band, worst first: the {var} values (MHz) at which "
+                "it is listed (it fails or lands in a protected band; channel counts in brackets), "
+                "those at which it fails (edges refined to 1 Hz where a product starts to fail), and "
+                f"the channel where its margin is least. {len(entries)} entries; "
+                + (
+                    f"products land in {len(bands)} protected band(s): {'; '.join(bands)}."
+                    if bands
+                    else "no product lands in a protected band."
+                ),
+            )
+        )
+        failing = [not e["pass"] for e in entries]
+        sec.parts.append(
+            _table(
+                tune_summary_display(entries),
+                tune_summary_table(var),
+                lambda i: "fail" if failing[i] else None,
+            )
+        )
     else:
-        sec.parts.append(("text", "Every channel meets the mask."))
+        sec.parts.append(("text", "No product fails or lands in a protected band on any channel."))
+    unsettled = 0 if sw.unsettled is None else int(sw.unsettled.sum())
+    sec.parts.append(
+        (
+            "text",
+            _SWEEP_JUDGES
+            + model_caveat(lineup)
+            + unsettled_caveat(unsettled, len(sw.carrier_hz), "channels")
+            + ".",
+        )
+    )
     sec.parts.append(
         (
             "figure",
-            (_figure_png(tune_figure(sw)), "Product frequency against carrier frequency; failures in red."),
+            (
+                _figure_png(tune_figure(sw)),
+                f"Product frequency against {var} frequency, each product its own line; failures in red.",
+            ),
         )
     )
+    return sec
+
+
+# Drive and tuning sweeps judge the discrete products (verdicts.PRODUCTS_ONLY, as a sentence).
+_SWEEP_JUDGES = "The sweep judges the products only (the check above judges the noise and ACPR)"
+
+
+def _not_asked(title: str, key: str, example: str) -> Section:
+    sec = Section(title)
+    sec.parts.append(
+        ("text", f"Not asked for: add {key} = {example} to the lineup's [report] table to include it.")
+    )
+    return sec
+
+
+def listing_floor_dbm(outcome) -> float:
+    """The level (dBm) below which the check lists no product.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    float
+        :data:`spurplan.engine.result.REPORT_FLOOR_DBC` below the strongest carrier at the
+        output (the carrier row, or with modulated carriers the strongest carrier line, in
+        dBm): below it the engine's float64 transforms give rounding, not products.
+    """
+    import numpy as np
+
+    spec = outcome.spectrum
+    if spec is not None:
+        power = spec.psd_dbm_hz + 10 * np.log10(spec.step_hz)
+        ref = float(np.max(power[spec.is_carrier]))
+    else:
+        levels = outcome.result.levels(None, None, rows=slice(0, 1))
+        ref = float(levels.carrier_ref_dbm[0])
+    return ref + REPORT_FLOOR_DBC
+
+
+def listing_floor_text(outcome) -> str:
+    """The sentence that says which products the check leaves out, and at what level.
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        What :func:`spurplan.analyses.check.check` found.
+
+    Returns
+    -------
+    str
+        One sentence (dBm, dB): the listing floor and the order above which products are
+        not computed.
+    """
+    lineup = outcome.result.lineup
+    return (
+        f"Products below {listing_floor_dbm(outcome):+.2f} dBm ({-REPORT_FLOOR_DBC:g} dB below the strongest "
+        "carrier at the output, where the engine's arithmetic gives rounding, not products) are not listed, "
+        f"and products above order {lineup.analysis.max_order} are not computed."
+    )
+
+
+def has_tolerances(lineup) -> bool:
+    """Whether the lineup states part tolerances or corners (the report then has a yield).
+
+    Parameters
+    ----------
+    lineup : Lineup
+
+    Returns
+    -------
+    bool
+    """
+    tol = lineup.tolerances
+    return bool(tol.items or tol.corners)
+
+
+def _filter_section(lineup) -> Section | None:
+    filters = [s for s in lineup.stages if s.kind == "filter"]
+    if not filters:
+        return None
+    sec = Section("Filters")
+    for stage in filters:
+        if stage.prototype is None:
+            t = stage.table
+            sec.parts.append(
+                (
+                    "text",
+                    f"'{stage.name}': measured or simulated data, not a synthesized ladder: Touchstone file "
+                    f"{stage.data_file}, {t.freq_hz.size} points from {t.freq_hz[0] / 1e6:g} to "
+                    f"{t.freq_hz[-1] / 1e6:g} MHz; no element values or Q (the data hold the parts' losses).",
+                )
+            )
+            continue
+        sec.parts.append(
+            (
+                "text",
+                f"'{stage.name}': {stage.describe_figures()}; terminated in {stage.r_ohm:g} ohm. Element values "
+                "of the ladder (g: the normalized prototype values; Q_L, Q_C: the unloaded Q of each arm's "
+                "inductor and capacitor):",
+            )
+        )
+        sec.parts.append(_table(element_display(stage.elements()), ELEMENT_TABLE))
+    return sec
+
+
+def _yield_section(lineup) -> Section:
+    from spurplan.analyses.montecarlo import run_yield
+
+    res = run_yield(lineup, REPORT_YIELD_SAMPLES, seed=REPORT_YIELD_SEED)
+    sec = Section(f"Yield over the stated tolerances, {res.samples} Monte Carlo samples")
+    sec.parts.append(
+        (
+            "text",
+            f"{res.samples} samples (seed {res.seed}), each at every corner, at the lineup's own carriers "
+            "(the tuning range is not swept here; the yield command takes channels and more samples). "
+            + yield_verdict(res).removeprefix("YIELD: ")
+            + ".",
+        )
+    )
+    if res.causes:
+        sec.parts.append(("text", "What fails the rest (worst product of each failing sample):"))
+        sec.parts.append(_table(res.rows, CAUSE_TABLE))
     return sec
 
 

@@ -7,6 +7,8 @@ flags) to a row dict from the library, so that every front end shows the same.
 
 from __future__ import annotations
 
+from collections.abc import Collection
+
 PRODUCT_TABLE = [
     ("freq_hz", "freq (MHz)", None),
     ("level_dbm", "level (dBm)", ".2f"),
@@ -98,15 +100,33 @@ DRIVE_TABLE = [
     ("verdict", "", None),
 ]
 
-TUNE_TABLE = [
-    ("carrier_mhz", "carrier (MHz)", ".6f"),
-    ("freq_mhz", "product (MHz)", ".6f"),
-    ("label", "product", None),
-    ("margin_db", "margin (dB)", ".2f"),
-    ("verdict", "", None),
-    ("band", "protected band", None),
-    ("rule", "rule", None),
-]
+
+def tune_table(variable: str) -> list:
+    """The per-channel layout of a tuning sweep; the first column names what was swept
+    (``"LO"`` with a mixer, else ``"carrier"``: :attr:`TuneSweep.variable`)."""
+    return [
+        ("channel_mhz", f"{variable} (MHz)", ".6f"),
+        ("freq_mhz", "product (MHz)", ".6f"),
+        ("label", "product", None),
+        ("margin_db", "margin (dB)", ".2f"),
+        ("verdict", "", None),
+        ("judged", "rule or protected band", None),
+    ]
+
+
+def tune_summary_table(variable: str) -> list:
+    """The layout of a tuning sweep's summary (one row per product and rule or band)."""
+    return [
+        ("verdict", "", None),
+        ("label", "product", None),
+        ("judged", "rule or protected band", None),
+        ("listed", f"listed with the {variable} at (MHz)", None),
+        ("failing", f"fails with the {variable} at (MHz)", None),
+        ("worst_channel_mhz", f"worst at {variable} (MHz)", ".6f"),
+        ("worst_freq_mhz", "product there (MHz)", ".6f"),
+        ("worst_margin_db", "worst margin (dB)", ".2f"),
+    ]
+
 
 NEEDED_TABLE = [
     ("freq_mhz", "freq (MHz)", ".6f"),
@@ -179,11 +199,95 @@ def check_display(rows: dict) -> dict:
     return shown
 
 
-def tune_display(rows: dict) -> dict:
+def judged_by(rule: str | None, band: str | None, band_rules: Collection[str]) -> str:
+    """What judges a product, said once.
+
+    Parameters
+    ----------
+    rule : str or None
+        The rule's label.
+    band : str or None
+        The protected band(s) the product lands in.
+    band_rules : set of str
+        Labels of the bands' own rules.
+
+    Returns
+    -------
+    str
+        The band alone when the rule is the band's own limit (its label repeats the band's
+        name), else the rule and the band it lands in.
+    """
+    if band is not None and rule in band_rules:
+        return band
+    if rule is None:
+        return f"in {band}" if band else "-"
+    return rule + (f" (in {band})" if band else "")
+
+
+def tune_display(rows: dict, band_rules: Collection[str] = ()) -> dict:
+    """A tuning sweep's rows for display.
+
+    Parameters
+    ----------
+    rows : dict of str -> list
+        :attr:`spurplan.analyses.sweep.TuneSweep.rows` (Hz, dB).
+    band_rules : set of str, optional
+        Labels of the bands' own rules (:func:`spurplan.analyses.tune_summary.band_rule_labels`).
+
+    Returns
+    -------
+    dict of str -> list
+        The rows with ``channel_mhz`` and ``freq_mhz`` (MHz), verdict words and ``judged``,
+        one column for the rule or protected band (:func:`judged_by`).
+    """
     shown = dict(rows)
-    shown["carrier_mhz"] = mhz(rows["carrier_hz"])
+    shown["channel_mhz"] = mhz(rows["carrier_hz"])
     shown["freq_mhz"] = mhz(rows["freq_hz"])
     shown["verdict"] = verdict_words(rows["pass"])
+    shown["judged"] = [judged_by(r, b, band_rules) for r, b in zip(rows["rule"], rows["band"], strict=True)]
+    return shown
+
+
+def mhz_span(first_hz: float, last_hz: float) -> str:
+    """A stretch of channels in MHz.
+
+    Parameters
+    ----------
+    first_hz, last_hz : float
+        Its ends (Hz).
+
+    Returns
+    -------
+    str
+        ``"466.675000-470.000000"``, or one value when both ends are the same channel.
+    """
+    if first_hz == last_hz:
+        return f"{first_hz / 1e6:.6f}"
+    return f"{first_hz / 1e6:.6f}-{last_hz / 1e6:.6f}"
+
+
+def tune_summary_display(entries: list[dict]) -> dict:
+    """A tuning sweep's summary entries (:func:`spurplan.analyses.tune_summary.tune_summary`)
+    as display columns: verdict words, what judges each product, the stretches of
+    channels where it is listed and where it fails (MHz, with their channel counts)."""
+    keys = ("verdict", "label", "judged", "listed", "failing", "worst_channel_mhz", "worst_freq_mhz")
+    shown: dict[str, list] = {k: [] for k in (*keys, "worst_margin_db")}
+    for e in entries:
+        shown["verdict"].append("FAIL" if not e["pass"] else "pass")
+        shown["label"].append(e["label"])
+        shown["judged"].append(judged_by(e["rule"], e["band"], {e["rule"]} if e["rule_is_band"] else set()))
+        shown["listed"].append(
+            ", ".join(f"{mhz_span(r['first_hz'], r['last_hz'])} ({r['channels']})" for r in e["runs"])
+        )
+        shown["failing"].append(
+            ", ".join(
+                f"{mhz_span(r['start_hz'], r['stop_hz'])} ({r['channels']})" for r in e["failing_ranges"]
+            )
+            or "-"
+        )
+        shown["worst_channel_mhz"].append(e["worst_channel_hz"] / 1e6)
+        shown["worst_freq_mhz"].append(e["worst_freq_hz"] / 1e6)
+        shown["worst_margin_db"].append(e["worst_margin_db"])
     return shown
 
 

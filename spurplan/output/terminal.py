@@ -25,7 +25,6 @@ from spurplan.output.tables import (
     RESPONSE_TABLE,
     RULES_TABLE,
     SPUR_TABLE,
-    TUNE_TABLE,
     check_display,
     drive_display,
     element_display,
@@ -34,6 +33,7 @@ from spurplan.output.tables import (
     product_display,
     spur_display,
     tune_display,
+    tune_table,
 )
 from spurplan.output.verdicts import (
     check_verdict,
@@ -356,26 +356,67 @@ def drive_text(sweep: DriveSweep) -> str:
     )
 
 
-def tune_text(sweep: TuneSweep) -> str:
-    """``spurplan tune``: the products that fail or land in a protected band, then the ranges.
+# The per-channel table of a tuning sweep is kept to this width (characters): the
+# rule-or-band column is shortened to fit, its full text is in the summary above it.
+TUNE_TABLE_WIDTH = 120
+
+
+def _fit_last_column(columns: dict, spec: list, width: int) -> dict:
+    """Shorten the cells of ``spec``'s last column (ending them in "...") so that the
+    table is at most ``width`` characters wide; at least 24 characters are kept."""
+    key = spec[-1][0]
+    if not columns.get(key):
+        return columns
+    others = text_table(columns, spec[:-1]).splitlines()
+    room = max(24, width - max(len(line.rstrip()) for line in others) - 2)
+    shown = dict(columns)
+    shown[key] = [c if len(c) <= room else c[: room - 3] + "..." for c in columns[key]]
+    return shown
+
+
+def tune_text(sweep: TuneSweep, per_channel: bool = False) -> str:
+    """``spurplan tune``: per product and rule or band, where it fails or lands and its worst
+    channel; the per-channel rows on request; then the verdict.
 
     Parameters
     ----------
     sweep : TuneSweep
         What :func:`spurplan.analyses.sweep.tune_sweep` found (MHz, dB).
+    per_channel : bool, optional
+        Add the table of every channel's products that fail or land in a protected band
+        (``--per-channel``), at most :data:`TUNE_TABLE_WIDTH` characters wide.
 
     Returns
     -------
     str
-        Heading, table, the verdict lines and the planning notice.
+        Heading, one summary line per product and rule or band (worst first), the table
+        when asked for, the ``TUNING RANGE:`` line and the planning notice.
     """
-    return (
-        _lines(
-            f"{sweep.lineup.name}: {len(sweep.carrier_hz)} channels, products that fail or land in a protected band"
-        )
-        + text_table(tune_display(sweep.rows), TUNE_TABLE)
-        + _lines(*tune_verdict(sweep), PLANNING_NOTICE)
+    from spurplan.analyses.tune_summary import band_rule_labels
+    from spurplan.output.verdicts import tune_entry_line
+
+    var = sweep.variable
+    x = sweep.carrier_hz
+    text = _lines(
+        f"{sweep.lineup.name}: tuning sweep over {len(x)} channels, the {var} from "
+        f"{x.min() / 1e6:.6f} to {x.max() / 1e6:.6f} MHz"
     )
+    entries = sweep.summary
+    if entries:
+        text += _lines(
+            "Products that fail or land in a protected band, per product and rule or band (worst first):",
+            *(f"  {tune_entry_line(e, var)}" for e in entries),
+        )
+    else:
+        text += _lines("No product fails or lands in a protected band on any channel.")
+    if per_channel and entries:
+        spec = tune_table(var)
+        cols = tune_display(sweep.rows, band_rule_labels(sweep.lineup.mask))
+        text += _lines("", "Per channel:") + text_table(_fit_last_column(cols, spec, TUNE_TABLE_WIDTH), spec)
+    text += _lines(*tune_verdict(sweep))
+    if entries and not per_channel:
+        text += _lines(f"({len(sweep.rows['label'])} per-channel rows: --per-channel lists them)")
+    return text + _lines(PLANNING_NOTICE)
 
 
 def remedy_text(found: Remedy, written: EditedLineup | None = None, path=None) -> str:

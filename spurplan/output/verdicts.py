@@ -140,7 +140,10 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
             "range to sign)"
         )
     if report:
-        return "The mask is met over the whole sweep."
+        return (
+            f"The mask is met over the whole sweep, up to its top: {sweep.max_compliant_input_dbm:+.2f} dBm in, "
+            f"{sweep.max_compliant_output_dbm:+.2f} dBm out; nothing within the sweep limits the drive."
+        )
     return (
         "HIGHEST COMPLIANT DRIVE: the mask is met over the whole range "
         f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)"
@@ -171,34 +174,107 @@ def check_verdict(outcome: CheckResult) -> str:
     return f"VERDICT: {outcome.verdict}{tail}"
 
 
-def tune_verdict(sweep: TuneSweep) -> list[str]:
-    """The terminal's lines on a tuning sweep: every channel passes, or each failing range.
+def tune_verdict(sweep: TuneSweep, style: str = "terminal") -> list[str]:
+    """The line on a tuning sweep: every channel passes, or how many fail and where worst.
 
     Parameters
     ----------
     sweep : TuneSweep
-        What :func:`spurplan.analyses.sweep.tune_sweep` found (ranges in Hz).
+        What :func:`spurplan.analyses.sweep.tune_sweep` found (channels in Hz).
+    style : {"terminal", "report"}
+        The terminal's ``TUNING RANGE:`` line, or the report's sentence (whose section
+        states the caveats on their own).
 
     Returns
     -------
     list of str
-        One line per failing range (MHz, product, rule, band, worst margin in dB), or
-        the one line that says every channel meets the mask.
+        One line: how many channels fail and the worst product, with the swept value
+        (carrier, or the LO with a mixer) where it is worst (MHz, dB); or that every
+        channel meets the mask.  The ranges are in :func:`tune_entry_line`.
     """
+    if style not in STYLES:
+        raise ValueError(f"style {style!r}: expected one of {', '.join(STYLES)}")
+    unsettled = 0 if sweep.unsettled is None else int(sweep.unsettled.sum())
+    if style == "report":
+        if not sweep.failing:
+            return ["Every channel meets the mask."]
+        worst = sweep.summary[0]
+        n_bad = int(sum(1 for w in sweep.worst_margin_db if w < 0))
+        return [
+            f"The mask is violated on {n_bad} of {len(sweep.carrier_hz)} channels; worst {worst['label']}, "
+            f"{worst['worst_margin_db']:+.2f} dB with the {sweep.variable} at "
+            f"{worst['worst_channel_hz'] / 1e6:.6f} MHz."
+        ]
     if not sweep.failing:
-        unsettled = 0 if sweep.unsettled is None else int(sweep.unsettled.sum())
         return [
             "TUNING RANGE: every channel meets the mask"
             + PRODUCTS_ONLY
             + model_caveat(sweep.lineup)
             + unsettled_caveat(unsettled, len(sweep.carrier_hz), "channels")
         ]
+    worst = sweep.summary[0]
+    n_bad = int(sum(1 for w in sweep.worst_margin_db if w < 0))
     return [
-        f"FAILS from {r['start_hz'] / 1e6:.6f} to {r['stop_hz'] / 1e6:.6f} MHz: {r['label']} under {r['rule']}"
-        + _in_band(r["band"])
-        + f", worst margin {r['worst_margin_db']:+.2f} dB"
-        for r in sweep.failing
+        f"TUNING RANGE: FAILS on {n_bad} of {len(sweep.carrier_hz)} channels; worst {worst['label']} "
+        f"{worst['worst_margin_db']:+.2f} dB with the {sweep.variable} at {worst['worst_channel_hz'] / 1e6:.6f} MHz"
+        + PRODUCTS_ONLY
     ]
+
+
+# At most this many stretches of channels are spelled out in one summary line.
+SHOWN_STRETCHES = 4
+
+
+def _stretches(spans: list[tuple[float, float, int]], variable: str) -> str:
+    """``"with the LO from 121.000000 to 124.300000 MHz and from ..."`` (Hz in, MHz out)."""
+    words = []
+    for a, b, _n in spans[:SHOWN_STRETCHES]:
+        words.append(f"at {a / 1e6:.6f} MHz" if a == b else f"from {a / 1e6:.6f} to {b / 1e6:.6f} MHz")
+    more = len(spans) - SHOWN_STRETCHES
+    tail = f" and {more} more stretch{'es' * (more > 1)}" if more > 0 else ""
+    return f"with the {variable} " + " and ".join(words) + tail
+
+
+def tune_entry_line(entry: dict, variable: str) -> str:
+    """One line of a tuning sweep's summary: a product, what judges it, where it fails or
+    lands in a band, and its worst channel and margin.
+
+    Parameters
+    ----------
+    entry : dict
+        One entry of :func:`spurplan.analyses.tune_summary.tune_summary` (Hz, dB).
+    variable : str
+        What was swept (``"carrier"``, or ``"LO"`` with a mixer).
+
+    Returns
+    -------
+    str
+        One line, without a line break (MHz, dB): ``"FAILS with the LO from ... to ... MHz"``
+        for failing stretches (edges refined where the sweep refined them), ``"lands there
+        with the carrier from ... to ... MHz"`` for the channels in a protected band.
+    """
+    band, rule = entry["band"], entry["rule"]
+    # Said once: a band's own limit is named by the band, another rule by its label.
+    where = f"in {band}" if entry["rule_is_band"] else f"under {rule}" + (f" (in {band})" if band else "")
+    parts = []
+    n, n_bad = entry["channels"], entry["failing_channels"]
+    if n_bad:
+        spans = [(r["start_hz"], r["stop_hz"], r["channels"]) for r in entry["failing_ranges"]]
+        parts.append(f"FAILS {_stretches(spans, variable)} ({n_bad} channel{'s' * (n_bad != 1)})")
+    if band is not None and (not n_bad or n_bad < n):
+        spans = [(r["first_hz"], r["last_hz"], r["channels"]) for r in entry["runs"]]
+        parts.append(f"lands there {_stretches(spans, variable)} ({n} channel{'s' * (n != 1)})")
+    verdict = "FAIL" if n_bad else "pass"
+    worst = entry["worst_margin_db"]
+    tail = (
+        "no rule judges it"
+        if worst is None
+        else (
+            f"worst {worst:+.2f} dB with the {variable} at {entry['worst_channel_hz'] / 1e6:.6f} MHz "
+            f"(product at {entry['worst_freq_hz'] / 1e6:.6f} MHz)"
+        )
+    )
+    return f"{verdict}  {entry['label']} {where}: {'; '.join(parts)}; {tail}"
 
 
 def recheck_verdict(found: Remedy) -> str:
