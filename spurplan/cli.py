@@ -249,6 +249,7 @@ def budget(lineup, fmt):
 @click.option("--plot", "plot_file", type=_OutputFile(), help="Draw |S21| to this PNG/SVG/PDF file.")
 @click.option("--touchstone", "ts_file", type=_OutputFile(), help="Write the network to this .s2p file.")
 @_format_option
+@_combine_option
 def filter_cmd(
     lineup,
     stage,
@@ -266,6 +267,7 @@ def filter_cmd(
     plot_file,
     ts_file,
     fmt,
+    combine,
 ):
     """Show a filter: element values and its response at the product frequencies.
 
@@ -277,6 +279,10 @@ def filter_cmd(
     from spurplan.output.terminal import filter_text, note_lines
 
     if family is not None:
+        if combine is not None:
+            raise click.UsageError(
+                "--combine applies to a lineup's filter stage (--stage NAME), not a prototype"
+            )
         spec = {
             "family": family,
             "response": resp,
@@ -298,7 +304,7 @@ def filter_cmd(
             raise click.UsageError(
                 "give --stage NAME (a filter stage of LINEUP) or a prototype (--family ...)"
             )
-        view = stage_view(_load(lineup), stage)
+        view = stage_view(_load(lineup), stage, combine)
     if plot_file:
         from spurplan.output.plots import save_filter_plot
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import math
 
 import numpy as np
 import pytest
@@ -130,3 +131,87 @@ def test_filter_command_on_a_non_filter_stage_is_an_error(tmp_path):
     out = CliRunner().invoke(main, ["filter", str(_lineup_file(tmp_path)), "--stage", "pa"])
     assert out.exit_code == 2
     assert "expected a filter stage" in out.stderr
+
+
+def _coincident_doc(combine: str) -> dict:
+    # Invented scenario: f2 = 3 f1, so 2f1 and f2-f1 land together at 200 MHz at the
+    # filter's input; a gain-and-OIP2 amplifier is the polynomial a1 x + a2 x^2.
+    return {
+        "carrier": [
+            {"freq": "100 MHz", "power": "0 dBm"},
+            {"freq": "300 MHz", "power": "-10 dBm", "phase": "120 deg"},
+        ],
+        "stage": [
+            {"kind": "amplifier", "name": "pa", "gain": "20 dB", "oip2": "+40 dBm"},
+            {
+                "kind": "filter",
+                "name": "lpf",
+                "prototype": {"family": "butterworth", "order": 5, "cutoff": "1 GHz"},
+            },
+        ],
+        "analysis": {"max_order": 2, "combine": combine},
+    }
+
+
+# Hand calculation (common practice, no source): with y = a1 x + a2 x^2 and output
+# carriers P1 = +20 dBm, P2 = +10 dBm, OIP2 = +40 dBm, the difference product is
+# P1 + P2 - OIP2 = -10 dBm (0.1 mW) with phase phi2 - phi1 = 120 deg, and the second
+# harmonic (a2 A1^2 / 2, half the two-tone product's amplitude) is 2 P1 - OIP2 - 6.02 dB
+# = 0.25 mW exactly, phase 2 phi1 = 0.  In sqrt(mW): a = 0.5, b = sqrt(0.1).
+_A, _B = 0.5, math.sqrt(0.1)
+COINCIDENT_DBM = {
+    # worst case: amplitudes add
+    "worst": 10 * math.log10((_A + _B) ** 2),  # -1.764 dBm
+    # power sum
+    "power": 10 * math.log10(_A**2 + _B**2),  # -4.559 dBm
+    # phase-true: |a + b e^(j 120 deg)|^2 = a^2 + b^2 + 2 a b cos(120 deg)
+    "phase": 10 * math.log10(_A**2 + _B**2 + 2 * _A * _B * math.cos(math.radians(120))),  # -7.170 dBm
+}
+
+
+@pytest.mark.parametrize("combine", ["worst", "power", "phase"])
+def test_filter_stage_view_combines_coincident_products_as_the_lineup_says(combine):
+    from spurplan.analyses.filter_view import stage_view
+
+    lineup = from_dict(_coincident_doc(combine), name="coincident.toml")
+    view = stage_view(lineup, "lpf")
+    rows = view.rows
+    at = [i for i, f in enumerate(rows["freq_hz"]) if abs(f - 200e6) < 1.0]
+    assert len(at) == 1  # one row per physical frequency, as the check reads it
+    i = at[0]
+    assert {rows["label"][i], rows["also"][i]} == {"2f1", "f2-f1"}
+    assert rows["level_in_dbm"][i] == pytest.approx(COINCIDENT_DBM[combine], abs=1e-6)
+    assert view.combine == combine
+    # The three hand values differ by more than 2 dB from one another, so a view that
+    # combined in any other way would fail the check above.
+    others = [v for k, v in COINCIDENT_DBM.items() if k != combine]
+    assert all(abs(COINCIDENT_DBM[combine] - v) > 2.0 for v in others)
+
+
+def test_filter_command_combine_option_overrides_the_lineup(tmp_path):
+    path = tmp_path / "coincident.toml"
+    path.write_text(
+        "# Invented scenario: 2f1 and f2-f1 coincide at the filter input.\n"
+        '[[carrier]]\nfreq = "100 MHz"\npower = "0 dBm"\n'
+        '[[carrier]]\nfreq = "300 MHz"\npower = "-10 dBm"\nphase = "120 deg"\n'
+        '[[stage]]\nkind = "amplifier"\nname = "pa"\ngain = "20 dB"\noip2 = "+40 dBm"\n'
+        '[[stage]]\nkind = "filter"\nname = "lpf"\n'
+        'prototype = { family = "butterworth", order = 5, cutoff = "1 GHz" }\n'
+        '[analysis]\nmax_order = 2\ncombine = "worst"\n',
+        encoding="utf-8",
+    )
+    for option, want in ((None, "worst"), ("power", "power"), ("phase", "phase")):
+        args = ["filter", str(path), "--stage", "lpf", "--format", "json"]
+        out = CliRunner().invoke(main, args + ([] if option is None else ["--combine", option]))
+        assert out.exit_code == 0, out.output
+        doc = json.loads(out.stdout)
+        assert doc["summary"]["combine"] == want
+        row = next(r for r in doc["products"] if abs(r["freq_hz"] - 200e6) < 1.0)
+        assert row["level_in_dbm"] == pytest.approx(COINCIDENT_DBM[want], abs=1e-6)
+    table = CliRunner().invoke(main, ["filter", str(path), "--stage", "lpf", "--combine", "power"])
+    assert table.exit_code == 0, table.output
+    assert "combine = power" in table.stdout and "2f1 (f2-f1)" in table.stdout
+    proto = CliRunner().invoke(
+        main, ["filter", "--family", "butterworth", "--order", "3", "--cutoff", "1 GHz", "--combine", "phase"]
+    )
+    assert proto.exit_code == 2 and len(proto.stderr.strip().splitlines()) == 1

@@ -35,17 +35,21 @@ class FilterView:
     stage : Filter
         The filter (a lineup's stage, or a prototype on its own).
     response : dict of str -> list
-        Its response at the products: ``freq_hz, label, order, level_in_dbm, s21_db,
-        s21_deg, beyond_data`` (Hz, dBm, dB, degrees).
+        Its response at the products: ``freq_hz, label, also, order, level_in_dbm,
+        s21_db, s21_deg, beyond_data`` (Hz, dBm, dB, degrees).
     notes : tuple of str
     lineup : Lineup or None
         The lineup of a stage; ``None`` for a prototype on its own.
+    combine : {"worst", "power", "phase"} or None
+        How the stage contributions to each input level were combined (a lineup's
+        stage); ``None`` for a prototype on its own.
     """
 
     stage: Filter
     response: dict[str, list]
     notes: tuple[str, ...]
     lineup: Lineup | None = None
+    combine: str | None = None
 
     @property
     def rows(self) -> dict[str, list]:
@@ -85,7 +89,7 @@ class FilterView:
         return self.stage.network(f)
 
 
-def stage_view(lineup, name: str) -> FilterView:
+def stage_view(lineup, name: str, combine: str | None = None) -> FilterView:
     """The view of filter stage ``name`` of ``lineup`` at its input products.
 
     Parameters
@@ -94,12 +98,16 @@ def stage_view(lineup, name: str) -> FilterView:
         The lineup, run once at its nominal drive.
     name : str
         Name of the filter stage.
+    combine : {"worst", "power", "phase"} or None
+        How the stage contributions to a product at the filter's input combine;
+        ``None`` uses the lineup's ``[analysis] combine``, as the check does.
 
     Returns
     -------
     FilterView
         The stage with :meth:`spurplan.engine.result.Result.stage_response` at its input
-        (frequencies in Hz, levels in dBm, S21 in dB and degrees).
+        (frequencies in Hz, levels in dBm, S21 in dB and degrees): products at one
+        frequency merged into one row, their level combined as ``combine`` says.
 
     Raises
     ------
@@ -108,11 +116,13 @@ def stage_view(lineup, name: str) -> FilterView:
     """
     stage = lineup.stage_of_kind(name, Filter)
     result = lineup.run()
+    mode = combine or lineup.analysis.combine
     return FilterView(
         stage=stage,
-        response=result.stage_response(name),
+        response=result.stage_response(name, combine=mode),
         notes=tuple(getattr(stage, "notes", ())),
         lineup=lineup,
+        combine=mode,
     )
 
 
@@ -149,13 +159,15 @@ def prototype_view(spec: dict, impedance: str, carrier: str | None) -> FilterVie
     notes = assumed_notes(spec)
     stage = Filter(name="prototype", r_ohm=r_ohm, prototype=proto, notes=notes)
     response: dict[str, list] = {
-        k: [] for k in ("freq_hz", "label", "order", "level_in_dbm", "s21_db", "s21_deg", "beyond_data")
+        k: []
+        for k in ("freq_hz", "label", "also", "order", "level_in_dbm", "s21_db", "s21_deg", "beyond_data")
     }
     if f0:
         f = f0 * np.arange(1, PROTOTYPE_HARMONICS + 1)
         h = stage.response(f)
         response["freq_hz"] = [float(v) for v in f]
         response["label"] = ["f1" if n == 1 else f"{n}f1" for n in range(1, PROTOTYPE_HARMONICS + 1)]
+        response["also"] = [""] * PROTOTYPE_HARMONICS
         response["order"] = list(range(1, PROTOTYPE_HARMONICS + 1))
         response["level_in_dbm"] = [None] * PROTOTYPE_HARMONICS
         with np.errstate(divide="ignore"):

@@ -7,19 +7,26 @@ Tolerances are written per stage in the lineup::
     tolerance = { gain = "0.5 dB", oip3 = { uniform = "2 dB" }, psat = "0.3 dB" }
     # filters: tolerance = { cutoff = "2 %", q_inductor = "10 %", elements = "3 %" }
 
-A bare value is the standard deviation of a normal distribution; ``{ uniform = X }``
-spreads uniformly within +/- X.  Level figures move in dB (amplifier ``gain``,
-``oip3``, ``oip2``, ``psat``, ``p1db``, ``ohip2`` .. ``ohip9``; attenuator ``loss``;
-mixer ``conversion_gain``); filter figures move in per cent (``cutoff`` or
-``center``: the whole response in frequency; ``q_inductor``, ``q_capacitor``;
-``elements``: every L and C on its own).  Named corners shift figures together::
+A bare value (or ``{ normal = X }``) is the standard deviation of a normal
+distribution centred on the stated figure, not a limit (draws are not truncated);
+``{ uniform = X }`` is a limit: uniform within +/- X (:func:`draw`).  Every figure of
+every stage draws on its own (no correlation).  Level figures move in dB (amplifier
+``gain``, ``oip3``, ``oip2``, ``psat``, ``p1db``, ``ohip2`` .. ``ohip9``, and ``h2`` ..
+``h9`` in dBc at their stated output power, for the harmonics the stage states;
+attenuator ``loss``; mixer ``conversion_gain``); filter figures move in per cent of
+the stated value (``cutoff`` or ``center``: the whole response in frequency;
+``q_inductor``, ``q_capacitor``; ``elements``: every L and C on its own).  Named
+corners shift figures together::
 
     [[corner]]
     name = "hot"
     shift = { "pa.gain" = "-1.5 dB", "pa.oip3" = "-2 dB", "harmonic low-pass.cutoff" = "-1 %" }
 
 A sample passes when it meets the mask at every corner (the nominal one if none
-are given) and at every channel asked for.  Samples are drawn batch by batch from
+are given) and at every channel asked for.  The same question is also answered per
+corner (over every channel) and per channel (over every corner), each with its Wilson
+interval and its leading cause, so that a yield lost at one corner or one end of the
+band says where.  Samples are drawn batch by batch from
 ``numpy.random.default_rng([seed, batch])``: the seed belongs to the batch, not to
 the process that evaluates it, so the result is the same in process and on any
 number of Dask workers.  Each batch is one pass of the vectorised engine.
@@ -31,6 +38,7 @@ Yield is reported with the Wilson score interval (95 %) for a binomial proportio
 from __future__ import annotations
 
 import math
+from collections import Counter
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -200,8 +208,9 @@ def evaluate_batch(
     """Draw and evaluate batch ``batch`` of ``n`` samples; a plain dict of arrays (picklable).
 
     Returns ``worst_margin_db`` (n,), the label and rule of each sample's worst product,
-    and ``passed`` (n,).  Every corner and channel is one more copy of the batch through
-    the same engine pass.
+    and ``passed`` (n,), over every corner and channel; and the same tallied per corner
+    (worst over its channels) and per channel (worst over the corners).  Every corner
+    and channel is one more copy of the batch through the same engine pass.
 
     Parameters
     ----------
@@ -226,42 +235,75 @@ def evaluate_batch(
     dict
         ``worst_margin_db`` ndarray (n,) in dB over every corner and channel, ``label``
         and ``rule`` lists of str (n), ``passed`` ndarray of bool (n,), ``unsettled``
-        ndarray of bool (n,): a sample whose levels did not settle at some corner or channel.
+        ndarray of bool (n,): a sample whose levels did not settle at some corner or
+        channel; ``by_corner`` and ``by_channel``, one tally per corner (in the lineup's
+        order; one for the nominal when none are given) and per channel (one for the
+        lineup's own tones when none are given): ``failed`` (int) and ``causes``, a dict
+        ``(label, rule)`` to the number of samples whose worst product there it is.
     """
     deltas = draw(tolerances, n, seed, batch)
     corners = tolerances.corners or (None,)
     tones = np.atleast_2d(lineup.tone_freqs_hz if channels_hz is None else lineup.tuned_tones_hz(channels_hz))
-    worst = np.full(n, np.inf)
-    unsettled = np.zeros(n, dtype=bool)
-    labels = np.full(n, "", dtype=object)
-    rules = np.full(n, "", dtype=object)
+    # Each corner's sampled stages once: the channels loop inside, so that a channel's
+    # tally is complete (every corner seen) before the next one, and only the corners'
+    # worst margins, never one per channel and sample, are held.
     # With figure tables against frequency every channel has stages of its own.
     per_channel = bool(tabled_stages(lineup.stages))
-    for corner in corners:
-        stages = None if per_channel else sampled_stages(lineup, deltas, corner, n)
-        for t in tones:
-            at = stages if stages is not None else sampled_stages(lineup, deltas, corner, n, tones_hz=t)
-            result = run(lineup, tone_freqs_hz=np.broadcast_to(t, (n, len(t))), stages=at)
+    stages_of = [None if per_channel else sampled_stages(lineup, deltas, corner, n) for corner in corners]
+    worst = _Worst(n)
+    at_corner = [_Worst(n) for _ in corners]
+    unsettled = np.zeros(n, dtype=bool)
+    by_channel = []
+    for t in tones:
+        at_channel = _Worst(n)
+        for c, stages in enumerate(stages_of):
+            if stages is None:
+                stages = sampled_stages(lineup, deltas, corners[c], n, tones_hz=t)
+            result = run(lineup, tone_freqs_hz=np.broadcast_to(t, (n, len(t))), stages=stages)
             levels = result.levels(None, combine)
             ev = evaluate(lineup, result, levels)
-            w = ev.worst_margin_db
             unsettled |= ~result.propagation.converged.all(axis=0)
             slot = ev.worst_slot
             names = _slot_names(result, levels, slot)
-            rule = [
-                "" if ev.rule[b, slot[b]] < 0 else ev.rules[ev.rule[b, slot[b]]][0].label for b in range(n)
-            ]
-            better = w < worst
-            worst = np.where(better, w, worst)
-            labels = np.where(better, names, labels)
-            rules = np.where(better, np.asarray(rule, dtype=object), rules)
+            rule = np.asarray(
+                ["" if ev.rule[b, slot[b]] < 0 else ev.rules[ev.rule[b, slot[b]]][0].label for b in range(n)],
+                dtype=object,
+            )
+            at_channel.update(ev.worst_margin_db, names, rule)
+            at_corner[c].update(ev.worst_margin_db, names, rule)
+        by_channel.append(at_channel.tally())
+        worst.update(at_channel.margin_db, at_channel.label, at_channel.rule)
     return {
-        "worst_margin_db": worst,
-        "label": labels.tolist(),
-        "rule": rules.tolist(),
-        "passed": worst >= 0,
+        "worst_margin_db": worst.margin_db,
+        "label": worst.label.tolist(),
+        "rule": worst.rule.tolist(),
+        "passed": worst.margin_db >= 0,
         "unsettled": unsettled,
+        "by_corner": [w.tally() for w in at_corner],
+        "by_channel": by_channel,
     }
+
+
+class _Worst:
+    """Each sample's worst margin so far (dB) with the product and rule that set it."""
+
+    def __init__(self, n: int):
+        self.margin_db = np.full(n, np.inf)
+        self.label = np.full(n, "", dtype=object)
+        self.rule = np.full(n, "", dtype=object)
+
+    def update(self, margin_db: np.ndarray, label: np.ndarray, rule: np.ndarray) -> None:
+        # Strictly worse only: of equal margins the first seen keeps its name.
+        better = margin_db < self.margin_db
+        self.margin_db = np.where(better, margin_db, self.margin_db)
+        self.label = np.where(better, label, self.label)
+        self.rule = np.where(better, rule, self.rule)
+
+    def tally(self) -> dict:
+        """``failed`` (samples with a negative worst margin) and ``causes`` among them."""
+        failing = self.margin_db < 0
+        causes = Counter(zip(self.label[failing].tolist(), self.rule[failing].tolist(), strict=True))
+        return {"failed": int(failing.sum()), "causes": dict(causes)}
 
 
 def _slot_names(result, levels, slot: np.ndarray) -> np.ndarray:
@@ -301,7 +343,28 @@ def wilson_interval(passed: int, n: int, z: float = Z_95) -> tuple[float, float]
 
 @dataclass(frozen=True)
 class YieldResult:
-    """What :func:`run_yield` found."""
+    """What :func:`run_yield` found.
+
+    Attributes
+    ----------
+    lineup : Lineup
+    samples, seed, passed : int
+    worst_margin_db : ndarray (samples,)
+        Each sample's worst margin (dB) over every corner and channel.
+    causes : list of dict
+        The worst product of each failing sample, by count: ``label``, ``rule``,
+        ``samples``, ``fraction``.
+    where : str
+        Where the batches ran.
+    unsettled_passing : int
+        Passing samples whose levels did not settle somewhere.
+    by_corner, by_channel : tuple of dict
+        The same question asked per corner (a sample fails there when its worst product
+        over every channel fails at that corner) and per channel (over every corner), in
+        the lineup's corner order and the channels' order (:func:`breakdown_row`); one
+        ``"nominal"`` corner when the lineup gives none, no channel rows when no channels
+        were asked for.
+    """
 
     lineup: Lineup
     samples: int
@@ -311,6 +374,8 @@ class YieldResult:
     causes: list
     where: str
     unsettled_passing: int = 0
+    by_corner: tuple = ()
+    by_channel: tuple = ()
 
     @property
     def yield_fraction(self) -> float:
@@ -325,12 +390,83 @@ class YieldResult:
         """:attr:`causes` as columns: ``label``, ``rule``, ``samples`` and ``fraction``."""
         return {c: [r[c] for r in self.causes] for c in ("label", "rule", "samples", "fraction")}
 
+    @property
+    def corner_rows(self) -> dict[str, list]:
+        """:attr:`by_corner` as columns (keys of :func:`breakdown_row`, ``corner`` first)."""
+        return _columns(self.by_corner, "corner")
+
+    @property
+    def channel_rows(self) -> dict[str, list]:
+        """:attr:`by_channel` as columns (keys of :func:`breakdown_row`, ``channel_hz`` first)."""
+        return _columns(self.by_channel, "channel_hz")
+
     def plot(self, size_px=(1000, 600)):
         """Histogram of the samples' worst margins; returns a matplotlib Figure."""
         # the one upward door: presentation, imported on use
         from spurplan.output.plots import yield_figure
 
         return yield_figure(self, size_px)
+
+
+BREAKDOWN_KEYS = (
+    "samples",
+    "failed",
+    "yield",
+    "interval_95",
+    "leading_label",
+    "leading_rule",
+    "leading_samples",
+)
+
+
+def breakdown_row(samples: int, tally: dict) -> dict:
+    """One corner's or channel's yield, its Wilson interval and its leading cause.
+
+    Parameters
+    ----------
+    samples : int
+        Samples evaluated there (every sample of the run).
+    tally : dict
+        ``failed`` and ``causes`` (``(label, rule)`` to a count), summed over the batches.
+
+    Returns
+    -------
+    dict
+        :data:`BREAKDOWN_KEYS`: ``yield`` the passing fraction, ``interval_95`` its 95 %
+        Wilson interval ``[low, high]``, ``leading_label`` and ``leading_rule`` the
+        product and rule that are the worst of most failing samples there (ties to the
+        first in label, then rule order; ``""`` when none fails) and ``leading_samples``
+        how many samples that is.
+    """
+    failed = int(tally["failed"])
+    lo, hi = wilson_interval(samples - failed, samples)
+    causes = tally["causes"]
+    lead = min(causes, key=lambda k: (-causes[k], k)) if causes else ("", "")
+    return {
+        "samples": samples,
+        "failed": failed,
+        "yield": (samples - failed) / samples,
+        "interval_95": [lo, hi],
+        "leading_label": lead[0],
+        "leading_rule": lead[1],
+        "leading_samples": int(causes.get(lead, 0)),
+    }
+
+
+def _merged_tallies(parts: list, key: str) -> list[dict]:
+    """The batches' tallies under ``key`` summed position by position."""
+    failed = [0] * len(parts[0][key])
+    causes: list[Counter] = [Counter() for _ in failed]
+    for part in parts:
+        for i, tally in enumerate(part[key]):
+            failed[i] += tally["failed"]
+            causes[i].update(tally["causes"])
+    return [{"failed": f, "causes": dict(c)} for f, c in zip(failed, causes, strict=True)]
+
+
+def _columns(rows, first: str) -> dict[str, list]:
+    keys = (first, *BREAKDOWN_KEYS)
+    return {k: [r[k] for r in rows] for k in keys}
 
 
 def run_yield(
@@ -370,7 +506,8 @@ def run_yield(
     Returns
     -------
     YieldResult
-        Samples passed, each sample's worst margin (dB) and the failing products by count.
+        Samples passed, each sample's worst margin (dB) and the failing products by count;
+        the same per corner and per channel, each with its Wilson interval and leading cause.
 
     Raises
     ------
@@ -435,6 +572,17 @@ def run_yield(
         {"label": k[0], "rule": k[1], "samples": v, "fraction": v / samples}
         for k, v in sorted(counts.items(), key=lambda kv: (-kv[1], kv[0]))
     ]
+    names = [c.name for c in tolerances.corners] or ["nominal"]
+    by_corner = tuple(
+        {"corner": name, **breakdown_row(samples, t)}
+        for name, t in zip(names, _merged_tallies(parts, "by_corner"), strict=True)
+    )
+    by_channel: tuple[dict, ...] = ()
+    if channels_hz is not None:
+        by_channel = tuple(
+            {"channel_hz": float(f), **breakdown_row(samples, t)}
+            for f, t in zip(np.ravel(channels_hz), _merged_tallies(parts, "by_channel"), strict=True)
+        )
     return YieldResult(
         lineup=lineup,
         samples=samples,
@@ -444,4 +592,6 @@ def run_yield(
         causes=causes,
         where=where,
         unsettled_passing=int((unsettled & ~failing).sum()),
+        by_corner=by_corner,
+        by_channel=by_channel,
     )

@@ -21,7 +21,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.engine.node_table import node_levels
-from spurplan.model.products import label, labels, orders, product_index
+from spurplan.model.products import labels, orders, product_index
 from spurplan.units import ratio_db, vpeak_to_dbm
 
 if TYPE_CHECKING:  # annotations only: lineup imports the engine, which result must not load
@@ -257,12 +257,16 @@ class Result:
         flags = ~self.propagation.converged[:, 0]
         return [s.name for s, bad in zip(self.lineup.stages, flags, strict=True) if bad]
 
-    def stage_response(self, stage: str, batch: int = 0) -> dict[str, list]:
+    def stage_response(self, stage: str, batch: int = 0, combine: str | None = None) -> dict[str, list]:
         """A linear stage's response at every product present at its input.
 
-        Returns columns ``freq_hz``, ``label``, ``order``, ``level_in_dbm``, ``s21_db``,
-        ``s21_deg`` and ``beyond_data``, sorted by frequency; products more than
-        200 dB below the strongest one at the input are left out.
+        The products at the stage's input are merged by frequency and their stage
+        contributions combined as :meth:`levels` does (``combine``, default the lineup's
+        ``[analysis] combine``), so ``level_in_dbm`` is the level the check would use at
+        that node; carriers are as modelled.  Returns columns ``freq_hz``, ``label``,
+        ``also``, ``order``, ``level_in_dbm``, ``s21_db``, ``s21_deg`` and
+        ``beyond_data``, sorted by frequency; products more than 200 dB below the
+        strongest one at the input are left out.
 
         Parameters
         ----------
@@ -270,28 +274,54 @@ class Result:
             Name of the linear stage.
         batch : int
             Batch element (drive or tuning point).
+        combine : {"worst", "power", "phase"} or None
+            ``None`` uses the lineup's analysis setting.
 
         Returns
         -------
         dict of str to list
-            Frequencies in Hz, input levels in dBm, ``s21_db`` in dB and ``s21_deg`` in degrees.
+            Frequencies in Hz, input levels in dBm, ``s21_db`` in dB and ``s21_deg`` in
+            degrees; ``also`` names the other products merged into a row.
         """
         i = self.node_index(stage)
         prop = self.propagation
-        x = prop.nodes[i - 1, batch]
+        lv = node_levels(
+            self,
+            i - 1,
+            combine or self.lineup.analysis.combine,
+            slice(batch, batch + 1),
+            self.carrier_columns(i - 1),
+        )
+        level = lv.level_dbm[0]
+        strongest = level[lv.valid[0]].max()
+        keep = np.nonzero(lv.valid[0] & (level - strongest > REPORT_FLOOR_DBC))[0]
+        keep = keep[np.argsort(lv.freq_hz[0, keep], kind="stable")]
+        reps, signs = lv.rep[0, keep], lv.sign[0, keep]
+        # Every member of a row sits at one frequency, so the representative's response
+        # is the row's; a product at negative m . f sees the conjugate (Hermitian S21).
+        h = prop.response[i - 1, batch, reps]
+        h = np.where(signs < 0, np.conj(h), h)
+        group = lv.group[0]
+        # The stage's own beyond-data flag, for any member of the row.
+        beyond = np.bincount(group, weights=prop.beyond[i - 1, batch], minlength=group.size) > 0
+        plus, minus = labels(self.mix, self.lineup.tone_names)
+        order_of = orders(self.mix)
         f = self.freqs_hz[batch]
-        present = np.abs(x) > 10 ** (REPORT_FLOOR_DBC / 20) * np.abs(x).max()
-        idx = np.nonzero(present)[0]
-        idx = idx[np.argsort(np.abs(f[idx]), kind="stable")]
-        h = prop.response[i - 1, batch]
-        h = np.where(f < 0, np.conj(h), h)
-        names = self.lineup.tone_names
+
+        def name(p: int | np.integer) -> str:
+            return plus[p] if f[p] >= 0 else minus[p]
+
+        def also(g: int | np.integer, rep: int | np.integer) -> str:
+            members = [p for p in np.nonzero(group == g)[0] if p != rep]
+            return " ".join(name(p) for p in sorted(members, key=lambda p: (order_of[p], p)))
+
         return {
-            "freq_hz": [float(abs(f[p])) for p in idx],
-            "label": [label(self.mix[p] * (1 if f[p] >= 0 else -1), names) for p in idx],
-            "order": [int(orders(self.mix[p : p + 1])[0]) for p in idx],
-            "level_in_dbm": [float(vpeak_to_dbm(x[p], self.lineup.r_ohm)) for p in idx],
-            "s21_db": [float(ratio_db(h[p])) for p in idx],
-            "s21_deg": [float(np.degrees(np.angle(h[p]))) for p in idx],
-            "beyond_data": [bool(prop.beyond[i - 1, batch, p]) for p in idx],
+            "freq_hz": lv.freq_hz[0, keep].tolist(),
+            "label": [name(p) for p in reps],
+            "also": [also(g, r) if lv.members[0, g] > 1 else "" for g, r in zip(keep, reps, strict=True)],
+            "order": order_of[reps].tolist(),
+            "level_in_dbm": level[keep].tolist(),
+            "s21_db": ratio_db(h).tolist(),
+            "s21_deg": np.degrees(np.angle(h)).tolist(),
+            "beyond_data": beyond[keep].tolist(),
         }

@@ -1,8 +1,10 @@
 """Reading a lineup's spreads: each stage's ``tolerance`` table and the ``[[corner]]`` tables.
 
 An amount is a level in dB (``"0.5 dB"``) or, for figures the stage kind spreads
-relatively, a percentage (``"2 %"``); a bare amount is a normal sigma, ``{ uniform = ... }``
-a half-width.  The stage kind says which figures spread and in which unit
+relatively, a percentage (``"2 %"``).  A bare amount, or ``{ normal = ... }``, is the
+standard deviation of a normal distribution (not a limit; draws are not truncated);
+``{ uniform = ... }`` is a limit: the half-width of a uniform distribution.  No other
+form is read.  The stage kind says which figures spread and in which unit
 (``Stage.spread_figures``).
 """
 
@@ -72,6 +74,9 @@ def read_tolerance(raw, file: str, where: str, index: int, stage) -> tuple[Toler
             allowed = ", ".join(names) or "none (this stage has no figures that spread)"
 
             raise f.error(key, f"cannot spread{_did_you_mean(key, names)}: expected one of {allowed}")
+        if why := stage.spread_refusal(key):
+            f.raw(key)
+            raise f.error(key, f"cannot spread: {why}")
         value = raw[key]
         kind = "normal"
         if isinstance(value, dict):
@@ -135,6 +140,8 @@ def read_corners(raw, file: str, stages) -> tuple[Corner, ...]:
                 raise f.error(
                     "shift", f"{key!r}: {figure!r} cannot shift; expected one of {', '.join(units)}"
                 )
+            if why := stages[i].spread_refusal(figure):
+                raise f.error("shift", f"{key!r}: {figure!r} cannot shift: {why}")
             shifts.append((i, figure, _amount(text, f, "shift", units[figure] == PERCENT)))
         f.finish()
         out.append(Corner(name=name, shifts=tuple(shifts)))

@@ -366,6 +366,10 @@ def remedy_document(found: Remedy) -> Document:
 def yield_document(res: YieldResult) -> Document:
     """The yield, its interval and causes with provenance; the causes under ``"causes"``.
 
+    The summary also holds ``"by_corner"`` and ``"by_channel"``: per corner and per channel
+    (:func:`spurplan.analyses.montecarlo.breakdown_row`) the samples, failures, yield, its
+    Wilson interval and the leading cause there.
+
     Parameters
     ----------
     res : YieldResult
@@ -387,6 +391,9 @@ def yield_document(res: YieldResult) -> Document:
         "interval_95": [lo, hi],
         "interval_method": "Wilson score",
         "causes": res.causes,
+        "by_corner": list(res.by_corner),
+        "by_channel": list(res.by_channel),
+        "channel_tunes": "first mixer's LO" if res.lineup.mixers else "reference carrier",
         "ran_on": res.where,
         **provenance(res.lineup),
     }
@@ -445,6 +452,7 @@ def filter_document(view: FilterView) -> Document:
         "notes": list(view.notes),
     }
     if view.lineup is not None:
+        out["combine"] = view.combine
         out.update(provenance(view.lineup))
     return Document(out, "products", view.rows)
 

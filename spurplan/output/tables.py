@@ -144,6 +144,20 @@ CAUSE_TABLE = [
     ("fraction", "fraction", ".4f"),
 ]
 
+# The yield per corner and per channel (montecarlo.breakdown_row, through breakdown_display).
+_BREAKDOWN_COLUMNS = [
+    ("samples", "samples", "d"),
+    ("failed", "failing", "d"),
+    ("yield_pct", "yield (%)", ".3f"),
+    ("low_pct", "95 % low (%)", ".3f"),
+    ("high_pct", "95 % high (%)", ".3f"),
+    ("leading_label", "leading product", None),
+    ("leading_rule", "its rule", None),
+    ("leading_samples", "its samples", "d"),
+]
+CORNER_TABLE = [("corner", "corner", None), *_BREAKDOWN_COLUMNS]
+CHANNEL_TABLE = [("channel_mhz", "channel (MHz)", ".6f"), *_BREAKDOWN_COLUMNS]
+
 SPUR_TABLE = [
     ("label", "product", None),
     ("m", "m", "d"),
@@ -310,12 +324,28 @@ def filter_response_display(view) -> dict:
 
     cols = dict(view.rows)
     cols["freq_mhz"] = mhz(cols["freq_hz"])
+    # Products merged at one frequency read as on the spectrum table: "2f1 (f2-f1)".
+    cols["label"] = [f"{a} ({b})" if b else a for a, b in zip(cols["label"], cols["also"], strict=True)]
     floor = view.stage.ideal_below_floor(np.asarray(cols["freq_hz"], dtype=float))
     cols["flags"] = [
         " ".join(w for w, on in (("BEYOND-DATA", b), ("FLOOR", bool(fl))) if on)
         for b, fl in zip(cols["beyond_data"], floor, strict=True)
     ]
     return cols
+
+
+def breakdown_display(cols: dict) -> dict:
+    """Yield rows per corner or channel for a terminal: per cent, channels in MHz, "-"
+    for no leading cause."""
+    shown = dict(cols)
+    shown["yield_pct"] = [100 * v for v in cols["yield"]]
+    shown["low_pct"] = [100 * lo for lo, _ in cols["interval_95"]]
+    shown["high_pct"] = [100 * hi for _, hi in cols["interval_95"]]
+    if "channel_hz" in cols:
+        shown["channel_mhz"] = mhz(cols["channel_hz"])
+    for key in ("leading_label", "leading_rule"):
+        shown[key] = [v or "-" for v in cols[key]]
+    return shown
 
 
 def element_display(cols: dict) -> dict:

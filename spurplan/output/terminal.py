@@ -17,7 +17,9 @@ from spurplan.output.tables import (
     BANDS_TABLE,
     BUDGET_TABLE,
     CAUSE_TABLE,
+    CHANNEL_TABLE,
     CHECK_TABLE,
+    CORNER_TABLE,
     DRIVE_TABLE,
     ELEMENT_TABLE,
     NEEDED_TABLE,
@@ -25,6 +27,7 @@ from spurplan.output.tables import (
     RESPONSE_TABLE,
     RULES_TABLE,
     SPUR_TABLE,
+    breakdown_display,
     check_display,
     drive_display,
     element_display,
@@ -249,7 +252,10 @@ def filter_heading(view: FilterView) -> str:
         if not what:
             assert proto is not None  # a filter without a data file is a synthesized ladder
             what = f"synthesized ladder; {describe_parts(proto)}"
-        return f"{view.lineup.name}: filter '{stage.name}' ({what}) at the products reaching it"
+        return (
+            f"{view.lineup.name}: filter '{stage.name}' ({what}) at the products reaching it "
+            f"(combine = {view.combine})"
+        )
     assert proto is not None  # a view without a lineup is of a prototype (filter_view.prototype_view)
     return (
         f"{proto.family} {proto.response}, order {proto.order}, {stage.r_ohm:g} ohm; {describe_parts(proto)}"
@@ -501,7 +507,9 @@ def yield_text(res: YieldResult) -> str:
     Returns
     -------
     str
-        Heading, the ``YIELD:`` line (per cent), the table of causes and the planning notice.
+        Heading, the ``YIELD:`` line (per cent), the table of causes, the yield per corner
+        (when the lineup has corners) and per channel (when channels were asked for; the
+        channels where some sample fails, MHz), and the planning notice.
     """
     text = _lines(
         f"{res.lineup.name}: Monte Carlo yield, {res.samples} samples, seed {res.seed}, {res.where}",
@@ -510,4 +518,29 @@ def yield_text(res: YieldResult) -> str:
     if res.causes:
         text += _lines("What fails the rest (worst product of each failing sample):")
         text += text_table(res.rows, CAUSE_TABLE)
+    if res.lineup.tolerances is not None and res.lineup.tolerances.corners:
+        text += _lines(
+            "",
+            "By corner (a sample fails at a corner when its worst product there, over every channel, fails):",
+        )
+        text += text_table(breakdown_display(res.corner_rows), CORNER_TABLE)
+    if res.by_channel:
+        tuned = "the first mixer's LO" if res.lineup.mixers else "the reference carrier"
+        cols = res.channel_rows
+        failing = [i for i, f in enumerate(cols["failed"]) if f]
+        text += _lines(
+            "",
+            f"By channel ({tuned} at each; a sample fails at a channel when its worst product there, "
+            "over every corner, fails):",
+        )
+        if failing:
+            text += text_table(
+                breakdown_display({k: [v[i] for i in failing] for k, v in cols.items()}), CHANNEL_TABLE
+            )
+        passing = len(cols["failed"]) - len(failing)
+        if passing:
+            text += _lines(
+                f"{passing} of {len(cols['failed'])} channels: every sample passes "
+                f"({'not listed; ' if failing else ''}every channel is in --format json)"
+            )
     return text + _lines(PLANNING_NOTICE)

@@ -106,8 +106,18 @@ OUTPUT_INTERCEPT = Within("an output intercept point", -50.0, 100.0, "dBm")
 INPUT_INTERCEPT = Within("an input intercept point", -110.0, 100.0, "dBm")
 HARMONIC_DBC = Within("a harmonic level", -200.0, 0.0, "dBc", "below the carrier")
 HARMONIC_AT = Within("the output power of a harmonic figure", -50.0, 90.0, "dBm")
-# Figures a tolerance or corner may move (dB; ohipN output-referred).
-SPREAD_FIGURES = ("gain", "oip3", "oip2", "psat", "p1db", *(f"ohip{n}" for n in range(2, MAX_HARMONIC + 1)))
+# Figures a tolerance or corner may move (dB; ohipN output-referred; hN in dBc at its
+# stated output power), each only where the stage states it (Amplifier.spread_refusal).
+HARMONIC_ORDERS = tuple(range(2, MAX_HARMONIC + 1))
+SPREAD_FIGURES = (
+    "gain",
+    "oip3",
+    "oip2",
+    "psat",
+    "p1db",
+    *(f"ohip{n}" for n in HARMONIC_ORDERS),
+    *(f"h{n}" for n in HARMONIC_ORDERS),
+)
 # Keys that may be tables against frequency (spurplan.model.figure_tables).
 TABLE_KEYS = (
     "gain",
@@ -486,8 +496,30 @@ class Amplifier(StageDefaults):
         return hit
 
     def spread_figures(self) -> dict[str, str]:
-        """Gain, intercepts and compression points, each in dB."""
+        """Gain, intercepts, compression points and harmonic levels, each in dB; only those
+        the stage states may be given a spread (:meth:`spread_refusal`)."""
         return dict.fromkeys(SPREAD_FIGURES, DB)
+
+    def spread_refusal(self, figure: str) -> str | None:
+        """Why ``figure`` (e.g. ``"h2"``, ``"psat"``) cannot spread on this stage: the stage
+        does not state it, so a spread would move nothing (the model's own product of that
+        order comes from the other figures) and be silently ignored; ``None`` when it can
+        (or when the name is not in :meth:`spread_figures`, which the loader says itself)."""
+        fig = self.figures
+        n = _harmonic_key(figure)
+        if n is not None and figure in SPREAD_FIGURES:
+            if n not in fig.harmonics and n not in fig.ohip_dbm:
+                return f"the stage states no h{n} or ohip{n} (expected a tolerance on a figure it states)"
+            return None
+        stated = {
+            "oip3": (fig.oip3_dbm, "oip3 or iip3"),
+            "oip2": (fig.oip2_dbm, "oip2 or iip2"),
+            "psat": (fig.psat_dbm, "psat"),
+            "p1db": (fig.p1db_dbm, "p1db"),
+        }
+        if figure in stated and stated[figure][0] is None:
+            return f"the stage states no {stated[figure][1]} (expected a tolerance on a figure it states)"
+        return None
 
     def sampled(
         self, deltas: dict[str, np.ndarray], n: int, r_ohm: float, ref_hz: np.ndarray | None = None
@@ -497,7 +529,8 @@ class Amplifier(StageDefaults):
         Parameters
         ----------
         deltas : dict of str -> ndarray (n,)
-            Shifts (dB) of figures of :data:`SPREAD_FIGURES`.
+            Shifts (dB) of figures of :data:`SPREAD_FIGURES`; an ``hN`` shift (dBc) moves
+            OHIPn (:func:`harmonic_spread_as_ohip`).
         n : int
             Samples in the batch.
         r_ohm : float
@@ -514,7 +547,7 @@ class Amplifier(StageDefaults):
         SampledStage
             Per-sample transfer, gain and harmonic-zone weights.
         """
-        transfer, weights = sampled_model(self, deltas, r_ohm)
+        transfer, weights = sampled_model(self, harmonic_spread_as_ohip(deltas), r_ohm)
         gain = 10 ** (deltas.get("gain", 0.0) / 20)
         tables = self.figure_tables
         if ref_hz is not None and tables and "gain" in tables and (self.band or self.shape):
@@ -746,6 +779,45 @@ class Amplifier(StageDefaults):
                 f"the carrier at {context.ref_freq_hz:.6g} Hz, where the figures are referred",
             )
         return replace(amp, shape=table, notes=amp.notes + tuple(notes))
+
+
+def _harmonic_key(figure: str) -> int | None:
+    """The order n of ``"hN"`` or ``"ohipN"`` (2 .. 9); ``None`` for any other name."""
+    for prefix in ("ohip", "h"):
+        digits = figure[len(prefix) :]
+        if figure.startswith(prefix) and digits.isdigit() and int(digits) in HARMONIC_ORDERS:
+            return int(digits)
+    return None
+
+
+def harmonic_spread_as_ohip(deltas: dict) -> dict:
+    """``deltas`` with every ``hN`` shift (dBc) turned into the OHIPn shift that gives it.
+
+    A datasheet harmonic stated at a fixed output power P reads, at small signal,
+    ``hN_dBc = (n - 1) (P - OHIPn)`` (module docstring; common practice, no source): the
+    n-th harmonic grows n dB per dB of drive and the carrier 1 dB, so its distance to
+    the carrier closes by (n - 1) dB per dB, and it meets the carrier at OHIPn.  With P
+    held, a shift d of ``hN`` is ``d = -(n - 1) dOHIPn``, i.e. ``dOHIPn = -d / (n - 1)``.
+    The sampled model then holds each sample's ``hN`` at P (the zone weight moves by
+    ``-(n - 1) dOHIPn = d``, :func:`sampled_model`).  An ``hN`` and an ``ohipN`` spread of
+    the same order add.
+
+    Parameters
+    ----------
+    deltas : dict of str -> ndarray (B,)
+        Shifts in dB: figures of :data:`SPREAD_FIGURES`, ``hN`` in dBc.
+
+    Returns
+    -------
+    dict of str -> ndarray (B,)
+        The same shifts with each ``hN`` folded into ``ohipN`` (dB).
+    """
+    out = {k: v for k, v in deltas.items() if not (k.startswith("h") and _harmonic_key(k))}
+    for key, d in deltas.items():
+        n = _harmonic_key(key)
+        if n and key.startswith("h"):
+            out[f"ohip{n}"] = out.get(f"ohip{n}", 0.0) - np.asarray(d) / (n - 1)
+    return out
 
 
 def sampled_model(amp: Amplifier, deltas: dict, r_ohm: float) -> tuple[Polynomial | Saturating, dict]:

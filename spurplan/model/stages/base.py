@@ -161,6 +161,12 @@ class Stage(Protocol):
         """Figures a tolerance or a corner may move, to their unit (:data:`DB` or :data:`PERCENT`)."""
         ...
 
+    def spread_refusal(self, figure: str) -> str | None:
+        """Why ``figure``, one of :meth:`spread_figures`, cannot spread on this stage (e.g. a
+        figure the stage does not state, which a spread would leave unmoved), for the
+        loader's one-line error; ``None`` when it can."""
+        ...
+
     def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float) -> Stage:
         """The stage as the engine sees it with every sample's figures moved.
 
@@ -313,6 +319,10 @@ class StageDefaults:
     def spread_figures(self) -> dict[str, str]:
         """Nothing spreads."""
         return {}
+
+    def spread_refusal(self, figure: str) -> str | None:
+        """Every figure of :meth:`spread_figures` can spread (``figure``: the name asked for)."""
+        return None
 
     def sampled(self, deltas: dict[str, np.ndarray], n: int, r_ohm: float):
         """The stage itself: with nothing that spreads, every sample is the nominal.
