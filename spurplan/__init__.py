@@ -46,6 +46,8 @@ _LAZY = {
     "Lineup": "model.lineup",
     "Carrier": "model.lineup",
     "Analysis": "model.lineup",
+    "Mode": "model.modes",
+    "load_modes": "io.modes",
     "Result": "engine.result",
     "check": "analyses.check",
     "CheckResult": "analyses.check",
@@ -80,13 +82,16 @@ __all__ = [
 ]
 
 
-def load(path):
-    """Read and validate a lineup file.
+def load(path, mode=None):
+    """Read and validate a lineup file (one of its modes, for a file with ``[[mode]]`` tables).
 
     Parameters
     ----------
     path : str or path-like
         The lineup TOML file.
+    mode : str, optional
+        The mode to build, by name; needed only when the file has several modes
+        (:func:`spurplan.io.modes.load_modes` builds them all).
 
     Returns
     -------
@@ -98,9 +103,9 @@ def load(path):
     LineupError, UnitError
         One line naming the file, stage, field, value and what was expected.
     """
-    from spurplan.io.lineup_file import load as _load
+    from spurplan.io.modes import load_mode
 
-    return _load(path)
+    return load_mode(path, mode)
 
 
 def __getattr__(name: str):

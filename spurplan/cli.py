@@ -8,7 +8,7 @@ numpy and the rest load when a command runs.
 from __future__ import annotations
 
 import sys
-from typing import Any
+from typing import Any, NamedTuple
 
 import click
 
@@ -169,6 +169,95 @@ def _load(path):
     return load(path if path is not None else example_path())
 
 
+def _mode_option(f):
+    return click.option(
+        "--mode",
+        "mode",
+        multiple=True,
+        metavar="NAME",
+        help='Run this mode of LINEUP (a [[mode]] name; repeatable); "all", the default, runs every mode.',
+    )(f)
+
+
+def _load_modes(path, mode):
+    """The selected modes of the lineup file (or of the bundled example)."""
+    from spurplan.io.modes import load_modes
+    from spurplan.io.resources import example_path
+
+    return load_modes(path if path is not None else example_path(), mode or None)
+
+
+class _Shown(NamedTuple):
+    """One mode's output: what the single-mode command prints, and its verdict."""
+
+    doc: Any  # the Document printed for --format json|csv
+    text: str  # the --format table text
+    code: int = 0  # its exit status
+    status: str | None = None  # PASS / UNCERTAIN / INCOMPLETE / FAIL, None without a verdict
+    line: str = ""  # its verdict in one line, for the list under the line over all modes
+
+
+def _over_modes(modes, fmt: str, run, title: str | None = None, overall=None) -> int:
+    """Run ``run(mode, index)`` for every mode and print; returns the exit status.
+
+    One mode prints exactly as the command always has.  Several print each mode under a
+    heading with its name, then (for a command with a verdict, ``title``) the line over
+    all modes: the worst mode's status, FAIL if any fails; the exit status is the worst
+    mode's.  ``overall(shown)`` may give that line instead (the yield's).
+    """
+    from spurplan.model.modes import worst_status
+    from spurplan.output.modes import mode_heading, mode_marker, modes_document
+    from spurplan.output.verdicts import mode_line, modes_verdict
+
+    n = len(modes)
+    shown = []
+    for i, m in enumerate(modes, start=1):
+        if n > 1:
+            click.echo(mode_marker(m.label, i, n), err=True)
+        shown.append(run(m, i))
+    if n == 1:
+        if not _machine_output(fmt, shown[0].doc):
+            click.echo(shown[0].text, nl=False)
+        return shown[0].code
+    status = None
+    if overall is not None:
+        verdict = overall(shown)
+    elif title is not None:
+        entries = [(m.label, s.status) for m, s in zip(modes, shown, strict=True)]
+        verdict = modes_verdict(title, entries)
+        status = worst_status(s for _, s in entries)
+    else:
+        verdict = ""
+    lines = [s.line for s in shown]
+    doc = modes_document(modes, [s.doc for s in shown], status, verdict, lines)
+    if not _machine_output(fmt, doc):
+        for i, (m, s) in enumerate(zip(modes, shown, strict=True), start=1):
+            click.echo(mode_heading(m.label, i, n) + s.text, nl=False)
+        if verdict:
+            click.echo(verdict)
+            _echo_lines(mode_line(m.label, s.line) for m, s in zip(modes, shown, strict=True) if s.line)
+            click.echo(PLANNING_NOTICE)
+    return max(s.code for s in shown)
+
+
+def _mode_files(path, modes, option: str = "--plot"):
+    """The file each mode's figure goes to (``None`` for none), each refused before any work."""
+    if not path:
+        return [None] * len(modes)
+    from spurplan.output.files import OutputError, check_target
+    from spurplan.output.modes import mode_path
+
+    out = []
+    for i, m in enumerate(modes, start=1):
+        target = mode_path(path, i, m.name, len(modes))
+        try:
+            check_target(target)
+        except OutputError as exc:
+            raise click.BadParameter(str(exc), param_hint=option) from None
+        out.append(str(target))
+    return out
+
+
 def _warn_model(lineup) -> None:
     """The lineup's model notes and warnings on stderr (:func:`spurplan.output.terminal.model_warnings`)."""
     from spurplan.output.terminal import model_warnings
@@ -185,53 +274,58 @@ def _warn(result) -> None:
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--stage", default=None, help="Report at this stage's output instead of the lineup output.")
 @_format_option
 @_combine_option
-def spectrum(lineup, stage, fmt, combine):
+def spectrum(lineup, mode, stage, fmt, combine):
     """Print every product (harmonics, intermodulation) at a node of LINEUP."""
     from spurplan.engine.spectra import is_modulated
     from spurplan.output.documents import products_document
     from spurplan.output.terminal import products_text
 
-    loaded = _load(lineup)
-    if stage is not None:
-        loaded.stage_index(stage)
-    if is_modulated(loaded):
-        from spurplan.analyses.spectrum_view import node_spectrum
-        from spurplan.output.documents import spectrum_document
-        from spurplan.output.terminal import spectrum_text
+    def run(m, _):
+        loaded = m.lineup
+        if stage is not None:
+            loaded.stage_index(stage)
+        if is_modulated(loaded):
+            from spurplan.analyses.spectrum_view import node_spectrum
+            from spurplan.output.documents import spectrum_document
+            from spurplan.output.terminal import spectrum_text
 
-        spec, cw = node_spectrum(loaded, stage, combine)
-        doc = spectrum_document(spec, loaded, cw, stage, combine)
-        _warn(cw)
-        if not _machine_output(fmt, doc):
-            click.echo(spectrum_text(doc), nl=False)
-        return
-    result = loaded.run()
-    doc = products_document(result, stage, combine)
-    _warn(result)
-    if not _machine_output(fmt, doc):
-        click.echo(products_text(result, doc.rows, stage, combine), nl=False)
+            spec, cw = node_spectrum(loaded, stage, combine)
+            doc = spectrum_document(spec, loaded, cw, stage, combine)
+            _warn(cw)
+            return _Shown(doc, spectrum_text(doc))
+        result = loaded.run()
+        doc = products_document(result, stage, combine)
+        _warn(result)
+        return _Shown(doc, products_text(result, doc.rows, stage, combine))
+
+    _over_modes(_load_modes(lineup, mode), fmt, run)
 
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @_format_option
-def budget(lineup, fmt):
+def budget(lineup, mode, fmt):
     """Print the cascade budget of LINEUP: levels, gains, cascaded IP3, P1dB headroom."""
     from spurplan.output.documents import budget_document
     from spurplan.output.terminal import budget_text
 
-    result = _load(lineup).run()
-    doc = budget_document(result)
-    _warn(result)
-    if not _machine_output(fmt, doc):
-        click.echo(budget_text(result, doc.rows), nl=False)
+    def run(m, _):
+        result = m.lineup.run()
+        doc = budget_document(result)
+        _warn(result)
+        return _Shown(doc, budget_text(result, doc.rows))
+
+    _over_modes(_load_modes(lineup, mode), fmt, run)
 
 
 @main.command("filter", epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--stage", default=None, help="The filter stage of LINEUP to show.")
 @click.option(
     "--family", type=click.Choice(["butterworth", "chebyshev"]), help="Prototype instead of a lineup stage."
@@ -252,6 +346,7 @@ def budget(lineup, fmt):
 @_combine_option
 def filter_cmd(
     lineup,
+    mode,
     stage,
     family,
     resp,
@@ -299,12 +394,27 @@ def filter_cmd(
 
             _parse("freq", carrier, "--carrier", CARRIER_FREQ)  # "0 Hz" would show nothing
         view = prototype_view({k: v for k, v in spec.items() if v is not None}, impedance, carrier)
-    else:
-        if stage is None:
-            raise click.UsageError(
-                "give --stage NAME (a filter stage of LINEUP) or a prototype (--family ...)"
-            )
-        view = stage_view(_load(lineup), stage, combine)
+        _show_filter(view, plot_file, ts_file, fmt)
+        return
+    if stage is None:
+        raise click.UsageError("give --stage NAME (a filter stage of LINEUP) or a prototype (--family ...)")
+    modes = _load_modes(lineup, mode)
+    plots, networks = _mode_files(plot_file, modes), _mode_files(ts_file, modes, "--touchstone")
+
+    def run(m, i):
+        view = stage_view(m.lineup, stage, combine)
+        _show_filter(view, plots[i - 1], networks[i - 1], None)
+        _echo_lines(note_lines(view.notes), err=True)
+        return _Shown(filter_document(view), filter_text(view) + PLANNING_NOTICE + "\n")
+
+    _over_modes(modes, fmt, run)
+
+
+def _show_filter(view, plot_file, ts_file, fmt) -> None:
+    """A filter's figure and network files; its text or document when ``fmt`` is given."""
+    from spurplan.output.documents import filter_document
+    from spurplan.output.terminal import filter_text, note_lines
+
     if plot_file:
         from spurplan.output.plots import save_filter_plot
 
@@ -313,6 +423,8 @@ def filter_cmd(
         from spurplan.output.files import save_touchstone
 
         save_touchstone(view, ts_file)
+    if fmt is None:
+        return
     if fmt != "table":
         _machine_output(fmt, filter_document(view))
         return
@@ -335,6 +447,7 @@ def _size(text: str) -> tuple[int, int]:
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @_format_option
 @_combine_option
 @_plot_option("Draw the spectrum against the mask (PNG/SVG/PDF).")
@@ -344,30 +457,38 @@ def _size(text: str) -> tuple[int, int]:
     is_flag=True,
     help="Exit 1 also when the model is incomplete (a stage lacks a figure) or misses a stated figure.",
 )
-def check(lineup, fmt, combine, plot_file, plot_size, strict):
+def check(lineup, mode, fmt, combine, plot_file, plot_size, strict):
     """Check every product at the output of LINEUP against its [mask].
 
     The verdict is PASS, FAIL, INCOMPLETE (the modelled products pass but a stage
     lacks a figure, so some products are not modelled) or UNCERTAIN (they pass but
     the model misses a stated figure, or its levels did not settle).  Exit status: 0 the mask is met, 1 it is
     violated (with --strict or [analysis] strict = true: also INCOMPLETE and
-    UNCERTAIN), 2 bad input.
+    UNCERTAIN), 2 bad input.  Over several modes the verdict is the worst mode's and
+    so is the exit status.
     """
     from spurplan.analyses.check import check as run_check
     from spurplan.output.documents import check_document
     from spurplan.output.terminal import check_text, note_lines
+    from spurplan.output.verdicts import check_verdict
 
     size = _size(plot_size)
-    outcome = run_check(_load(lineup), combine=combine)
-    _warn(outcome.result)
-    _echo_lines(note_lines(outcome.notes), err=True)
-    if plot_file:
-        from spurplan.output.plots import save_check_plot
+    modes = _load_modes(lineup, mode)
+    plots = _mode_files(plot_file, modes)
 
-        save_check_plot(outcome, plot_file, size)
-    if not _machine_output(fmt, check_document(outcome)):
-        click.echo(check_text(outcome), nl=False)
-    sys.exit(1 if outcome.strict_failure(True if strict else None) else 0)
+    def run(m, i):
+        outcome = run_check(m.lineup, combine=combine)
+        _warn(outcome.result)
+        _echo_lines(note_lines(outcome.notes), err=True)
+        if plots[i - 1]:
+            from spurplan.output.plots import save_check_plot
+
+            save_check_plot(outcome, plots[i - 1], size)
+        code = 1 if outcome.strict_failure(True if strict else None) else 0
+        line = check_verdict(outcome)
+        return _Shown(check_document(outcome), check_text(outcome), code, outcome.status, line)
+
+    sys.exit(_over_modes(modes, fmt, run, "VERDICT"))
 
 
 @main.command(epilog=EPILOG)
@@ -435,6 +556,7 @@ def _parse(kind, text, option, within=None):
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--start", required=True, help="First drive, e.g. '-20 dBm' (input of the strongest carrier).")
 @click.option("--stop", required=True, help="Last drive, e.g. '+10 dBm'.")
 @click.option("--step", required=True, help="Drive step, e.g. '0.5 dB'.")
@@ -445,42 +567,59 @@ def _parse(kind, text, option, within=None):
 @_plot_size_option
 @_scheduler_option
 @_workers_option
-def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plot_size, scheduler, workers):
-    """Sweep the drive of LINEUP: products against drive and the highest compliant drive."""
+def drive(
+    lineup, mode, start, stop, step, target_output, fmt, combine, plot_file, plot_size, scheduler, workers
+):
+    """Sweep the drive of LINEUP: products against drive and the highest compliant drive.
+
+    Over several modes each mode is swept, and the line over all modes says whether
+    each mode's own drive (its strongest carrier's input power) is within its
+    compliant range: FAIL if any is above it.
+    """
+    from spurplan.analyses.modes import drive_standing
     from spurplan.analyses.sweep import drive_sweep
     from spurplan.io.channels import sweep_points
     from spurplan.output.documents import drive_document
     from spurplan.output.terminal import drive_text
+    from spurplan.output.verdicts import drive_mode_line
 
     lo, hi = _parse("power", start, "--start"), _parse("power", stop, "--stop")
     dstep = _parse("db", step, "--step")
     size = _size(plot_size)
     scheduler = _cluster_choice(scheduler, workers)
-    lu = _load(lineup)
+    modes = _load_modes(lineup, mode)
+    plots = _mode_files(plot_file, modes)
     n = len(sweep_points(lo, hi, dstep, "drive", "dBm", "dB"))
-    with _progress(n, "drive sweep") as bar:
-        sw = drive_sweep(
-            lu,
-            lo,
-            hi,
-            dstep,
-            target_output=target_output,
-            combine=combine,
-            progress=None if bar is None else bar.update,
-            scheduler=scheduler,
-            workers=workers,
-        )
-    _warn_model(lu)
-    if plot_file:
-        from spurplan.output.plots import save_drive_plot
 
-        save_drive_plot(sw, plot_file, size)
-    if not _machine_output(fmt, drive_document(sw)):
-        click.echo(drive_text(sw), nl=False)
+    def run(m, i):
+        lu = m.lineup
+        with _progress(n, "drive sweep") as bar:
+            sw = drive_sweep(
+                lu,
+                lo,
+                hi,
+                dstep,
+                target_output=target_output,
+                combine=combine,
+                progress=None if bar is None else bar.update,
+                scheduler=scheduler,
+                workers=workers,
+            )
+        _warn_model(lu)
+        if plots[i - 1]:
+            from spurplan.output.plots import save_drive_plot
+
+            save_drive_plot(sw, plots[i - 1], size)
+        standing = drive_standing(sw)
+        return _Shown(drive_document(sw), drive_text(sw), 0, standing.status, drive_mode_line(standing))
+
+    # Exit 0 whatever the drive found, as for one mode: the sweep is an answer, not a check.
+    sys.exit(_over_modes(modes, fmt, run, "DRIVE"))
 
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--start", help="First carrier frequency, e.g. '460 MHz'.")
 @click.option("--stop", help="Last carrier frequency, e.g. '470 MHz'.")
 @click.option("--step", help="Channel step, e.g. '12.5 kHz'.")
@@ -503,6 +642,7 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
 @_workers_option
 def tune(
     lineup,
+    mode,
     start,
     stop,
     step,
@@ -516,45 +656,74 @@ def tune(
     workers,
 ):
     """Sweep the carrier (with a mixer, the first LO) over a tuning range: per product and rule
-    or protected band, where it fails or lands in a band and its worst channel."""
+    or protected band, where it fails or lands in a band and its worst channel.
+
+    Without --start/--stop/--step or --channels, each mode is swept over its own
+    [report] tune range.  Exit status: 0 every channel meets the mask (in every mode
+    run), 1 a channel fails, 2 bad input.
+    """
+    from spurplan.analyses.modes import tune_status
     from spurplan.analyses.sweep import tune_sweep
     from spurplan.io.channels import read_channels, sweep_points
     from spurplan.output.documents import tune_document
     from spurplan.output.terminal import tune_text
+    from spurplan.output.verdicts import tune_mode_line
 
     size = _size(plot_size)
+    freqs = None
     if channel_file:
         if start or stop or step:
             raise click.UsageError("give either --channels FILE or --start/--stop/--step")
         freqs = read_channels(channel_file)
-    else:
+    elif start or stop or step:
         if not (start and stop and step):
             raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
         lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
         freqs = sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
     scheduler = _cluster_choice(scheduler, workers)
-    lu = _load(lineup)
-    with _progress(len(freqs), "tuning sweep") as bar:
-        sw = tune_sweep(
-            lu,
-            freqs,
-            combine=combine,
-            progress=None if bar is None else bar.update,
-            scheduler=scheduler,
-            workers=workers,
+    modes = _load_modes(lineup, mode)
+    if freqs is None and not all(m.lineup.report is not None and m.lineup.report.tune for m in modes):
+        raise click.UsageError(
+            "give --start, --stop and --step (or --channels FILE), or a [report] tune range in every mode run"
         )
-    _warn_model(lu)
-    if plot_file:
-        from spurplan.output.plots import save_tune_plot
+    plots = _mode_files(plot_file, modes)
 
-        save_tune_plot(sw, plot_file, size)
-    if not _machine_output(fmt, tune_document(sw)):
-        click.echo(tune_text(sw, per_channel), nl=False)
-    sys.exit(0 if sw.passed else 1)
+    def run(m, i):
+        lu = m.lineup
+        channels = freqs
+        if channels is None:
+            assert lu.report is not None and lu.report.tune is not None  # refused above otherwise
+            t_start, t_stop, t_step = lu.report.tune
+            channels = sweep_points(t_start, t_stop, t_step, "channel", "Hz")
+        with _progress(len(channels), "tuning sweep") as bar:
+            sw = tune_sweep(
+                lu,
+                channels,
+                combine=combine,
+                progress=None if bar is None else bar.update,
+                scheduler=scheduler,
+                workers=workers,
+            )
+        _warn_model(lu)
+        if plots[i - 1]:
+            from spurplan.output.plots import save_tune_plot
+
+            save_tune_plot(sw, plots[i - 1], size)
+        status = tune_status(sw)
+        return _Shown(
+            tune_document(sw),
+            tune_text(sw, per_channel),
+            0 if sw.passed else 1,
+            status,
+            tune_mode_line(sw, status),
+        )
+
+    sys.exit(_over_modes(modes, fmt, run, "TUNING RANGE"))
 
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option(
     "--at",
     "at_stage",
@@ -586,7 +755,7 @@ def tune(
     help='Its stopband floor (leakage past the ladder), or "none" for the ideal ladder  [default: -80 dB, the same]',
 )
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
-def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor, fmt):
+def remedy(lineup, mode, at_stage, margin, write_file, q_inductor, q_capacitor, floor, fmt):
     """Find the lowest-order synthesized filter that makes LINEUP pass, and re-check with it.
 
     The filter has parts of finite Q and a stopband floor (--q-inductor,
@@ -601,6 +770,7 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     from spurplan.output.documents import remedy_document
     from spurplan.output.remedy_file import write_fixed
     from spurplan.output.terminal import remedy_text
+    from spurplan.output.verdicts import recheck_verdict
 
     target = _parse("db", margin, "--margin", MARGIN_TARGET)
     parts: dict[str, Any] = {}
@@ -624,21 +794,46 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
             parts["floor_db"] = parse_floor_db(floor.strip())
     except ValueError as exc:
         raise click.BadParameter(str(exc), param_hint="--floor") from None
-    lu = _load(lineup)
-    found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
-    # Written before anything is printed: a refusal is one error line and nothing else.
-    edited = write_fixed(lu, found, write_file) if write_file and found.found else None
-    _warn_model(lu)
-    if fmt == "json":
-        click.echo(remedy_document(found).json(), nl=False)
-    else:
-        click.echo(remedy_text(found, edited, write_file), nl=False)
-    # Exit 1 only when products fall short and no filter is enough.
-    sys.exit(1 if found.needed["freq_hz"] and not found.found else 0)
+    modes = _load_modes(lineup, mode)
+    if write_file and modes[0].name is not None:
+        # The edit re-reads the file as one lineup (spurplan.analyses.remedy.fixed_lineup).
+        raise click.UsageError(
+            "--write is not available for a lineup file with [[mode]] tables: paste the printed [[stage]] "
+            "table (into the stages, or a mode's stage override)"
+        )
+
+    def run(m, _):
+        lu = m.lineup
+        found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
+        # Written before anything is printed: a refusal is one error line and nothing else.
+        edited = write_fixed(lu, found, write_file) if write_file and found.found else None
+        _warn_model(lu)
+        # Exit 1 only when products fall short and no filter is enough.
+        short = bool(found.needed["freq_hz"]) and not found.found
+        ok = not found.needed["freq_hz"] or (found.outcome is not None and found.outcome.passed)
+        line = (
+            "no filter needed"
+            if not found.needed["freq_hz"]
+            else (recheck_verdict(found) if found.found else f"NO FILTER FOUND: {found.reason}")
+        )
+        return _Shown(
+            remedy_document(found),
+            remedy_text(found, edited, write_file),
+            int(short),
+            "PASS" if ok else "FAIL",
+            line,
+        )
+
+    sys.exit(
+        _over_modes(
+            modes, "json" if fmt == "json" else "table", run, "REMEDY (EACH MODE WITH ITS OWN FILTER)"
+        )
+    )
 
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option(
     "-o",
     "--output",
@@ -647,22 +842,28 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
     type=_OutputFile(),
     help="FILE.html (self-contained) or FILE.md (figures beside it).",
 )
-def report(lineup, out_file):
+def report(lineup, mode, out_file):
     """Write a design-review report of LINEUP: budget, check, figures, assumptions, cautions.
 
-    Sweeps are added where the lineup's [report] table asks for them.
+    Sweeps are added where the lineup's [report] table asks for them.  Over several
+    modes, one report with each mode's sections and the verdict over all of them.
     """
+    from spurplan.output.modes import mode_marker
     from spurplan.output.report import write_report
 
-    lu = _load(lineup)
-    path = write_report(lu, out_file)
-    _warn(lu.run())
+    modes = _load_modes(lineup, mode)
+    path = write_report(modes[0].lineup if len(modes) == 1 else modes, out_file)
+    for i, m in enumerate(modes, start=1):
+        if len(modes) > 1:
+            click.echo(mode_marker(m.label, i, len(modes)), err=True)
+        _warn(m.lineup.run())
     click.echo(f"wrote {path}")
     click.echo(PLANNING_NOTICE)
 
 
 @main.command(epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--stage", required=True, help="The mixer stage.")
 @click.option(
     "--max-order", default=7, show_default=True, type=click.IntRange(1, 15), help="Highest m + |n| shown."
@@ -673,39 +874,44 @@ def report(lineup, out_file):
 @click.option("--lo-start", help="LO range for the plot, e.g. '1.1 GHz' (default: LO -20 %).")
 @click.option("--lo-stop", help="LO range for the plot (default: LO +20 %).")
 @_plot_size_option
-def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
+def spurs(lineup, mode, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop, plot_size):
     """Print the m x n spur chart of a mixer stage, marking products in the next filter's passband."""
     from spurplan.analyses.spur_chart import LO_SPAN, spur_chart
     from spurplan.output.documents import spur_document
     from spurplan.output.terminal import spurs_text
 
     size = _size(plot_size)
-    lu = _load(lineup)
-    chart = spur_chart(lu, stage, max_order)
-    rows = chart.rows if show_all else chart.rows_with_levels
-    if plot_file:
-        from spurplan.model.stages.mixer import LO_FREQ
-        from spurplan.output.plots import save_spur_plot
-        from spurplan.units import format_freq
+    modes = _load_modes(lineup, mode)
+    plots = _mode_files(plot_file, modes)
 
-        lo = chart.mixer.lo_freq_hz
-        span = (
-            _parse("freq", lo_start, "--lo-start", LO_FREQ) if lo_start else LO_SPAN[0] * lo,
-            _parse("freq", lo_stop, "--lo-stop", LO_FREQ) if lo_stop else LO_SPAN[1] * lo,
-        )
-        if not span[0] < span[1]:
-            raise click.BadParameter(
-                f"LO range {format_freq(span[0])} to {format_freq(span[1])}: expected --lo-start below "
-                f"--lo-stop (defaults: the LO {format_freq(lo)} -20 % and +20 %)",
-                param_hint="--lo-start/--lo-stop",
+    def run(m, i):
+        chart = spur_chart(m.lineup, stage, max_order)
+        rows = chart.rows if show_all else chart.rows_with_levels
+        if plots[i - 1]:
+            from spurplan.model.stages.mixer import LO_FREQ
+            from spurplan.output.plots import save_spur_plot
+            from spurplan.units import format_freq
+
+            lo = chart.mixer.lo_freq_hz
+            span = (
+                _parse("freq", lo_start, "--lo-start", LO_FREQ) if lo_start else LO_SPAN[0] * lo,
+                _parse("freq", lo_stop, "--lo-stop", LO_FREQ) if lo_stop else LO_SPAN[1] * lo,
             )
-        save_spur_plot(chart, span, plot_file, size)
-    if not _machine_output(fmt, spur_document(chart, rows)):
-        click.echo(spurs_text(chart, rows), nl=False)
+            if not span[0] < span[1]:
+                raise click.BadParameter(
+                    f"LO range {format_freq(span[0])} to {format_freq(span[1])}: expected --lo-start below "
+                    f"--lo-stop (defaults: the LO {format_freq(lo)} -20 % and +20 %)",
+                    param_hint="--lo-start/--lo-stop",
+                )
+            save_spur_plot(chart, span, plots[i - 1], size)
+        return _Shown(spur_document(chart, rows), spurs_text(chart, rows))
+
+    _over_modes(modes, fmt, run)
 
 
 @main.command("yield", epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--samples", type=click.IntRange(1, 10_000_000), default=10_000, show_default=True)
 @click.option(
     "--seed",
@@ -724,35 +930,48 @@ def spurs(lineup, stage, max_order, show_all, fmt, plot_file, lo_start, lo_stop,
 @_workers_option
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
 @click.option("--plot", "plot_file", type=_OutputFile(), help="Draw the histogram of worst margins.")
-def yield_cmd(lineup, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
-    """Monte Carlo yield of LINEUP over its part tolerances and corners."""
+def yield_cmd(lineup, mode, samples, seed, channel_file, scheduler, workers, fmt, plot_file):
+    """Monte Carlo yield of LINEUP over its part tolerances and corners.
+
+    Over several modes each mode's yield is computed with the same seed; the line over
+    all modes gives the lowest, an upper bound of the yield over all of them.
+    """
     from spurplan.analyses.montecarlo import run_yield
     from spurplan.io.channels import read_channels
     from spurplan.output.documents import yield_document
     from spurplan.output.terminal import yield_text
+    from spurplan.output.verdicts import yield_modes_verdict, yield_verdict
 
     scheduler = _cluster_choice(scheduler, workers)
-    lu = _load(lineup)
+    modes = _load_modes(lineup, mode)
+    plots = _mode_files(plot_file, modes)
     channels = read_channels(channel_file) if channel_file else None
-    with _progress(samples, "yield") as bar:
-        res = run_yield(
-            lu,
-            samples,
-            seed=seed,
-            channels_hz=channels,
-            scheduler=scheduler,
-            workers=workers,
-            progress=None if bar is None else bar.update,
-        )
-    _warn_model(lu)
-    if plot_file:
-        from spurplan.output.plots import save_yield_plot
+    results = []
 
-        save_yield_plot(res, plot_file)
-    if fmt == "json":
-        click.echo(yield_document(res).json(), nl=False)
-    else:
-        click.echo(yield_text(res), nl=False)
+    def run(m, i):
+        lu = m.lineup
+        with _progress(samples, "yield") as bar:
+            res = run_yield(
+                lu,
+                samples,
+                seed=seed,
+                channels_hz=channels,
+                scheduler=scheduler,
+                workers=workers,
+                progress=None if bar is None else bar.update,
+            )
+        _warn_model(lu)
+        if plots[i - 1]:
+            from spurplan.output.plots import save_yield_plot
+
+            save_yield_plot(res, plots[i - 1])
+        results.append(res)
+        return _Shown(yield_document(res), yield_text(res), line=yield_verdict(res))
+
+    def overall(_):
+        return yield_modes_verdict([m.label for m in modes], results)
+
+    _over_modes(modes, "json" if fmt == "json" else "table", run, overall=overall)
 
 
 if __name__ == "__main__":  # pragma: no cover

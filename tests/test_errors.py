@@ -137,20 +137,21 @@ def test_cli_maps_each_error_to_one_line_and_exit_2(name, monkeypatch, tmp_path)
     # 2 (README, "Bad input gives one line ..."); the loader is replaced by one that raises.
     exc, _ = CASES[name]
 
-    def raising(path):
+    def raising(path, mode=None):
         raise exc
 
-    monkeypatch.setattr("spurplan.io.lineup_file.load", raising)
+    # The command line loads every file through its modes (spurplan.io.modes).
+    monkeypatch.setattr("spurplan.io.modes.load_modes", raising)
     code, out, err, detail, _ = run_in_process(["check", str(tmp_path / "any.toml")])
     line = assert_one_error_line(code, out, err, detail=detail)
     assert line == "spurplan: error: " + " ".join(str(exc).split())
 
 
 def test_cli_error_with_a_line_break_stays_one_line(monkeypatch, tmp_path):
-    def raising(path):
+    def raising(path, mode=None):
         raise errors.SweepError("first\nsecond")
 
-    monkeypatch.setattr("spurplan.io.lineup_file.load", raising)
+    monkeypatch.setattr("spurplan.io.modes.load_modes", raising)
     code, out, err, detail, _ = run_in_process(["check", str(tmp_path / "any.toml")])
     assert assert_one_error_line(code, out, err, detail=detail) == "spurplan: error: first second"
 

@@ -16,6 +16,8 @@ File layout (key names are the interface: extend, don't rename)::
                   (see spurplan.io.mask_files)
     [report]      drive = {start, stop, step}, tune = {start, stop, step}
     [[corner]]    name, shift = {"stage.figure" = "..."}   (and per stage: tolerance = {...})
+    [[mode]]      operating modes, each the rest of the file with overrides: read by
+                  spurplan.io.modes, which loads every mode's document here
 """
 
 from __future__ import annotations
@@ -124,6 +126,14 @@ def from_dict(
     LineupError
         On any problem, with a one-line message naming file, stage and field.
     """
+    if isinstance(doc, dict) and "mode" in doc:
+        # Each mode is a lineup of its own: spurplan.io.modes merges and loads them.
+        raise LineupError(
+            "the file has [[mode]] tables: expected one mode's document (read the modes with "
+            "spurplan.io.modes.load_modes)",
+            file=name,
+            field="mode",
+        )
     top = Fields(doc, name, "")
     for key in TOP_LEVEL_KEYS:
         top.raw(key)

@@ -156,6 +156,13 @@ class Lineup:
         How models were fitted, for the terminal and reports.
     mask : spurplan.model.masks.Mask or None
         The emission limits the lineup is checked against.
+    report : ReportSpec or None
+        The sweeps the design-review report adds.
+    tolerances : spurplan.model.tolerances.Tolerances or None
+        Part tolerances and corners, for the yield.
+    mode : str or None
+        The operating mode this lineup is (``[[mode]] name``, :mod:`spurplan.model.modes`);
+        ``None`` for a file without modes.
     """
 
     name: str
@@ -168,6 +175,7 @@ class Lineup:
     mask: Mask | None = None
     report: ReportSpec | None = None
     tolerances: Tolerances | None = None
+    mode: str | None = None
 
     @property
     def mixers(self) -> list:

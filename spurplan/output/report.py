@@ -119,6 +119,7 @@ class Report:
     verdict: str
     provenance: dict
     sections: list
+    status: str = ""  # the check's status (PASS, UNCERTAIN, INCOMPLETE, FAIL)
 
     def to_html(self, made_at: str) -> str:
         body = [
@@ -272,7 +273,54 @@ def build_report(lineup) -> Report:
     sections.append(_assumptions_section(lineup))
     sections.append(_cautions_section(outcome))
     return Report(
-        title=f"{lineup.name}: spurious-emission review", verdict=verdict, provenance=prov, sections=sections
+        title=f"{lineup.name}: spurious-emission review",
+        verdict=verdict,
+        provenance=prov,
+        sections=sections,
+        status=outcome.status,
+    )
+
+
+def build_modes_report(modes) -> Report:
+    """One report over several operating modes: each mode's sections under its name.
+
+    The verdict is the one over all modes (the worst mode's status,
+    :func:`spurplan.output.verdicts.modes_verdict`), each mode's own verdict the first
+    section; then every mode's report (:func:`build_report`) with its section titles
+    led by the mode's name, and what the mode overrides in the base file.
+
+    Parameters
+    ----------
+    modes : sequence of Mode
+        The modes, in file order, each with a mask.
+
+    Returns
+    -------
+    Report
+    """
+    from spurplan.model.modes import worst_status
+    from spurplan.output.verdicts import modes_verdict
+
+    reports = [build_report(m.lineup) for m in modes]
+    verdict = modes_verdict("VERDICT", [(m.label, r.status) for m, r in zip(modes, reports, strict=True)])
+    summary = Section("Verdict in each mode")
+    for m, r in zip(modes, reports, strict=True):
+        summary.parts.append(("text", f"{m.label}: {r.verdict}"))
+    sections = [summary]
+    for m, r in zip(modes, reports, strict=True):
+        changes = ", ".join(m.overrides) if m.overrides else "nothing (the base file as it stands)"
+        first = Section(
+            f"{m.label}: what the mode changes", [("text", f"Overrides of the base file: {changes}.")]
+        )
+        sections.append(first)
+        sections += [Section(f"{m.label}: {sec.title}", sec.parts) for sec in r.sections]
+    head = reports[0]
+    return Report(
+        title=head.title,
+        verdict=verdict,
+        provenance={**head.provenance, "mode": ", ".join(str(m.name) for m in modes)},
+        sections=sections,
+        status=worst_status(r.status for r in reports),
     )
 
 
@@ -637,8 +685,9 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
 
     Parameters
     ----------
-    lineup : Lineup
-        The lineup to report on (with a mask for the compliance sections).
+    lineup : Lineup or sequence of Mode
+        The lineup to report on (with a mask for the compliance sections), or several
+        modes of one file (:func:`build_modes_report`).
     path : str or Path
         The report file; its suffix (``.html``, ``.htm`` or ``.md``) chooses the format.
     now : datetime, optional
@@ -670,7 +719,7 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
     if suffix == ".md":
         check_folder(path.parent / folder, MARKDOWN_FIGURE)
     made_at = (now or datetime.now(UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
-    report = build_report(lineup)
+    report = build_report(lineup) if hasattr(lineup, "stages") else build_modes_report(lineup)
     if suffix in (".html", ".htm"):
         return write_atomic(path, report.to_html(made_at))
     text, figures = report.to_markdown(made_at, folder)

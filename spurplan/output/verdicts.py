@@ -340,3 +340,133 @@ def passband_verdict(chart: SpurChart) -> str:
     """
     hits = chart.in_passband
     return "IN THE PASSBAND: " + (", ".join(hits) if hits else "no product besides the wanted one")
+
+
+# --- several operating modes (spurplan.model.modes) ----------------------------------------------
+
+_STATUS_WORDS = {"FAIL": "fail", "INCOMPLETE": "are incomplete", "UNCERTAIN": "are uncertain"}
+
+
+def modes_verdict(title: str, entries) -> str:
+    """The terminal's line over every mode run: the worst mode's status, and which modes hold it.
+
+    Parameters
+    ----------
+    title : str
+        What is judged, in capitals: ``"VERDICT"``, ``"TUNING RANGE"``, ``"DRIVE"``,
+        ``"REMEDY"``.
+    entries : sequence of (str, str)
+        Each mode's label (:attr:`spurplan.model.modes.Mode.label`) and status (PASS,
+        UNCERTAIN, INCOMPLETE, FAIL), in file order.
+
+    Returns
+    -------
+    str
+        ``"VERDICT OVER ALL 2 MODES: FAIL (1 of 2 modes fail: mode 'UHF band')"``; one line.
+    """
+    from spurplan.model.modes import worst_status
+
+    n = len(entries)
+    status = worst_status(s for _, s in entries)
+    head = f"{title} OVER ALL {n} MODES: {status}"
+    if status == "PASS":
+        return f"{head} (every mode passes)"
+    which = [label for label, s in entries if s == status]
+    lead = "" if status == "FAIL" else "no mode fails; "
+    return f"{head} ({lead}{len(which)} of {n} modes {_STATUS_WORDS[status]}: {', '.join(which)})"
+
+
+def mode_line(label: str, line: str) -> str:
+    """One mode's verdict under the line over all modes: ``"  mode 'UHF band': VERDICT: FAIL ..."``.
+
+    Parameters
+    ----------
+    label : str
+        The mode's label (:attr:`spurplan.model.modes.Mode.label`).
+    line : str
+        Its own verdict in one line.
+
+    Returns
+    -------
+    str
+    """
+    return f"  {label}: {line}"
+
+
+def tune_mode_line(sweep: TuneSweep, status: str) -> str:
+    """A tuning sweep's verdict in one line (for the list under the line over all modes).
+
+    Parameters
+    ----------
+    sweep : TuneSweep
+        What :func:`spurplan.analyses.sweep.tune_sweep` found.
+    status : str
+        Its standing (:func:`spurplan.analyses.modes.tune_status`).
+
+    Returns
+    -------
+    str
+        The failing ranges counted with the worst margin (dB), or :func:`tune_verdict`'s
+        line.
+    """
+    if not sweep.failing:
+        return f"{status}: " + tune_verdict(sweep)[0]
+    worst = min(r["worst_margin_db"] for r in sweep.failing)
+    n = len(sweep.failing)
+    return (
+        f"FAIL: {n} failing channel range{'s' * (n > 1)} (product and rule), worst margin {worst:+.2f} dB"
+        f"; first from {sweep.failing[0]['start_hz'] / 1e6:.6f} to {sweep.failing[0]['stop_hz'] / 1e6:.6f} MHz"
+    )
+
+
+def drive_mode_line(standing) -> str:
+    """A mode's own drive against its compliant range, in one line.
+
+    Parameters
+    ----------
+    standing : spurplan.analyses.modes.DriveStanding
+        What :func:`spurplan.analyses.modes.drive_standing` found (dBm, dB).
+
+    Returns
+    -------
+    str
+        The status, the mode's drive (its strongest carrier's input power) and how far it
+        is from the highest compliant drive.
+    """
+    s = standing
+    drive = f"its drive {s.drive_dbm:+.2f} dBm in"
+    if s.reason == "no compliant drive":
+        return f"FAIL: {drive}; no compliant drive from the bottom of the sweep"
+    if s.reason == "above":
+        return f"FAIL: {drive} is {-s.headroom_db:.2f} dB above its highest compliant drive {s.limit_dbm:+.2f} dBm"
+    if s.reason == "outside the sweep":
+        return f"{s.status}: {drive} lies outside the sweep (not computed there)"
+    within = f"{drive} is {s.headroom_db:.2f} dB below its highest compliant drive {s.limit_dbm:+.2f} dBm"
+    if s.reason == "model":
+        return f"{s.status}: {within}, by a model that lacks or misses a figure, or did not settle"
+    return f"PASS: {within}"
+
+
+def yield_modes_verdict(labels, results) -> str:
+    """The terminal's line over every mode's yield: the lowest, an upper bound of the design's.
+
+    Parameters
+    ----------
+    labels : sequence of str
+        Each mode's label, in the order of ``results``.
+    results : sequence of YieldResult
+        One per mode.
+
+    Returns
+    -------
+    str
+        ``"YIELD OVER ALL 2 MODES: at most 93.100 % ..."``; one line, in per cent.
+    """
+    from spurplan.analyses.modes import lowest_yield
+
+    k = lowest_yield(results)
+    return (
+        f"YIELD OVER ALL {len(results)} MODES: at most {100 * results[k].yield_fraction:.3f} % "
+        f"({labels[k]}, the lowest: a unit must pass in every mode, and each mode's samples are "
+        "other units, so the yield over all modes is not computed)"
+    )
