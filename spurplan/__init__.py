@@ -63,6 +63,8 @@ _LAZY = {
     "cascade_iip3_dbm": "analyses.budget",
     "spur_chart": "analyses.spur_chart",
     "SpurChart": "analyses.spur_chart",
+    "plan_if": "analyses.frequency_plan",
+    "IfPlan": "analyses.frequency_plan",
     "build_report": "output.report",
     "write_report": "output.report",
 }

@@ -76,6 +76,7 @@ class _Group(click.Group):
 _OPTION_ALIASES = {
     "remedy": {"path": "write_file", "margin_db": "margin", "at": "at_stage"},
     "report": {"path": "out_file"},
+    "if-windows": {"start": "rf_start", "stop": "rf_stop", "step": "rf_step"},
 }
 
 
@@ -907,6 +908,77 @@ def spurs(lineup, mode, stage, max_order, show_all, fmt, plot_file, lo_start, lo
         return _Shown(spur_document(chart, rows), spurs_text(chart, rows))
 
     _over_modes(modes, fmt, run)
+
+
+@main.command("if-windows", epilog=EPILOG)
+@_lineup_arg
+@click.option("--if-start", required=True, help="Lowest IF candidate, e.g. '50 MHz'.")
+@click.option("--if-stop", required=True, help="Highest IF candidate, e.g. '100 MHz'.")
+@click.option("--if-step", required=True, help="Step between IF candidates, e.g. '250 kHz'.")
+@click.option(
+    "--order", default=7, show_default=True, type=click.IntRange(1, 15), help="Highest m + |n| judged."
+)
+@click.option("--rf-start", help="First output channel (default: [report] tune, else the lineup's channel).")
+@click.option("--rf-stop", help="Last output channel.")
+@click.option("--rf-step", help="Output channel step.")
+@click.option("--guard", default="0 Hz", show_default=True, help="Widen every band by this on each side.")
+@click.option("--passband-only", is_flag=True, help="Judge the output passband only, not protected bands.")
+@click.option("--rank", type=click.Choice(("width", "clearance")), default="width", show_default=True)
+@click.option("--windows", "max_windows", type=click.IntRange(1, 10_000), default=20, show_default=True)
+@_format_option
+def if_windows(
+    lineup,
+    if_start,
+    if_stop,
+    if_step,
+    order,
+    rf_start,
+    rf_stop,
+    rf_step,
+    guard,
+    passband_only,
+    rank,
+    max_windows,
+    fmt,
+):
+    """Search IF choices of a converter: the IF windows whose mixer products stay out of the
+    output passband and the protected bands on every channel."""
+    from spurplan.analyses.frequency_plan import plan_if
+    from spurplan.io.channels import sweep_points
+    from spurplan.output.documents import if_plan_document
+    from spurplan.output.terminal import if_windows_text
+
+    lo, hi = _parse("freq", if_start, "--if-start"), _parse("freq", if_stop, "--if-stop")
+    step = _parse("freq", if_step, "--if-step")
+    guard_hz = _parse("freq", guard, "--guard")
+    channels = None
+    if rf_start or rf_stop or rf_step:
+        if not (rf_start and rf_stop and rf_step):
+            raise click.UsageError("give --rf-start, --rf-stop and --rf-step together")
+        channels = sweep_points(
+            _parse("freq", rf_start, "--rf-start"),
+            _parse("freq", rf_stop, "--rf-stop"),
+            _parse("freq", rf_step, "--rf-step"),
+            "output channel",
+            "Hz",
+        )
+    lu = _load(lineup)
+    plan = plan_if(
+        lu,
+        lo,
+        hi,
+        step,
+        order=order,
+        channels_hz=channels,
+        guard_hz=guard_hz,
+        protected_bands=not passband_only,
+        rank=rank,
+        max_windows=max_windows,
+    )
+    _warn_model(lu)
+    if not _machine_output(fmt, if_plan_document(plan)):
+        click.echo(if_windows_text(plan), nl=False)
+    sys.exit(0 if plan.found else 1)
 
 
 @main.command("yield", epilog=EPILOG)

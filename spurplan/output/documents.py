@@ -31,11 +31,12 @@ from spurplan.output.tables import (
     tune_summary_table,
     tune_table,
 )
-from spurplan.output.verdicts import drive_verdict, model_caveat
+from spurplan.output.verdicts import drive_verdict, if_plan_verdict, model_caveat
 
 if TYPE_CHECKING:  # annotations only
     from spurplan.analyses.check import CheckResult
     from spurplan.analyses.filter_view import FilterView
+    from spurplan.analyses.frequency_plan import IfPlan
     from spurplan.analyses.montecarlo import YieldResult
     from spurplan.analyses.remedy import Remedy
     from spurplan.analyses.spur_chart import SpurChart
@@ -426,6 +427,59 @@ def spur_document(chart: SpurChart, rows: dict | None = None) -> Document:
         **provenance(chart.lineup),
     }
     return Document(summary, "products", chart.rows if rows is None else rows)
+
+
+def if_plan_document(plan: IfPlan) -> Document:
+    """An IF plan: candidates, channels, forbidden bands, verdict and provenance; windows under ``"windows"``.
+
+    Parameters
+    ----------
+    plan : IfPlan
+        What :func:`spurplan.analyses.frequency_plan.plan_if` found.
+
+    Returns
+    -------
+    Document
+        Rows (Hz) best first under ``"windows"``.
+    """
+    ch, f = plan.channels_hz, plan.if_hz
+    summary = {
+        "lineup": plan.lineup.name,
+        "mixer": plan.mixer,
+        "injection": plan.injection,
+        "lo_rule": plan.lo_rule,
+        "order": plan.order,
+        "rank": plan.rank,
+        "guard_hz": plan.guard_hz,
+        "if_candidates": {
+            "start_hz": float(f[0]),
+            "stop_hz": float(f[-1]),
+            "step_hz": plan.if_step_hz,
+            "count": len(f),
+            "spur_free": int(plan.spur_free.sum()),
+        },
+        "channels": {
+            "first_hz": float(ch[0]),
+            "last_hz": float(ch[-1]),
+            "count": len(ch),
+            "source": plan.channel_source,
+        },
+        "passband": {
+            "start_hz": plan.passband_hz[0],
+            "stop_hz": plan.passband_hz[1],
+            "source": plan.passband_source,
+        },
+        "protected_bands_judged": plan.protected_bands,
+        "bands": [{"name": n, "start_hz": lo, "stop_hz": hi} for n, lo, hi in plan.bands],
+        "window_count": plan.window_count,
+        "found": plan.found,
+        "lineup_if_hz": plan.lineup_if_hz,
+        "lineup_if_rank": plan.lineup_if_rank,
+        "verdict": if_plan_verdict(plan),
+        "notes": list(plan.notes),
+        **provenance(plan.lineup),
+    }
+    return Document(summary, "windows", plan.rows)
 
 
 def filter_document(view: FilterView) -> Document:

@@ -180,6 +180,67 @@ def spur_display(rows: dict) -> dict:
     return shown
 
 
+IF_WINDOW_TABLE = [
+    ("rank", "#", "d"),
+    ("start_mhz", "IF from (MHz)", ".6f"),
+    ("stop_mhz", "IF to (MHz)", ".6f"),
+    ("width_mhz", "width (MHz)", ".6f"),
+    ("best_if_mhz", "best IF (MHz)", ".6f"),
+    ("clearance_mhz", "clearance (MHz)", ".6f"),
+    ("closest", "closest product (MHz)", None),
+    ("closest_near", "nearest band", None),
+    ("ends", "window ends by", None),
+]
+
+
+# Band names longer than this are cut in the windows table (JSON and CSV keep them whole).
+BAND_NAME_CHARS = 40
+
+
+def _short(name: str) -> str:
+    return name if len(name) <= BAND_NAME_CHARS else name[: BAND_NAME_CHARS - 3] + "..."
+
+
+def if_window_display(rows: dict) -> dict:
+    """Display columns of an IF plan's windows (:attr:`spurplan.analyses.frequency_plan.IfPlan.rows`).
+
+    Parameters
+    ----------
+    rows : dict of str -> list
+        One row per window (Hz).
+
+    Returns
+    -------
+    dict of str -> list
+        ``rows`` with MHz columns, the closest product with its frequency, the side of
+        the band it is on, and what ends the window below and above.
+    """
+    shown = dict(rows)
+    for key in ("start", "stop", "width", "best_if", "clearance"):
+        shown[f"{key}_mhz"] = mhz(rows[f"{key}_hz"])
+    shown["closest"] = [
+        f"{lab} at {f / 1e6:.6f}"
+        for lab, f in zip(rows["closest_label"], rows["closest_freq_hz"], strict=True)
+    ]
+    shown["closest_near"] = [
+        f"{side} {_short(band)}"
+        for side, band in zip(rows["closest_side"], rows["closest_band"], strict=True)
+    ]
+
+    def end(label, side):
+        if label is None:
+            return "end of range"
+        return f"{label} (crosses)" if side == "crosses" else label
+
+    shown["ends"] = [
+        f"{end(lb, sb)} / {end(la, sa)}"
+        for lb, sb, la, sa in zip(
+            rows["below_label"], rows["below_side"], rows["above_label"], rows["above_side"], strict=True
+        )
+    ]
+    return shown
+
+
 def verdict_words(passes: list) -> list[str]:
     """ "FAIL" / "pass" / "-" for True/False/None: failing rows are marked in text."""
     return ["FAIL" if p is False else ("pass" if p else "-") for p in passes]

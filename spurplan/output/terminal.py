@@ -22,6 +22,7 @@ from spurplan.output.tables import (
     CORNER_TABLE,
     DRIVE_TABLE,
     ELEMENT_TABLE,
+    IF_WINDOW_TABLE,
     NEEDED_TABLE,
     PRODUCT_TABLE,
     RESPONSE_TABLE,
@@ -32,6 +33,7 @@ from spurplan.output.tables import (
     drive_display,
     element_display,
     filter_response_display,
+    if_window_display,
     needed_display,
     product_display,
     spur_display,
@@ -41,6 +43,7 @@ from spurplan.output.tables import (
 from spurplan.output.verdicts import (
     check_verdict,
     drive_verdict,
+    if_plan_verdict,
     passband_verdict,
     recheck_verdict,
     tune_verdict,
@@ -50,6 +53,7 @@ from spurplan.output.verdicts import (
 if TYPE_CHECKING:  # annotations only
     from spurplan.analyses.check import CheckResult
     from spurplan.analyses.filter_view import FilterView
+    from spurplan.analyses.frequency_plan import IfPlan
     from spurplan.analyses.montecarlo import YieldResult
     from spurplan.analyses.remedy import Remedy
     from spurplan.analyses.spur_chart import SpurChart
@@ -494,6 +498,44 @@ def spurs_text(chart: SpurChart, rows: dict | None = None) -> str:
         + text_table(spur_display(chart.rows if rows is None else rows), SPUR_TABLE)
         + _lines(passband_verdict(chart), PLANNING_NOTICE)
     )
+
+
+def if_windows_text(plan: IfPlan) -> str:
+    """``spurplan if-windows``: the forbidden bands, the spur-free IF windows best first, the verdict.
+
+    Parameters
+    ----------
+    plan : IfPlan
+        What :func:`spurplan.analyses.frequency_plan.plan_if` found.
+
+    Returns
+    -------
+    str
+        Heading (channels, bands, candidates), the table of windows (MHz), the
+        ``SPUR-FREE IF:`` lines, the notes and the planning notice.
+    """
+    ch, f = plan.channels_hz, plan.if_hz
+    protected = plan.bands[1:]
+    text = _lines(
+        f"{plan.lineup.name}: IF windows of mixer '{plan.mixer}', products |m LO + n IF| to order "
+        f"{plan.order} ({plan.lo_rule})",
+        f"Output channels: {len(ch)}, {ch[0] / 1e6:.6f} to {ch[-1] / 1e6:.6f} MHz ({plan.channel_source})",
+        f"Output passband: {plan.passband_hz[0] / 1e6:.6f} to {plan.passband_hz[1] / 1e6:.6f} MHz "
+        f"({plan.passband_source})",
+        "Protected bands: "
+        + (
+            f"{len(protected)} from the mask"
+            if protected
+            else ("none in the mask" if plan.protected_bands else "not judged (--passband-only)")
+        )
+        + (f"; every band widened by {plan.guard_hz / 1e6:g} MHz each side" if plan.guard_hz else ""),
+        f"IF candidates: {len(f)}, {f[0] / 1e6:.6f} to {f[-1] / 1e6:.6f} MHz in {plan.if_step_hz / 1e6:g} MHz "
+        f"steps; {int(plan.spur_free.sum())} spur-free, in {plan.window_count} window(s)"
+        + (f", the best {len(plan.windows)} listed" if len(plan.windows) < plan.window_count else ""),
+    )
+    if plan.windows:
+        text += text_table(if_window_display(plan.rows), IF_WINDOW_TABLE)
+    return text + _lines(*if_plan_verdict(plan), *(f"Note: {n}" for n in plan.notes), PLANNING_NOTICE)
 
 
 def yield_text(res: YieldResult) -> str:

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # annotations only
     from spurplan.analyses.check import CheckResult
+    from spurplan.analyses.frequency_plan import IfPlan
     from spurplan.analyses.montecarlo import YieldResult
     from spurplan.analyses.remedy import Remedy
     from spurplan.analyses.spur_chart import SpurChart
@@ -470,3 +471,45 @@ def yield_modes_verdict(labels, results) -> str:
         f"({labels[k]}, the lowest: a unit must pass in every mode, and each mode's samples are "
         "other units, so the yield over all modes is not computed)"
     )
+
+
+def if_plan_verdict(plan: IfPlan) -> list[str]:
+    """The terminal's ``SPUR-FREE IF:`` lines of an IF plan and where the lineup's own IF lies.
+
+    Parameters
+    ----------
+    plan : IfPlan
+        What :func:`spurplan.analyses.frequency_plan.plan_if` found.
+
+    Returns
+    -------
+    list of str
+        The verdict line, the line on the lineup's IF and the line on what is not judged.
+    """
+    bands = "the output passband" + (" or a protected band" if plan.protected_bands else "")
+    judged = f"no product |m LO + n IF| to order {plan.order} (but the wanted one) in {bands}"
+    if not plan.found:
+        lines = [
+            f"NO SPUR-FREE IF: at every IF candidate a product |m LO + n IF| to order {plan.order} lands in "
+            f"{bands} on some channel (or crosses one before the next candidate)"
+        ]
+    else:
+        w = plan.windows[0]
+        c = w.closest
+        lines = [
+            f"SPUR-FREE IF: {plan.window_count} window(s) with {judged} on any channel; the best "
+            f"({'widest' if plan.rank == 'width' else 'largest clearance'}) is {w.start_hz / 1e6:.6f} to "
+            f"{w.stop_hz / 1e6:.6f} MHz, where IF {w.best_if_hz / 1e6:.6f} MHz keeps the closest product, "
+            f"{c.label} at {c.freq_hz / 1e6:.6f} MHz, {c.distance_hz / 1e6:.6f} MHz {c.side} {c.band}"
+        ]
+    where = (
+        f"lies in window {plan.lineup_if_rank}"
+        if plan.lineup_if_rank is not None
+        else "lies in no spur-free window"
+    )
+    lines.append(f"The lineup's IF {plan.lineup_if_hz / 1e6:.6f} MHz {where}.")
+    lines.append(
+        "Frequencies only: levels, amplifier products and products above the order are not judged; "
+        "check the lineup at the chosen IF."
+    )
+    return lines
