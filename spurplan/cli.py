@@ -912,6 +912,7 @@ def spurs(lineup, mode, stage, max_order, show_all, fmt, plot_file, lo_start, lo
 
 @main.command("if-windows", epilog=EPILOG)
 @_lineup_arg
+@_mode_option
 @click.option("--if-start", required=True, help="Lowest IF candidate, e.g. '50 MHz'.")
 @click.option("--if-stop", required=True, help="Highest IF candidate, e.g. '100 MHz'.")
 @click.option("--if-step", required=True, help="Step between IF candidates, e.g. '250 kHz'.")
@@ -928,6 +929,7 @@ def spurs(lineup, mode, stage, max_order, show_all, fmt, plot_file, lo_start, lo
 @_format_option
 def if_windows(
     lineup,
+    mode,
     if_start,
     if_stop,
     if_step,
@@ -962,23 +964,26 @@ def if_windows(
             "output channel",
             "Hz",
         )
-    lu = _load(lineup)
-    plan = plan_if(
-        lu,
-        lo,
-        hi,
-        step,
-        order=order,
-        channels_hz=channels,
-        guard_hz=guard_hz,
-        protected_bands=not passband_only,
-        rank=rank,
-        max_windows=max_windows,
-    )
-    _warn_model(lu)
-    if not _machine_output(fmt, if_plan_document(plan)):
-        click.echo(if_windows_text(plan), nl=False)
-    sys.exit(0 if plan.found else 1)
+    modes = _load_modes(lineup, mode)
+
+    def run(m, i):
+        lu = m.lineup
+        plan = plan_if(
+            lu,
+            lo,
+            hi,
+            step,
+            order=order,
+            channels_hz=channels,
+            guard_hz=guard_hz,
+            protected_bands=not passband_only,
+            rank=rank,
+            max_windows=max_windows,
+        )
+        _warn_model(lu)
+        return _Shown(if_plan_document(plan), if_windows_text(plan), 0 if plan.found else 1)
+
+    sys.exit(_over_modes(modes, fmt, run))
 
 
 @main.command("yield", epilog=EPILOG)

@@ -168,3 +168,32 @@ def test_tuning_figure_draws_no_line_through_two_products():
             same = [g for g in range(labels.shape[1]) if labels[i, g] == label]
             assert any(abs(sweep.freq_hz[i, g] / 1e6 - y) < 1e-6 for g in same), (label, x_mhz[i], y)
     close(fig)
+
+
+def test_passing_sweep_states_its_least_margin_and_where():
+    from dataclasses import replace
+
+    from spurplan.io.mask_files import read_mask
+    from spurplan.output.verdicts import tune_verdict
+
+    # The same chain with the band held to -90 dBm: the 3rd harmonic (-90 dBm before the
+    # filter) then passes on every channel by the filter's loss at 3 f, least where 3 f
+    # is lowest in the band: the first channel at or above 1400/3 MHz, 466.7 MHz (n f = band
+    # edge; common practice, no source).  Margin = limit - (H3 - loss) = loss(1400.1 MHz).
+    lu = _pa_lowpass_lineup()
+    lu = replace(
+        lu,
+        mask=read_mask(
+            {"use": [{"name": "itu-rr-5.340", "limit": "-90 dBm", "rbw": "1 MHz"}]}, "t.toml", "."
+        ),
+    )
+    sweep = tune_sweep(lu, np.round(np.arange(464e6, 478e6 + 1, 100e3)))
+    assert sweep.passed
+    least = sweep.least_margin
+    hand = -90.0 - (H3_DBM - _butterworth_loss_db(3 * 466.7e6))
+    assert least["channel_hz"] == pytest.approx(466.7e6)
+    assert least["label"] == "3f1"
+    assert least["margin_db"] == pytest.approx(hand, abs=0.005)
+    line = tune_verdict(sweep)[0]
+    assert f"least margin {hand:+.2f} dB (3f1 at 1400.100 MHz) with the carrier at 466.700000 MHz" in line
+    assert f"least margin {hand:+.2f} dB" in tune_verdict(sweep, "report")[0]

@@ -485,6 +485,27 @@ class TuneSweep:
         """Whether every channel meets the mask (no failing range)."""
         return not self.failing
 
+    @property
+    def least_margin(self) -> dict | None:
+        """The least margin over every channel and judged product, and where it is.
+
+        Returns
+        -------
+        dict or None
+            ``channel_hz`` (the swept value), ``freq_hz`` and ``label`` of the product,
+            ``margin_db``; ``None`` when no product was judged on any channel.
+        """
+        margin = np.where(np.isfinite(self.margin_db), self.margin_db, np.inf)
+        if margin.size == 0 or not np.isfinite(margin).any():
+            return None
+        i, g = np.unravel_index(int(np.argmin(margin)), margin.shape)
+        return {
+            "channel_hz": float(self.carrier_hz[i]),
+            "freq_hz": float(self.freq_hz[i, g]),
+            "label": str(self.labels[i][g]),
+            "margin_db": float(margin[i, g]),
+        }
+
 
 def tune_sweep(
     lineup,

@@ -198,7 +198,7 @@ def tune_verdict(sweep: TuneSweep, style: str = "terminal") -> list[str]:
     unsettled = 0 if sweep.unsettled is None else int(sweep.unsettled.sum())
     if style == "report":
         if not sweep.failing:
-            return ["Every channel meets the mask."]
+            return ["Every channel meets the mask" + _least_margin_words(sweep) + "."]
         worst = sweep.summary[0]
         n_bad = int(sum(1 for w in sweep.worst_margin_db if w < 0))
         return [
@@ -209,6 +209,7 @@ def tune_verdict(sweep: TuneSweep, style: str = "terminal") -> list[str]:
     if not sweep.failing:
         return [
             "TUNING RANGE: every channel meets the mask"
+            + _least_margin_words(sweep)
             + PRODUCTS_ONLY
             + model_caveat(sweep.lineup)
             + unsettled_caveat(unsettled, len(sweep.carrier_hz), "channels")
@@ -220,6 +221,17 @@ def tune_verdict(sweep: TuneSweep, style: str = "terminal") -> list[str]:
         f"{worst['worst_margin_db']:+.2f} dB with the {sweep.variable} at {worst['worst_channel_hz'] / 1e6:.6f} MHz"
         + PRODUCTS_ONLY
     ]
+
+
+def _least_margin_words(sweep: TuneSweep) -> str:
+    """``"; least margin +12.30 dB (3f1 at 1350.000 MHz) with the carrier at 450.000000 MHz"``."""
+    least = sweep.least_margin
+    if least is None:
+        return ""
+    return (
+        f"; least margin {least['margin_db']:+.2f} dB ({least['label']} at {least['freq_hz'] / 1e6:.3f} MHz) "
+        f"with the {sweep.variable} at {least['channel_hz'] / 1e6:.6f} MHz"
+    )
 
 
 # At most this many stretches of channels are spelled out in one summary line.
