@@ -279,7 +279,7 @@ def drive_summary(sweep: DriveSweep) -> dict:
     return {
         "lineup": sweep.lineup.name,
         "status": sweep.status,
-        "model_gaps": model_caveat(sweep.lineup).lstrip("; "),
+        "model_gaps": model_caveat(sweep.lineup, channels=False).lstrip("; "),
         "unsettled_points": sweep.unsettled_signed,
         "max_compliant_input_dbm": sweep.max_compliant_input_dbm,
         "max_compliant_output_dbm": sweep.max_compliant_output_dbm,
@@ -383,7 +383,7 @@ def yield_document(res: YieldResult) -> Document:
     lo, hi = res.interval
     summary = {
         "lineup": res.lineup.name,
-        "model_gaps": model_caveat(res.lineup).lstrip("; "),
+        "model_gaps": model_caveat(res.lineup, channels=bool(res.by_channel)).lstrip("; "),
         "unsettled_passing_samples": res.unsettled_passing,
         "samples": res.samples,
         "seed": res.seed,

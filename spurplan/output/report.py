@@ -379,7 +379,7 @@ def _drive_section(lineup, drive, drive_figure) -> Section:
         (
             "text",
             _SWEEP_JUDGES
-            + model_caveat(lineup)
+            + model_caveat(lineup, channels=False)
             + unsettled_caveat(sw.unsettled_signed, len(sw.input_dbm), "drive points")
             + ".",
         )

@@ -26,7 +26,7 @@ def _in_band(band) -> str:
     return f" (in {band})" if band else ""
 
 
-def model_caveat(lineup) -> str:
+def model_caveat(lineup, channels: bool = True) -> str:
     """What a sweep's or yield's headline must add when the model lacks or misses figures.
 
     A drive or tuning range, or a yield, computed from a model without a stated figure is
@@ -38,6 +38,10 @@ def model_caveat(lineup) -> str:
     ----------
     lineup : Lineup
         The lineup the result was computed from.
+    channels : bool, optional
+        Whether the result visits other channels (tune, yield over channels): then the
+        per-channel model's misses at the figure tables' frequencies count too.  A drive
+        sweep runs at the lineup's own channel, on the stage fitted there.
 
     Returns
     -------
@@ -48,6 +52,8 @@ def model_caveat(lineup) -> str:
     from spurplan.analyses.check import model_gaps
 
     missing, missed = lineup.missing_figures(), lineup.figures_missed()
+    if not channels:
+        missed = tuple((name, c) for name, c in missed if c.freq_hz is None)
     modulated = [f"f{k + 1}" for k, c in enumerate(lineup.carriers) if c.modulation is not None]
     if not missing and not missed and not modulated:
         return ""
@@ -122,7 +128,7 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
             f"{sweep.max_compliant_output_dbm:+.2f} dBm; {above}"
             + _in_band(lim["band"])
             + PRODUCTS_ONLY
-            + model_caveat(sweep.lineup)
+            + model_caveat(sweep.lineup, channels=False)
             + unsettled_caveat(sweep.unsettled_signed, len(sweep.input_dbm), "drive points")
         )
     if sweep.status == "fails throughout":
@@ -149,7 +155,7 @@ def drive_verdict(sweep: DriveSweep, style: str = "terminal") -> str:
         "HIGHEST COMPLIANT DRIVE: the mask is met over the whole range "
         f"(up to {sweep.max_compliant_input_dbm:+.2f} dBm in)"
         + PRODUCTS_ONLY
-        + model_caveat(sweep.lineup)
+        + model_caveat(sweep.lineup, channels=False)
         + unsettled_caveat(sweep.unsettled_signed, len(sweep.input_dbm), "drive points")
     )
 
@@ -333,7 +339,7 @@ def yield_verdict(res: YieldResult) -> str:
         f"YIELD: {100 * res.yield_fraction:.3f} % ({res.passed} of {res.samples} pass); "
         f"95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
         + PRODUCTS_ONLY
-        + model_caveat(res.lineup)
+        + model_caveat(res.lineup, channels=bool(res.by_channel))
         + unsettled_caveat(res.unsettled_passing, res.samples, "samples (counted as passing)")
     )
 
