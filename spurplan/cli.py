@@ -473,6 +473,23 @@ def drive(lineup, start, stop, step, target_output, fmt, combine, plot_file, plo
         click.echo(drive_text(sw), nl=False)
 
 
+def _channel_choice(start, stop, step, channel_file):
+    """Channels (Hz) from --channels FILE or --start/--stop/--step; None when neither is given
+    (as ``tune`` reads them; ``remedy`` then designs over the lineup's [report] tune range)."""
+    from spurplan.io.channels import read_channels, sweep_points
+
+    if channel_file:
+        if start or stop or step:
+            raise click.UsageError("give either --channels FILE or --start/--stop/--step")
+        return read_channels(channel_file)
+    if not (start or stop or step):
+        return None
+    if not (start and stop and step):
+        raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
+    lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
+    return sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
+
+
 @main.command(epilog=EPILOG)
 @_lineup_arg
 @click.option("--start", help="First carrier frequency, e.g. '460 MHz'.")
@@ -560,12 +577,26 @@ def tune(lineup, start, stop, step, channel_file, fmt, combine, plot_file, plot_
     "floor",
     help='Its stopband floor (leakage past the ladder), or "none" for the ideal ladder  [default: -80 dB, the same]',
 )
+@click.option("--start", help="First channel, e.g. '150 MHz' (default: the lineup's [report] tune range).")
+@click.option("--stop", help="Last channel, e.g. '174 MHz'.")
+@click.option("--step", help="Channel step, e.g. '12.5 kHz'.")
+@click.option(
+    "--channels",
+    "channel_file",
+    type=click.Path(dir_okay=False),
+    help="A file of channels, one frequency per line with unit.",
+)
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
-def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor, fmt):
-    """Find the lowest-order synthesized filter that makes LINEUP pass, and re-check with it.
+def remedy(
+    lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor, start, stop, step, channel_file, fmt
+):
+    """Find the lowest-order synthesized filter that makes LINEUP pass on every channel.
 
-    The filter has parts of finite Q and a stopband floor (--q-inductor,
-    --q-capacitor, --floor), written into the snippet it prints.
+    The channels are those `tune` would sweep (the carrier, or with a mixer the LO):
+    --start/--stop/--step or --channels, else the lineup's [report] tune range, else the
+    lineup as written. The filter has parts of finite Q and a stopband floor
+    (--q-inductor, --q-capacitor, --floor), written into the snippet it prints; it is
+    re-checked on every channel. When no filter helps, it says what would.
 
     Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
     filter up to the highest order is enough, 2 bad input.
@@ -599,8 +630,9 @@ def remedy(lineup, at_stage, margin, write_file, q_inductor, q_capacitor, floor,
             parts["floor_db"] = parse_floor_db(floor.strip())
     except ValueError as exc:
         raise click.BadParameter(str(exc), param_hint="--floor") from None
+    freqs = _channel_choice(start, stop, step, channel_file)
     lu = _load(lineup)
-    found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
+    found = find_remedy(lu, at=at_stage, margin_db=target, channels_hz=freqs, **parts)
     # Written before anything is printed: a refusal is one error line and nothing else.
     edited = write_fixed(lu, found, write_file) if write_file and found.found else None
     _warn_model(lu)
