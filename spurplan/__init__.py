@@ -57,6 +57,7 @@ _LAZY = {
     "TuneSweep": "analyses.sweep",
     "remedy": "analyses.remedy",
     "Remedy": "analyses.remedy",
+    "RemedyCase": "analyses.remedy",
     "run_yield": "analyses.montecarlo",
     "YieldResult": "analyses.montecarlo",
     "budget_rows": "analyses.budget",

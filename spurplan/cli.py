@@ -618,6 +618,23 @@ def drive(
     sys.exit(_over_modes(modes, fmt, run, "DRIVE"))
 
 
+def _channel_choice(start, stop, step, channel_file):
+    """Channels (Hz) from --channels FILE or --start/--stop/--step; None when neither is given
+    (as ``tune`` reads them; ``remedy`` then designs over the lineup's [report] tune range)."""
+    from spurplan.io.channels import read_channels, sweep_points
+
+    if channel_file:
+        if start or stop or step:
+            raise click.UsageError("give either --channels FILE or --start/--stop/--step")
+        return read_channels(channel_file)
+    if not (start or stop or step):
+        return None
+    if not (start and stop and step):
+        raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
+    lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
+    return sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
+
+
 @main.command(epilog=EPILOG)
 @_lineup_arg
 @_mode_option
@@ -755,12 +772,38 @@ def tune(
     "floor",
     help='Its stopband floor (leakage past the ladder), or "none" for the ideal ladder  [default: -80 dB, the same]',
 )
+@click.option("--start", help="First channel, e.g. '150 MHz' (default: the lineup's [report] tune range).")
+@click.option("--stop", help="Last channel, e.g. '174 MHz'.")
+@click.option("--step", help="Channel step, e.g. '12.5 kHz'.")
+@click.option(
+    "--channels",
+    "channel_file",
+    type=click.Path(dir_okay=False),
+    help="A file of channels, one frequency per line with unit.",
+)
 @click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
-def remedy(lineup, mode, at_stage, margin, write_file, q_inductor, q_capacitor, floor, fmt):
-    """Find the lowest-order synthesized filter that makes LINEUP pass, and re-check with it.
+def remedy(
+    lineup,
+    mode,
+    at_stage,
+    margin,
+    write_file,
+    q_inductor,
+    q_capacitor,
+    floor,
+    start,
+    stop,
+    step,
+    channel_file,
+    fmt,
+):
+    """Find the lowest-order synthesized filter that makes LINEUP pass on every channel of every mode.
 
-    The filter has parts of finite Q and a stopband floor (--q-inductor,
-    --q-capacitor, --floor), written into the snippet it prints.
+    The channels are those `tune` would sweep (the carrier, or with a mixer the LO):
+    --start/--stop/--step or --channels, else the lineup's [report] tune range, else the
+    lineup as written. The filter has parts of finite Q and a stopband floor
+    (--q-inductor, --q-capacitor, --floor), written into the snippet it prints; it is
+    re-checked on every channel. When no filter helps, it says what would.
 
     Exit status: 0 when the lineup passes with the filter (or already did), 1 when no
     filter up to the highest order is enough, 2 bad input.
@@ -770,8 +813,7 @@ def remedy(lineup, mode, at_stage, margin, write_file, q_inductor, q_capacitor, 
     from spurplan.model.stages.filter import parse_floor_db, parse_q
     from spurplan.output.documents import remedy_document
     from spurplan.output.remedy_file import write_fixed
-    from spurplan.output.terminal import remedy_text
-    from spurplan.output.verdicts import recheck_verdict
+    from spurplan.output.terminal import remedy_modes_hint, remedy_text
 
     target = _parse("db", margin, "--margin", MARGIN_TARGET)
     parts: dict[str, Any] = {}
@@ -795,41 +837,26 @@ def remedy(lineup, mode, at_stage, margin, write_file, q_inductor, q_capacitor, 
             parts["floor_db"] = parse_floor_db(floor.strip())
     except ValueError as exc:
         raise click.BadParameter(str(exc), param_hint="--floor") from None
+    from spurplan.analyses.remedy import RemedyCase
+
+    freqs = _channel_choice(start, stop, step, channel_file)
     modes = _load_modes(lineup, mode)
-    if write_file and modes[0].name is not None:
-        # The edit re-reads the file as one lineup (spurplan.analyses.remedy.fixed_lineup).
-        raise click.UsageError(
-            "--write is not available for a lineup file with [[mode]] tables: paste the printed [[stage]] "
-            "table (into the stages, or a mode's stage override)"
-        )
-
-    def run(m, _):
-        lu = m.lineup
-        found = find_remedy(lu, at=at_stage, margin_db=target, **parts)
-        # Written before anything is printed: a refusal is one error line and nothing else.
-        edited = write_fixed(lu, found, write_file) if write_file and found.found else None
-        _warn_model(lu)
-        # Exit 1 only when products fall short and no filter is enough.
-        short = bool(found.needed["freq_hz"]) and not found.found
-        ok = not found.needed["freq_hz"] or (found.outcome is not None and found.outcome.passed)
-        line = (
-            "no filter needed"
-            if not found.needed["freq_hz"]
-            else (recheck_verdict(found) if found.found else f"NO FILTER FOUND: {found.reason}")
-        )
-        return _Shown(
-            remedy_document(found),
-            remedy_text(found, edited, write_file),
-            int(short),
-            "PASS" if ok else "FAIL",
-            line,
-        )
-
-    sys.exit(
-        _over_modes(
-            modes, "json" if fmt == "json" else "table", run, "REMEDY (EACH MODE WITH ITS OWN FILTER)"
-        )
-    )
+    lu = modes[0].lineup
+    # One filter for every mode run: it goes into the stages the modes share.
+    subject = lu if modes[0].name is None else [RemedyCase(m.lineup, freqs, m.label) for m in modes]
+    found = find_remedy(subject, at=at_stage, margin_db=target, channels_hz=freqs, **parts)
+    # Written before anything is printed: a refusal is one error line and nothing else.
+    edited = write_fixed(lu, found, write_file) if write_file and found.found else None
+    for m in modes:
+        _warn_model(m.lineup)
+    if fmt == "json":
+        click.echo(remedy_document(found).json(), nl=False)
+    else:
+        click.echo(remedy_text(found, edited, write_file), nl=False)
+        if len(modes) > 1 and found.needed["freq_hz"] and not found.found:
+            click.echo(remedy_modes_hint(len(modes)))
+    # Exit 1 only when products fall short and no filter is enough.
+    sys.exit(1 if found.needed["freq_hz"] and not found.found else 0)
 
 
 @main.command(epilog=EPILOG)

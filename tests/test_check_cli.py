@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
+import json
 import struct
 import tomllib
 from pathlib import Path
@@ -333,3 +334,24 @@ def test_hand_worked_second_harmonic_margin(fmt, tmp_path):
     assert doc["summary"]["pass"] is False
     assert doc["summary"]["worst"]["label"] == "2f1"
     assert doc["summary"]["worst_margin_db"] == pytest.approx(-26.0, abs=0.01)
+
+
+def test_high_power_check_carries_the_rf_safety_notice():
+    from helpers import invoke
+
+    from spurplan.io.resources import example_path
+    from spurplan.notices import POWER_NOTICE
+
+    # 25 W at the antenna port (+44 dBm): the terminal and JSON outputs carry the RF-exposure
+    # and hot-parts caution with the power in watts (10^((P - 30)/10) W; arithmetic).
+    r = invoke("check", example_path("vhf_25w_transmitter.toml"), expect=1)
+    assert POWER_NOTICE in r.stdout and "dBm (25" in r.stdout
+    doc = json.loads(
+        invoke("check", example_path("vhf_25w_transmitter.toml"), "--format", "json", expect=1).stdout
+    )
+    assert POWER_NOTICE in doc["summary"]["power_notice"]
+    # A low-power lineup does not shout it.
+    low = json.loads(
+        invoke("check", example_path("uhf_telemetry.toml"), "--format", "json", expect=None).stdout
+    )
+    assert "power_notice" not in low["summary"]

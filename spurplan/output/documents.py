@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from spurplan.analyses.check import ACPR_DOMAIN, NOISE_LABEL
-from spurplan.notices import PLANNING_NOTICE
+from spurplan.notices import PLANNING_NOTICE, power_notice
 from spurplan.output.formatting import html_table, to_csv, to_json
 from spurplan.output.provenance import provenance
 from spurplan.output.tables import (
@@ -223,6 +223,7 @@ def check_summary(outcome: CheckResult) -> dict:
         "model_extrapolated": outcome.result.extrapolated_stages,
         **provenance(lineup),
         "notice": PLANNING_NOTICE,
+        **({"power_notice": power_notice(outcome.carrier_dbm)} if power_notice(outcome.carrier_dbm) else {}),
     }
 
 
@@ -346,22 +347,61 @@ def remedy_document(found: Remedy) -> Document:
         it goes, its snippet and parts, the check before (and after) it, every candidate
         tried and the filter's elements.
     """
+    from spurplan.output.verdicts import advice_sentence, remedy_reason
+
     out = {
         "lineup": found.lineup.name,
         "margin_target_db": found.margin_target_db,
         "found": found.found,
-        "reason": found.reason,
+        "reason": remedy_reason(found),
         "insert_after": found.after,
         "snippet": found.snippet,
         "parts": found.parts,
         "before": {"pass": found.before.passed, "worst_margin_db": found.before.worst_margin_db},
         "tried": found.tried,
+        "channels": [
+            {
+                "case": case.name,
+                "swept": "LO" if case.lineup.mixers else "carrier",
+                "count": len(ch),
+                "first_hz": float(ch.min()),
+                "last_hz": float(ch.max()),
+                "from": origin,
+            }
+            for case, (ch, origin) in zip(found.cases, found.channels, strict=True)
+        ],
+        "advice": [
+            {**a, "text": advice_sentence(a, {c.name: c.lineup for c in found.cases}.get(a.get("case", "")))}
+            for a in found.advice
+        ],
     }
     # remedy() sets filter and outcome together, with the snippet, when it finds a filter.
     if found.filter is not None and found.outcome is not None:
         out["after"] = {"pass": found.outcome.passed, "worst_margin_db": found.outcome.worst_margin_db}
         out["elements"] = found.filter.elements()
+        out["recheck"] = [
+            _channel_recheck(case, sweep, found.margin_target_db)
+            for case, sweep in zip(found.cases, found.recheck, strict=True)
+        ]
     return Document({**out, **provenance(found.lineup)}, "needed", found.needed)
+
+
+def _channel_recheck(case, sweep, target_db: float) -> dict:
+    """One case of the remedy re-checked on every channel: count, whether it meets the mask
+    and the margin target (dB), the worst margin (dB) and its channel (Hz)."""
+    import numpy as np
+
+    b = int(np.argmin(sweep.worst_margin_db))
+    worst = float(sweep.worst_margin_db[b])
+    return {
+        "case": case.name,
+        "channels": len(sweep.carrier_hz),
+        "pass": bool(sweep.passed),
+        "meets_target": bool(worst >= target_db),
+        "model_gaps": model_caveat(case.lineup).lstrip("; "),
+        "worst_margin_db": worst if np.isfinite(worst) else None,
+        "worst_channel_hz": float(sweep.carrier_hz[b]),
+    }
 
 
 def yield_document(res: YieldResult) -> Document:

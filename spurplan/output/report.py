@@ -29,7 +29,7 @@ from pathlib import Path
 from spurplan.analyses.budget import budget_rows
 from spurplan.analyses.check import check, figure_check_rows
 from spurplan.engine.result import REPORT_FLOOR_DBC
-from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE
+from spurplan.notices import PLANNING_NOTICE, POWER_NOTICE, power_notice
 from spurplan.output.files import check_folder, check_target, write_atomic, write_with_folder
 from spurplan.output.provenance import provenance
 from spurplan.output.tables import (
@@ -50,10 +50,6 @@ from spurplan.output.verdicts import (
     yield_verdict,
 )
 
-# Above this output power the report adds the RF-exposure and hot-parts caution
-# prominently (common practice, no source: a few watts is where burns and exposure
-# limits become real on a bench).
-HIGH_POWER_DBM = 33.0
 FIGURE_DPI = 100
 # Monte Carlo samples of the report's yield section: enough for a yield to a few per cent
 # (the 95 % Wilson interval is about +-3 % wide at 50 %, narrower near 0 or 100 %), quick
@@ -669,14 +665,7 @@ def _cautions_section(outcome) -> Section:
             "published text; check them against the edition that applies before relying on them.",
         )
     )
-    power = outcome.carrier_dbm
-    text = POWER_NOTICE
-    if power >= HIGH_POWER_DBM:
-        text = (
-            f"This transmitter delivers about {power:+.1f} dBm ({10 ** ((power - 30) / 10):.3g} W). "
-            + POWER_NOTICE
-        )
-    sec.parts.append(("caution", text))
+    sec.parts.append(("caution", power_notice(outcome.carrier_dbm) or POWER_NOTICE))
     return sec
 
 

@@ -133,6 +133,8 @@ NEEDED_TABLE = [
     ("label", "product", None),
     ("margin_db", "margin now (dB)", ".2f"),
     ("rejection_needed_db", "more rejection needed (dB)", ".2f"),
+    ("channel_mhz", "worst at (MHz)", ".6g"),
+    ("span_mhz", "lies over (MHz)", None),
     ("rule", "rule", None),
     ("band", "protected band", None),
 ]
@@ -373,8 +375,17 @@ def drive_display(rows: dict) -> dict:
 
 
 def needed_display(rows: dict) -> dict:
+    """The remedy's rejection-needed rows for a terminal: MHz, the channel (the swept
+    frequency) where each product is shortest, and where it lies over the short channels."""
     shown = dict(rows)
     shown["freq_mhz"] = mhz(rows["freq_hz"])
+    n = len(rows["freq_hz"])
+    shown["channel_mhz"] = mhz(rows.get("channel_hz", [None] * n))
+    lows, highs = rows.get("freq_low_hz", [None] * n), rows.get("freq_high_hz", [None] * n)
+    shown["span_mhz"] = [
+        None if a is None else (f"{a / 1e6:.6g}" if a == b else f"{a / 1e6:.6g} - {b / 1e6:.6g}")
+        for a, b in zip(lows, highs, strict=True)
+    ]
     return shown
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
-from spurplan.notices import PLANNING_NOTICE
+from spurplan.notices import PLANNING_NOTICE, power_notice
 from spurplan.output.formatting import text_table
 from spurplan.output.tables import (
     BANDS_TABLE,
@@ -41,11 +41,14 @@ from spurplan.output.tables import (
     tune_table,
 )
 from spurplan.output.verdicts import (
+    channels_recheck_verdict,
     check_verdict,
     drive_verdict,
     if_plan_verdict,
     passband_verdict,
     recheck_verdict,
+    remedy_advice,
+    remedy_reason,
     tune_verdict,
     yield_verdict,
 )
@@ -304,7 +307,7 @@ def check_text(outcome: CheckResult) -> str:
     return (
         _lines(f"{outcome.result.lineup.name}: products at the output against the mask")
         + text_table(check_display(outcome.rows), CHECK_TABLE)
-        + _lines(check_verdict(outcome), PLANNING_NOTICE)
+        + _lines(check_verdict(outcome), PLANNING_NOTICE, *filter(None, [power_notice(outcome.carrier_dbm)]))
     )
 
 
@@ -454,23 +457,62 @@ def remedy_text(found: Remedy, written: EditedLineup | None = None, path=None) -
     text = _lines(
         f"{found.lineup.name}: remedy for a {found.margin_target_db:g} dB margin",
         f"Filter parts assumed: {parts_text(**found.parts)} (set with --q-inductor, --q-capacitor, --floor)",
+        *remedy_span_lines(found),
     )
     if not found.needed["freq_hz"]:
         return text + _lines(f"Nothing to do: {found.reason}.", PLANNING_NOTICE)
     text += text_table(needed_display(found.needed), NEEDED_TABLE)
     if not found.found:
-        return text + _lines(f"NO FILTER FOUND: {found.reason}.", PLANNING_NOTICE)
+        helps = remedy_advice(found)
+        text += _lines(f"NO FILTER FOUND: {remedy_reason(found)}.")
+        if helps:
+            text += _lines("What would help instead:", *(f"- {s}." for s in helps))
+        return text + _lines(PLANNING_NOTICE)
     assert found.filter is not None  # remedy() sets the filter with the snippet
     where = f"after stage '{found.after}'" if found.after else "at the lineup input"
     text += _lines("", f"Insert {where}:", str(found.snippet))
     text += text_table(element_display(found.filter.elements()), ELEMENT_TABLE)
-    text += _lines(recheck_verdict(found))
+    text += _lines(recheck_verdict(found), *channels_recheck_verdict(found))
     if written is not None:
         moved = "; ".join(f"{old!r} -> {new!r}" for old, new in written.moved)
         text += _lines(
             f"wrote {path}" + (f" (data paths rewritten for its folder: {moved})" if moved else "")
         )
     return text + _lines(PLANNING_NOTICE)
+
+
+# Where a remedy's channels came from (analyses.remedy.case_channels), as the terminal says it.
+_CHANNEL_ORIGINS = {
+    "given": "from --start/--stop/--step or --channels",
+    "report": "the lineup's [report] tune range",
+    "written": "the lineup as written; no tuning range given",
+}
+
+
+def remedy_span_lines(found: Remedy) -> list[str]:
+    """Which channels the remedy designed over, one line per case (MHz).
+
+    Parameters
+    ----------
+    found : Remedy
+
+    Returns
+    -------
+    list of str
+    """
+    lines = []
+    for case, (ch, origin) in zip(found.cases, found.channels, strict=True):
+        what = "LO" if case.lineup.mixers else "carrier"
+        pre = f"[{case.name}] " if case.name else ""
+        span = (
+            f"{what} {ch.min() / 1e6:.6g} MHz"
+            if len(ch) == 1
+            else (f"{what} {ch.min() / 1e6:.6g} to {ch.max() / 1e6:.6g} MHz")
+        )
+        lines.append(
+            f"{pre}Designed for {len(ch)} channel{'s' * (len(ch) > 1)}: {span} ({_CHANNEL_ORIGINS[origin]})"
+        )
+    return lines
 
 
 def spurs_text(chart: SpurChart, rows: dict | None = None) -> str:
@@ -586,3 +628,23 @@ def yield_text(res: YieldResult) -> str:
                 f"({'not listed; ' if failing else ''}every channel is in --format json)"
             )
     return text + _lines(PLANNING_NOTICE)
+
+
+def remedy_modes_hint(count: int) -> str:
+    """What to try when one filter cannot serve every mode: a switched filter, one per mode.
+
+    Parameters
+    ----------
+    count : int
+        The modes the filter was designed for.
+
+    Returns
+    -------
+    str
+        One line.
+    """
+    return (
+        f"No one filter serves all {count} modes: a switched filter may (run remedy with --mode NAME for "
+        "each mode, put the filter stage in the base file and give each mode its own with a "
+        "[mode.stage.NAME] override)."
+    )

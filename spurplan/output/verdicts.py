@@ -307,18 +307,188 @@ def recheck_verdict(found: Remedy) -> str:
     Returns
     -------
     str
-        Pass or fail, the worst margin (dB) and product, and the carrier at the output
-        (dBm) with and without the filter.
+        The check's status (PASS, FAIL, INCOMPLETE or UNCERTAIN), the worst margin (dB)
+        and product, the carrier at the output (dBm) with and without the filter, and what
+        the check did not judge or know.
     """
     out = found.outcome
     assert out is not None  # the caller shows a re-check only when a filter was found
-    word = "PASS" if out.passed else "FAIL"
+    # The check's own status: a re-check whose model lacks or misses figures, or leaves
+    # products unjudged, is INCOMPLETE or UNCERTAIN, never PASS; what it does not know follows.
+    word = out.status
+    gaps = out.verdict.partition("; ")[2] if word in ("INCOMPLETE", "UNCERTAIN") else ""
     rows, i = out.rows, out.worst
     return (
         f"RE-CHECKED WITH THE FILTER: {word}, worst margin {out.worst_margin_db:+.2f} dB ({rows['label'][i]} at "
         f"{rows['freq_hz'][i] / 1e6:.6f} MHz); carrier at the output {out.carrier_dbm:+.2f} dBm "
-        f"(was {found.before.carrier_dbm:+.2f} dBm)"
+        f"(was {found.before.carrier_dbm:+.2f} dBm)" + (f"; {gaps}" if gaps else "")
     )
+
+
+def _case(item: dict) -> str:
+    """``"[mode] "`` before a sentence about one of several cases (empty for a lineup's only one)."""
+    return f"[{item['case']}] " if item.get("case") else ""
+
+
+def _mhz(hz: float) -> str:
+    return f"{hz / 1e6:.6g} MHz"
+
+
+def _at_channel(item: dict) -> str:
+    ch = item.get("channel_hz")
+    return "" if ch is None else f", {item.get('swept', 'carrier')} at {_mhz(ch)}"
+
+
+def advice_sentence(item: dict, lineup=None) -> str:
+    """One thing that would help where no filter at the chosen place does, as a sentence.
+
+    Parameters
+    ----------
+    item : dict
+        An entry of :attr:`spurplan.analyses.remedy.Remedy.advice`: ``kind``
+        "regenerated" (a later stage makes the product again), "plan" (the product lies
+        in the passband every channel needs), "intercept" (the stage that makes it, and by
+        how many dB its intercept must rise) or "backoff" (the drive that meets the
+        target on every channel); levels in dBm, frequencies in Hz.
+    lineup : Lineup, optional
+        The lineup the item is about.
+
+    Returns
+    -------
+    str
+        One sentence without its full stop.  With ``lineup`` (the case's), a back-off
+        that meets the mask says what the model does not know (:func:`model_caveat`).
+    """
+    kind, pre = item["kind"], _case(item)
+    if kind == "regenerated":
+        where = f"after '{item['at']}'" if item.get("at") else "at the lineup input"
+        text = (
+            f"{pre}the stage '{item['stage']}' after this point regenerates {item['label']} at "
+            f"{item['level_dbm']:+.2f} dBm (limit {item['limit_dbm']:+.2f} dBm{_at_channel(item)}) even with a "
+            f"perfect filter {where}"
+        )
+        if item["moved_helps"]:
+            return text + f"; put the filter after '{item['move_after']}'"
+        return text + (
+            f"; even a perfect filter after '{item['move_after']}' leaves a worst margin of "
+            f"{item['moved_worst_margin_db']:+.2f} dB"
+        )
+    if kind == "plan":
+        return (
+            f"{pre}{item['label']} at {_mhz(item['freq_hz'])} ({item['level_dbm']:+.2f} dBm, limit "
+            f"{item['limit_dbm']:+.2f} dBm{_at_channel(item)}) lies inside the passband any filter here keeps "
+            f"for the carriers ({_mhz(item['carriers_low_hz'])} to {_mhz(item['carriers_high_hz'])} over every "
+            f"channel; passband {_mhz(item['pass_low_hz'])} to {_mhz(item['pass_high_hz'])}), so no filter here "
+            "removes it: change the frequency plan (carrier spacing or tuning range; with a mixer, the LO side: "
+            "see spurplan spurs)"
+        )
+    if kind == "intercept":
+        n, rise, need = item["order"], item["intercept_rise_db"], item["need_db"]
+        slope = f"it falls {n - 1} dB per dB of intercept at the same output"
+        if item["harmonic"]:
+            figure = (
+                f"an order-{n} harmonic intercept {rise:.1f} dB higher (h{n} {need:.1f} dB lower, in dBc at the "
+                "same output)"
+            )
+        else:
+            figure = f"an order-{n} intercept (OIP{n}) {rise:.1f} dB higher"
+        return (
+            f"{pre}'{item['stage']}', which makes {item['label']} ({_mhz(item['freq_hz'])}{_at_channel(item)}), "
+            f"would meet the target with {figure} ({slope})"
+        )
+    if kind == "backoff":
+        target = item["margin_target_db"]
+        if item.get("input_dbm") is None:
+            return (
+                f"{pre}no drive within {item['range_db']:g} dB below the written "
+                f"{item['written_input_dbm']:+.2f} dBm meets the mask with {target:g} dB margin on every channel"
+            )
+        return (
+            f"{pre}backing the drive off by {-item['offset_db']:.2f} dB, to {item['input_dbm']:+.2f} dBm at the "
+            f"input of the strongest carrier ({item['output_dbm']:+.2f} dBm out), meets the mask with "
+            f"{target:g} dB margin on every channel ({item['channels']} channel{'s' * (item['channels'] > 1)} "
+            f"re-checked by tune, worst margin {item['worst_margin_db']:+.2f} dB)"
+            + ("" if lineup is None else PRODUCTS_ONLY + model_caveat(lineup))
+            + unsettled_caveat(item.get("unsettled_channels", 0), item["channels"], "channels")
+        )
+    raise ValueError(f"advice kind {kind!r}: expected regenerated, plan, intercept or backoff")
+
+
+def remedy_reason(found: Remedy) -> str:
+    """Why the remedy proposes no filter: its own reason, or the first thing no filter fixes.
+
+    Parameters
+    ----------
+    found : Remedy
+        What :func:`spurplan.analyses.remedy.remedy` found.
+
+    Returns
+    -------
+    str
+        One sentence without its full stop ("" when a filter was found).
+    """
+    if found.reason or found.found:
+        return found.reason
+    first = next((a for a in found.advice if a["kind"] in ("regenerated", "plan")), None)
+    if first is not None:
+        return advice_sentence(first)
+    return "no filter at this place meets the target"
+
+
+def remedy_advice(found: Remedy) -> list[str]:
+    """The sentences of what would help, less the one :func:`remedy_reason` already says.
+
+    Parameters
+    ----------
+    found : Remedy
+
+    Returns
+    -------
+    list of str
+    """
+    said = remedy_reason(found)
+    lineups = {c.name: c.lineup for c in found.cases}
+    return [
+        s for s in (advice_sentence(a, lineups.get(a.get("case", ""))) for a in found.advice) if s != said
+    ]
+
+
+def channels_recheck_verdict(found: Remedy) -> list[str]:
+    """The terminal's lines on the filter re-checked on every channel of every case (by tune).
+
+    Parameters
+    ----------
+    found : Remedy
+        What :func:`spurplan.analyses.remedy.remedy` found; it must hold a filter.
+
+    Returns
+    -------
+    list of str
+        One line per case: PASS or FAIL, how many channels from which to which (MHz), the
+        worst margin (dB), its product and channel.
+    """
+    import numpy as np
+
+    lines = []
+    for case, sweep in zip(found.cases, found.recheck, strict=True):
+        b = int(np.argmin(sweep.worst_margin_db))
+        worst = float(sweep.worst_margin_db[b])
+        g = int(np.nanargmin(np.where(np.isnan(sweep.margin_db[b]), np.inf, sweep.margin_db[b])))
+        ch = sweep.carrier_hz
+        unsettled = 0 if sweep.unsettled is None else int(sweep.unsettled.sum())
+        caveat = model_caveat(case.lineup) + unsettled_caveat(unsettled, len(ch), "channels")
+        # Meeting the target from a model that lacks or misses figures is no PASS.
+        word = "FAIL" if worst < found.margin_target_db else "PASS"
+        if word == "PASS" and caveat:
+            word = "INCOMPLETE" if "INCOMPLETE" in caveat else "UNCERTAIN"
+        span = f"{sweep.variable} {_mhz(ch.min())}" + (f" to {_mhz(ch.max())}" if len(ch) > 1 else "")
+        pre = f"[{case.name}] " if case.name else ""
+        lines.append(
+            f"{pre}RE-CHECKED ON EVERY CHANNEL (tune, the lineup with the filter pasted): {word}, {len(ch)} "
+            f"channel{'s' * (len(ch) > 1)}, {span}; worst margin {worst:+.2f} dB ({sweep.labels[b][g]} at "
+            f"{_mhz(sweep.freq_hz[b, g])}, {sweep.variable} at {_mhz(ch[b])})" + PRODUCTS_ONLY + caveat
+        )
+    return lines
 
 
 def yield_verdict(res: YieldResult) -> str:
