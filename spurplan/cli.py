@@ -39,6 +39,14 @@ class _Group(click.Group):
         except click.exceptions.Exit as exc:
             sys.exit(exc.exit_code)
         except _Interrupted:
+            import signal
+
+            # Already ending on the interrupt: a later SIGINT (the terminal's, or one a
+            # library's thread raises while the cluster shuts down) must not turn the exit
+            # into a death by signal.  Only in the command-line process (arguments from
+            # sys.argv): a caller that passes its own (click's test runner) goes on.
+            if not args and kwargs.get("args") is None:
+                signal.signal(signal.SIGINT, signal.SIG_IGN)
             click.echo("spurplan: interrupted", err=True)
             sys.exit(130)  # 128 + SIGINT, as shells report it (common practice, no source)
         except click.exceptions.Abort:
@@ -117,9 +125,21 @@ def _machine_output(fmt: str, doc) -> bool:
     return True
 
 
+# The stderr line naming the mode whose notes follow, printed before its first note only
+# (a mode without notes prints none).
+_pending_marker: list[str] = []
+
+
 def _echo_lines(lines, err: bool = False) -> None:
     for line in lines:
+        if err and _pending_marker:
+            click.echo(_pending_marker.pop(), err=True)
         click.echo(line, err=err)
+
+
+def _mark_mode(marker: str) -> None:
+    """Make ``marker`` the line printed before the next note on stderr (replacing any unused)."""
+    _pending_marker[:] = [marker]
 
 
 def _lineup_arg(f):
@@ -214,8 +234,9 @@ def _over_modes(modes, fmt: str, run, title: str | None = None, overall=None) ->
     shown = []
     for i, m in enumerate(modes, start=1):
         if n > 1:
-            click.echo(mode_marker(m.label, i, n), err=True)
+            _mark_mode(mode_marker(m.label, i, n))
         shown.append(run(m, i))
+    _pending_marker.clear()
     if n == 1:
         if not _machine_output(fmt, shown[0].doc):
             click.echo(shown[0].text, nl=False)
@@ -883,8 +904,9 @@ def report(lineup, mode, out_file):
     path = write_report(modes[0].lineup if len(modes) == 1 else modes, out_file)
     for i, m in enumerate(modes, start=1):
         if len(modes) > 1:
-            click.echo(mode_marker(m.label, i, len(modes)), err=True)
+            _mark_mode(mode_marker(m.label, i, len(modes)))
         _warn(m.lineup.run())
+    _pending_marker.clear()
     click.echo(f"wrote {path}")
     click.echo(PLANNING_NOTICE)
 

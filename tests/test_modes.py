@@ -314,3 +314,13 @@ def test_the_two_band_example_runs_in_both_bands():
     assert (vhf.stages[-1].prototype.edge_hz, uhf.stages[-1].prototype.edge_hz) == (190e6, 520e6)
     assert uhf.carriers[0].power_dbm == pytest.approx(0.0)  # the mode's drive, not its -8 dBm
     invoke("check", path, expect=(0, 1))
+
+
+def test_notes_of_each_mode_follow_its_marker_and_a_mode_without_notes_prints_none(tmp_path):
+    from helpers import invoke
+
+    from spurplan.io.resources import example_path
+
+    # The two-band example: no mode has notes for tune, so stderr holds no marker at all.
+    r = invoke("tune", example_path("two_band_radio.toml"), expect=0)
+    assert "note: mode" not in r.stderr
