@@ -52,7 +52,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -345,7 +345,7 @@ def remedy(
     after = first.stages[position - 1].name if position else None
 
     def result(**kw) -> Remedy:
-        base = dict(
+        base: dict[str, Any] = dict(
             lineup=first,
             before=before,
             margin_target_db=margin_db,
@@ -386,13 +386,13 @@ def remedy(
     keep_lo, keep_hi = pass_lo / edge_factor, pass_hi * edge_factor
     perfect = _with_perfect(scans, keep_lo, keep_hi)
     if perfect["worst_margin_db"] < margin_db:
-        advice = _perfect_advice(perfect, scans, margin_db, keep_lo, keep_hi)
-        for a in advice:
+        regen_advice = _perfect_advice(perfect, scans, margin_db, keep_lo, keep_hi)
+        for a in regen_advice:
             a.setdefault("carriers_low_hz", pass_lo)
             a.setdefault("carriers_high_hz", pass_hi)
         source = (perfect["scan"], perfect["check"], perfect["row"], perfect["channel_hz"])
-        advice += _general_advice(scans, margin_db, source if perfect["check"] is not None else None)
-        return result(advice=tuple(advice))
+        regen_advice += _general_advice(scans, margin_db, source if perfect["check"] is not None else None)
+        return result(advice=tuple(regen_advice))
 
     kind = "bandpass" if above and below else ("lowpass" if above else "highpass")
     most = max_rejection_db(floor_db)
