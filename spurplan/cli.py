@@ -703,22 +703,13 @@ def tune(
     """
     from spurplan.analyses.modes import tune_status
     from spurplan.analyses.sweep import tune_sweep
-    from spurplan.io.channels import read_channels, sweep_points
+    from spurplan.io.channels import sweep_points
     from spurplan.output.documents import tune_document
     from spurplan.output.terminal import tune_text
     from spurplan.output.verdicts import tune_mode_line
 
     size = _size(plot_size)
-    freqs = None
-    if channel_file:
-        if start or stop or step:
-            raise click.UsageError("give either --channels FILE or --start/--stop/--step")
-        freqs = read_channels(channel_file)
-    elif start or stop or step:
-        if not (start and stop and step):
-            raise click.UsageError("give --start, --stop and --step (or --channels FILE)")
-        lo, hi = _parse("freq", start, "--start"), _parse("freq", stop, "--stop")
-        freqs = sweep_points(lo, hi, _parse("freq", step, "--step"), "channel", "Hz")
+    freqs = _channel_choice(start, stop, step, channel_file)
     scheduler = _cluster_choice(scheduler, workers)
     modes = _load_modes(lineup, mode)
     if freqs is None and not all(m.lineup.report is not None and m.lineup.report.tune for m in modes):
