@@ -1051,7 +1051,8 @@ def yield_cmd(lineup, mode, samples, seed, channel_file, scheduler, workers, fmt
     """Monte Carlo yield of LINEUP over its part tolerances and corners.
 
     Over several modes each mode's yield is computed with the same seed; the line over
-    all modes gives the lowest, an upper bound of the yield over all of them.
+    all modes counts the units passing in every mode (the same units where the modes'
+    tolerances agree), else gives the lowest mode's, an upper bound.
     """
     from spurplan.analyses.montecarlo import run_yield
     from spurplan.io.channels import read_channels

@@ -324,3 +324,62 @@ def test_notes_of_each_mode_follow_its_marker_and_a_mode_without_notes_prints_no
     # The two-band example: no mode has notes for tune, so stderr holds no marker at all.
     r = invoke("tune", example_path("two_band_radio.toml"), expect=0)
     assert "note: mode" not in r.stderr
+
+
+def test_yield_over_modes_counts_the_same_units_in_every_mode(tmp_path):
+    import json
+
+    from helpers import invoke
+
+    # One amplifier (pure polynomial: gain 20 dB, OIP3 +30 dBm, OIP2 +40 dBm, +10 dBm out).
+    # The harmonics of a polynomial sit below the two-tone products of the same order:
+    # HD3 = IM3 - 20 log10(3) and HD2 = IM2 - 20 log10(2) (a3 A^3/4 against 3 a3 A^3/4, a2 A^2/2
+    # against a2 A^2; Razavi, RF Microelectronics 2e, 2.2, from memory), so
+    # H3 = 3 Pout - 2 OIP3 - 9.542 = -39.542 dBm and H2 = 2 Pout - OIP2 - 6.021 = -26.021 dBm.
+    # OIP3 and OIP2 spread uniformly by +-1 dB, independently (README "Tolerances and
+    # corners").  Mode A holds H3 (300 MHz) to -39.542 dBm: a unit passes when its OIP3
+    # shift d3 >= 0, probability 1/2.  Mode B holds H2 (200 MHz) to -26.521 dBm: it passes
+    # when d2 >= 0.5, probability 1/4.  The same units in
+    # both modes pass both with probability 1/2 x 1/4 = 1/8 (independent draws), not the
+    # lowest mode's 1/4.
+    text = """# invented test lineup
+[[carrier]]
+freq = "100 MHz"
+power = "-10 dBm"
+[[stage]]
+kind = "amplifier"
+name = "amp"
+gain = "20 dB"
+oip3 = "+30 dBm"
+oip2 = "+40 dBm"
+tolerance = { oip3 = { uniform = "1 dB" }, oip2 = { uniform = "1 dB" } }
+[[mode]]
+name = "A"
+[[mode.mask.band]]
+name = "third"
+start = "290 MHz"
+stop = "310 MHz"
+limit = "-39.542 dBm"
+rbw = "1 MHz"
+[[mode]]
+name = "B"
+[[mode.mask.band]]
+name = "second"
+start = "190 MHz"
+stop = "210 MHz"
+limit = "-26.521 dBm"
+rbw = "1 MHz"
+"""
+    path = tmp_path / "two.toml"
+    path.write_text(text)
+    n = 20000
+    doc = json.loads(invoke("yield", path, "--samples", n, "--format", "json").stdout)
+    fractions = [m["summary"]["yield"] for m in doc["modes"]]
+    sigma = lambda p: (p * (1 - p) / n) ** 0.5  # noqa: E731  binomial standard error
+    # 0.01: the cubic compresses the carrier by a few thousandths of a dB at the limit.
+    assert abs(fractions[0] - 0.5) < 4 * sigma(0.5) + 0.01
+    assert abs(fractions[1] - 0.25) < 4 * sigma(0.25) + 0.01
+    verdict = doc["summary"]["verdict"]
+    joint = float(verdict.split("MODES: ")[1].split(" %")[0]) / 100
+    assert abs(joint - 0.125) < 4 * sigma(0.125) + 0.01
+    assert "the same units in each" in verdict

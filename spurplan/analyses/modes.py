@@ -9,8 +9,9 @@ standing per mode, in the check's words (PASS, UNCERTAIN, INCOMPLETE, FAIL):
   does not know;
 * a drive sweep (:func:`drive_standing`): whether the mode's own drive (its strongest
   carrier's input power) lies within its compliant range;
-* a yield (:func:`lowest_yield`): a unit passes only if it passes in every mode, so the
-  lowest mode's yield bounds the design's from above.
+* a yield: a unit passes only if it passes in every mode; where every mode drew the same
+  units (:func:`joint_yield`) that fraction is counted, else the lowest mode's yield
+  (:func:`lowest_yield`) bounds it from above.
 
 The words are :mod:`spurplan.output.verdicts`'s.
 """
@@ -18,6 +19,8 @@ The words are :mod:`spurplan.output.verdicts`'s.
 from __future__ import annotations
 
 from dataclasses import dataclass
+
+import numpy as np
 
 from spurplan.model.modes import worst_status
 
@@ -155,3 +158,39 @@ def lowest_yield(results) -> int:
         Index into ``results``; ties to the first.
     """
     return min(range(len(results)), key=lambda i: results[i].yield_fraction)
+
+
+def joint_yield(results) -> tuple[int, int] | None:
+    """Units passing in every mode, when every mode drew the same units; else ``None``.
+
+    A Monte Carlo sample is a built unit: its parts' deviations come from the run's seed
+    and the lineup's tolerances alone (:func:`spurplan.analyses.montecarlo.draw`: one
+    generator per seed and batch, one draw per tolerance in file order).  Modes with
+    equal tolerances and corners, run with the same seed and sample count, therefore
+    evaluate the same units, and a unit passes the design when its worst margin passes
+    in every mode.  Where a mode changes a tolerance (a stage override with its own
+    ``tolerance``), the samples are other units and only :func:`lowest_yield`'s bound
+    holds.
+
+    Parameters
+    ----------
+    results : sequence of YieldResult
+        One per mode; at least one.
+
+    Returns
+    -------
+    tuple of (int, int) or None
+        Units that pass in every mode, and the number of units.
+    """
+    first = results[0]
+    same = all(
+        r.samples == first.samples
+        and r.seed == first.seed
+        and r.lineup.tolerances == first.lineup.tolerances
+        and len(r.lineup.stages) == len(first.lineup.stages)
+        for r in results
+    )
+    if not same:
+        return None
+    worst = np.min(np.stack([np.asarray(r.worst_margin_db, dtype=float) for r in results]), axis=0)
+    return int(np.sum(worst >= 0)), int(first.samples)

@@ -637,7 +637,9 @@ def drive_mode_line(standing) -> str:
 
 
 def yield_modes_verdict(labels, results) -> str:
-    """The terminal's line over every mode's yield: the lowest, an upper bound of the design's.
+    """The terminal's line over every mode's yield: the units passing in every mode where the
+    modes drew the same units (:func:`spurplan.analyses.modes.joint_yield`), else the lowest
+    mode's yield, an upper bound of the design's.
 
     Parameters
     ----------
@@ -651,8 +653,17 @@ def yield_modes_verdict(labels, results) -> str:
     str
         ``"YIELD OVER ALL 2 MODES: at most 93.100 % ..."``; one line, in per cent.
     """
-    from spurplan.analyses.modes import lowest_yield
+    from spurplan.analyses.modes import joint_yield, lowest_yield
+    from spurplan.analyses.montecarlo import wilson_interval
 
+    joint = joint_yield(results)
+    if joint is not None:
+        passed, n = joint
+        lo, hi = wilson_interval(passed, n)
+        return (
+            f"YIELD OVER ALL {len(results)} MODES: {100 * passed / n:.3f} % ({passed} of {n} simulated units pass "
+            f"in every mode: the same units in each); 95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+        )
     k = lowest_yield(results)
     return (
         f"YIELD OVER ALL {len(results)} MODES: at most {100 * results[k].yield_fraction:.3f} % "
