@@ -85,6 +85,8 @@ _OPTION_ALIASES = {
     "remedy": {"path": "write_file", "margin_db": "margin", "at": "at_stage"},
     "report": {"path": "out_file"},
     "if-windows": {"start": "rf_start", "stop": "rf_stop", "step": "rf_step"},
+    "compare": {"rbw_hz": "rbw", "reference_level_dbm": "reference_level", "tolerance_hz": "tolerance"},
+    "check": {"rbw_hz": "rbw", "reference_level_dbm": "reference_level"},
 }
 
 
@@ -455,6 +457,41 @@ def _show_filter(view, plot_file, ts_file, fmt) -> None:
     click.echo(PLANNING_NOTICE)
 
 
+def _trace_options(f):
+    """The options that say how a trace was measured, where its file does not."""
+    f = click.option(
+        "--columns",
+        help="The trace's CSV columns by name, e.g. 'freq=Frequency,level=Amplitude'.",
+    )(f)
+    f = click.option(
+        "--reference-level", "reference_level", help="The analyser's reference level, e.g. '20 dBm'."
+    )(f)
+    f = click.option("--detector", help="The trace's detector: peak, rms, average, sample or negative-peak.")(
+        f
+    )
+    return click.option(
+        "--rbw", help="The trace's resolution bandwidth, e.g. '100 kHz' (if its file does not say)."
+    )(f)
+
+
+def _read_trace(path, rbw, detector, reference_level, columns):
+    """The trace file read with the options' RBW, detector, reference level and columns."""
+    from spurplan.fields import Within
+    from spurplan.io.traces import parse_columns, read_trace
+
+    return read_trace(
+        path,
+        rbw_hz=None
+        if rbw is None
+        else _parse("freq", rbw, "--rbw", Within("a resolution bandwidth", 1.0, 1e9, "Hz")),
+        detector=detector,
+        reference_level_dbm=None
+        if reference_level is None
+        else _parse("power", reference_level, "--reference-level"),
+        columns=None if columns is None else parse_columns(columns),
+    )
+
+
 def _size(text: str) -> tuple[int, int]:
     try:
         w, h = (int(v) for v in text.lower().split("x"))
@@ -479,7 +516,27 @@ def _size(text: str) -> tuple[int, int]:
     is_flag=True,
     help="Exit 1 also when the model is incomplete (a stage lacks a figure) or misses a stated figure.",
 )
-def check(lineup, mode, fmt, combine, plot_file, plot_size, strict):
+@click.option(
+    "--trace",
+    "trace_file",
+    type=click.Path(dir_okay=False),
+    help="Draw this measured trace (CSV or two-column text) beside the prediction in --plot.",
+)
+@_trace_options
+def check(
+    lineup,
+    mode,
+    fmt,
+    combine,
+    plot_file,
+    plot_size,
+    strict,
+    trace_file,
+    rbw,
+    detector,
+    reference_level,
+    columns,
+):
     """Check every product at the output of LINEUP against its [mask].
 
     The verdict is PASS, FAIL, INCOMPLETE (the modelled products pass but a stage
@@ -495,6 +552,9 @@ def check(lineup, mode, fmt, combine, plot_file, plot_size, strict):
     from spurplan.output.verdicts import check_verdict
 
     size = _size(plot_size)
+    if trace_file is not None and plot_file is None:
+        raise click.UsageError("--trace draws the measured trace into the figure: give --plot FILE as well")
+    trace = _read_trace(trace_file, rbw, detector, reference_level, columns) if trace_file else None
     modes = _load_modes(lineup, mode)
     plots = _mode_files(plot_file, modes)
 
@@ -505,12 +565,81 @@ def check(lineup, mode, fmt, combine, plot_file, plot_size, strict):
         if plots[i - 1]:
             from spurplan.output.plots import save_check_plot
 
-            save_check_plot(outcome, plots[i - 1], size)
+            save_check_plot(outcome, plots[i - 1], size, trace)
         code = 1 if outcome.strict_failure(True if strict else None) else 0
         line = check_verdict(outcome)
         return _Shown(check_document(outcome), check_text(outcome), code, outcome.status, line)
 
     sys.exit(_over_modes(modes, fmt, run, "VERDICT"))
+
+
+@main.command(epilog=EPILOG)
+@click.argument("lineup", type=click.Path(dir_okay=False))
+@click.argument("trace_file", metavar="TRACE", type=click.Path(dir_okay=False))
+@_trace_options
+@click.option(
+    "--threshold",
+    default="10 dB",
+    show_default=True,
+    help="How far above the trace's noise floor a peak must stand.",
+)
+@click.option("--tolerance", help="Largest frequency difference of a match, e.g. '50 kHz' (default: 3 RBW).")
+@_format_option
+@_combine_option
+@_plot_option("Draw the trace beside the predicted spectrum and the mask (PNG/SVG/PDF).")
+@_plot_size_option
+def compare(
+    lineup,
+    trace_file,
+    rbw,
+    detector,
+    reference_level,
+    columns,
+    threshold,
+    tolerance,
+    fmt,
+    combine,
+    plot_file,
+    plot_size,
+):
+    """Compare a measured spectrum TRACE at the output of LINEUP with the plan.
+
+    Finds the trace's peaks (THRESHOLD above its noise floor), matches them to the
+    predicted products by frequency, and prints predicted, measured, difference and
+    the stage the model says makes each; peaks no product explains and predicted
+    products above the floor that were not seen are listed too.  With a [mask], the
+    trace itself is judged against every rule in the rule's reference bandwidth.
+    Exit status: 0, or 1 when the trace fails the mask; 2 bad input.
+    """
+    from spurplan.analyses.bench_compare import compare as run_compare
+    from spurplan.fields import Within
+    from spurplan.output.bench_compare import compare_document, compare_notes, compare_text
+    from spurplan.output.provenance import provenance
+    from spurplan.output.terminal import note_lines
+
+    size = _size(plot_size)
+    threshold_db = _parse(
+        "db", threshold, "--threshold", Within("a threshold over the floor", 0.1, 100.0, "dB")
+    )
+    tolerance_hz = (
+        None
+        if tolerance is None
+        else _parse("freq", tolerance, "--tolerance", Within("a tolerance", 1.0, 1e9, "Hz"))
+    )
+    # The trace first: a malformed one is refused before the lineup's models are fitted.
+    trace = _read_trace(trace_file, rbw, detector, reference_level, columns)
+    loaded = _load(lineup)
+    found = run_compare(loaded, trace, threshold_db=threshold_db, tolerance_hz=tolerance_hz, combine=combine)
+    _warn_model(loaded)
+    _echo_lines(note_lines(compare_notes(found)), err=True)
+    if plot_file:
+        from spurplan.analyses.check import check as run_check
+        from spurplan.output.plots import save_check_plot
+
+        save_check_plot(run_check(loaded, combine=combine), plot_file, size, trace)
+    if not _machine_output(fmt, compare_document(found, provenance(loaded))):
+        click.echo(compare_text(found), nl=False)
+    sys.exit(1 if found.mask is not None and found.mask.status == "FAIL" else 0)
 
 
 @main.command(epilog=EPILOG)

@@ -1325,14 +1325,51 @@ def limit_line_rbw(outcome: CheckResult, freq_hz: np.ndarray) -> tuple[np.ndarra
     (ndarray, ndarray), each the shape of ``freq_hz``
         The lowest limit of the rules covering each frequency (dBm) and that rule's RBW (Hz).
     """
+    freq_hz = np.asarray(freq_hz, dtype=float)
+    line = np.full(freq_hz.shape, np.inf)
+    rbw = np.full(freq_hz.shape, np.nan)
+    for rule, covers, limit in rule_limits_at(outcome, freq_hz):
+        tighter = covers & (limit < line)
+        rbw = np.where(tighter, np.nan if rule.rbw_hz is None else rule.rbw_hz, rbw)
+        line = np.where(tighter, limit, line)
+    return np.where(np.isinf(line), np.nan, line), rbw
+
+
+def rule_limits_at(
+    outcome: CheckResult, freq_hz: np.ndarray, carrier_dbm: float | None = None, by_domain: bool = False
+) -> list:
+    """Every rule of the mask that holds, where it covers ``freq_hz`` and its limit there.
+
+    What :func:`limit_line_rbw` takes the most stringent of, rule by rule (a measured
+    trace is judged against each rule in that rule's own reference bandwidth).
+
+    Parameters
+    ----------
+    outcome : CheckResult
+        A check of batch element 0 of a run; its carrier frequencies select the rules
+        that hold and place the out-of-band domain.
+    freq_hz : ndarray
+        Frequencies (Hz), any shape.
+    carrier_dbm : float, optional
+        Total carrier power (dBm) for relative limits and power conditions; default the
+        check's own (:attr:`CheckResult.carrier_dbm`).
+    by_domain : bool, optional
+        Spurious rules stop at the out-of-band domain, as :func:`evaluate` judges
+        products; by default they cover it too (the limit line drawn through it).
+
+    Returns
+    -------
+    list of (Rule, ndarray of bool, ndarray)
+        Each rule that holds, where it covers each frequency, and its limit (dBm in its
+        own reference bandwidth), arrays the shape of ``freq_hz``.
+    """
     mask = outcome.result.lineup.mask
     assert mask is not None  # check() made the outcome, and it refuses a lineup without one
+    p_dbm = outcome.carrier_dbm if carrier_dbm is None else carrier_dbm
     f_carrier = output_carrier_hz(outcome.result)
     f_highest = highest_output_carrier_hz(outcome.result)
     freq_hz = np.asarray(freq_hz, dtype=float)
     gain = mask.antenna_gain_dbi(freq_hz)
-    line = np.full(freq_hz.shape, np.inf)
-    rbw = np.full(freq_hz.shape, np.nan)
     pairs = [(r, ex) for r, ex in mask.rules] + [(r, None) for b in mask.bands for r in b.rules]
     # The out-of-band domain around each carrier with a stated bandwidth, and the offset
     # from the nearest one (as evaluate() reads them).
@@ -1344,21 +1381,22 @@ def limit_line_rbw(outcome: CheckResult, freq_hz: np.ndarray) -> tuple[np.ndarra
     for k, c in enumerate(lineup.carriers):
         if c.bandwidth_hz:
             near |= np.abs(freq_hz - carriers_hz[0, k]) < mask.spurious_boundary * c.bandwidth_hz
+    out = []
     for rule, ex in pairs:
-        if not rule.holds_for(f_carrier, outcome.carrier_dbm):
+        if not rule.holds_for(f_carrier, p_dbm):
             continue
         covers = _covers(rule, ex, freq_hz, f_highest)
         offset = offset_bw if rule.offsets_of_bandwidth else offset_hz
         if rule.domain == "out-of-band":
             covers = covers & near & rule.covers_offset(offset)
+        elif by_domain:
+            covers = covers & ~near
         if rule.offsets:
-            limit = rule.offset_limit_dbm(np.where(near, offset, 0.0), outcome.carrier_dbm)
+            limit = rule.offset_limit_dbm(np.where(near, offset, 0.0), p_dbm)
         else:
-            limit = rule.limit_dbm(freq_hz, outcome.carrier_dbm, gain)
-        tighter = covers & (limit < line)
-        rbw = np.where(tighter, np.nan if rule.rbw_hz is None else rule.rbw_hz, rbw)
-        line = np.where(tighter, limit, line)
-    return np.where(np.isinf(line), np.nan, line), rbw
+            limit = rule.limit_dbm(freq_hz, p_dbm, gain)
+        out.append((rule, np.broadcast_to(covers, freq_hz.shape), np.broadcast_to(limit, freq_hz.shape)))
+    return out
 
 
 def continuous_in_rbw_dbm(outcome: CheckResult, freq_hz: np.ndarray) -> dict[str, np.ndarray]:

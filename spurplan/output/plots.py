@@ -88,12 +88,13 @@ def _edge(stage) -> float:
     return proto.edge_hz + (proto.bandwidth_hz or 0.0)
 
 
-def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
+def check_figure(outcome, size_px=(1200, 700), dpi: int = 100, trace=None):
     """Output products as stems against the mask's limit line.
 
     Protected bands are shaded and labelled, failing products annotated; stems are
     the level in the applicable rule's reference bandwidth (the whole product level
-    where no rule applies).
+    where no rule applies).  A measured trace is drawn beside them in the same
+    bandwidth (:func:`spurplan.analyses.bench_compare.trace_in_limit_rbw`).
 
     Parameters
     ----------
@@ -104,6 +105,8 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
         Figure size (width, height) in pixels.
     dpi : int, optional
         Dots per inch: the figure is ``size_px / dpi`` inches.
+    trace : MeasuredTrace, optional
+        A measured trace at the output, with its RBW, to draw beside the prediction.
 
     Returns
     -------
@@ -119,6 +122,8 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     )
     carriers = list(outcome.result.carrier_freqs_hz()[0])
     top = max(float(freq.max()) if freq.size else 0.0, max(carriers)) * 1.08
+    if trace is not None:
+        top = max(top, float(trace.freq_hz[-1]))
     scale, unit = _freq_axis(np.array([top]))
     fig, ax = plt.subplots(figsize=(size_px[0] / dpi, size_px[1] / dpi), dpi=dpi, layout="constrained")
     grid = np.linspace(0.0, top, 4000)
@@ -136,6 +141,18 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
         color, text = styles[key]
         shown = np.where(np.isfinite(values), values, np.nan)
         ax.plot(where / scale, shown, color=color, lw=0.9, alpha=0.9, label=f"{text} (in the rule's RBW)")
+    if trace is not None:
+        from spurplan.analyses.bench_compare import trace_in_limit_rbw
+
+        ax.plot(
+            trace.freq_hz / scale,
+            trace_in_limit_rbw(outcome, trace),
+            color="tab:olive",
+            lw=0.8,
+            alpha=0.9,
+            gid="measured-trace",
+            label=f"measured: {plot_text(str(trace.source))} (in the rule's RBW)",
+        )
     shown_bands = [b for b in mask.bands if b.start_hz < top]
     for b in shown_bands:
         ax.axvspan(b.start_hz / scale, min(b.stop_hz, top) / scale, color="tab:orange", alpha=0.18, lw=0)
@@ -188,7 +205,7 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100):
     return fig
 
 
-def save_check_plot(outcome, path, size_px=(1200, 700)):
+def save_check_plot(outcome, path, size_px=(1200, 700), trace=None):
     """Draw :func:`check_figure` to ``path`` atomically, at exactly ``size_px`` pixels.
 
     Parameters
@@ -199,13 +216,15 @@ def save_check_plot(outcome, path, size_px=(1200, 700)):
         The image file; its suffix chooses the format.
     size_px : tuple of int, optional
         Figure size (width, height) in pixels.
+    trace : MeasuredTrace, optional
+        A measured trace drawn beside the prediction.
 
     Returns
     -------
     pathlib.Path
         The file written (as :func:`spurplan.output.files.save_figure`).
     """
-    return _save(check_figure(outcome, size_px), path)
+    return _save(check_figure(outcome, size_px, trace=trace), path)
 
 
 def close(fig) -> None:

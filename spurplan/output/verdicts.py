@@ -12,6 +12,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # annotations only
+    from spurplan.analyses.bench_compare import BenchComparison, TraceMaskCheck
     from spurplan.analyses.check import CheckResult
     from spurplan.analyses.frequency_plan import IfPlan
     from spurplan.analyses.montecarlo import YieldResult
@@ -712,3 +713,88 @@ def if_plan_verdict(plan: IfPlan) -> list[str]:
         "check the lineup at the chosen IF."
     )
     return lines
+
+
+def trace_mask_verdict(mask: TraceMaskCheck, style: str = "terminal") -> str:
+    """The line on a measured trace judged against the mask.
+
+    Parameters
+    ----------
+    mask : TraceMaskCheck
+        What :func:`spurplan.analyses.bench_compare.check_trace` found (Hz, dBm, dB).
+    style : {"terminal", "report"}
+        The terminal's ``TRACE AGAINST MASK:`` line, or the report's sentence.
+
+    Returns
+    -------
+    str
+        One line: the status, the rule and point of least margin, and what the trace
+        does not vouch for (rules beyond its span, unjudged points, doubtful passes).
+    """
+    worst = mask.worst
+    if worst is None:
+        core = "no rule covers a point of the trace"
+    else:
+        rbw = "no RBW" if worst.rbw_hz is None else f"{worst.rbw_hz / 1e3:.6g} kHz"
+        core = (
+            f"least margin {worst.margin_db:+.2f} dB at {worst.freq_hz / 1e6:.6f} MHz under {worst.rule} "
+            f"({worst.level_dbm:+.2f} dBm in {rbw} against {worst.limit_dbm:+.2f} dBm)"
+        )
+        failing = [r for r in mask.rules if r.status == "FAIL"]
+        if failing:
+            core += f"; {len(failing)} of {len(mask.rules)} rules fail on the trace"
+    gaps = []
+    if mask.uncovered:
+        gaps.append("beyond the trace's span: " + "; ".join(mask.uncovered))
+    if mask.unjudged_points:
+        gaps.append(f"{mask.unjudged_points} points in the out-of-band domain no rule judges")
+    doubts = sorted({r.reason for r in mask.rules if r.reason})
+    if doubts:
+        gaps.append("; ".join(doubts))
+    text = f"{mask.status}, {core}" + (f"; {'; '.join(gaps)}" if gaps else "")
+    if style == "report":
+        return f"Against the mask the measured trace is {text}."
+    return f"TRACE AGAINST MASK: {text}"
+
+
+def bench_verdict(comparison: BenchComparison, style: str = "terminal") -> str:
+    """The line on a trace compared with the plan: what was seen, the largest difference.
+
+    Parameters
+    ----------
+    comparison : BenchComparison
+        What :func:`spurplan.analyses.bench_compare.compare` found (dB).
+    style : {"terminal", "report"}
+        The terminal's ``BENCH AGAINST PLAN:`` line, or the report's sentence.
+
+    Returns
+    -------
+    str
+        One line, without a line break.
+    """
+    seen = len(comparison.matches)
+    expected = seen + len(comparison.not_seen)
+    parts = [f"{seen} of {expected} predicted products and carriers above the floor seen"]
+    top = comparison.largest_difference
+    if top is not None:
+        parts.append(
+            f"largest difference {top.difference_db:+.2f} dB at {top.prediction.label} "
+            f"({top.prediction.freq_hz / 1e6:.6f} MHz, largest from {top.prediction.stage})"
+        )
+    missing = [n for n in comparison.not_seen if n.detectable]
+    if missing:
+        parts.append(
+            f"{len(missing)} predicted at least {comparison.threshold_db:g} dB above the floor not seen"
+        )
+    if comparison.unmatched:
+        strongest = max(comparison.unmatched, key=lambda k: k.level_dbm)
+        parts.append(
+            f"{len(comparison.unmatched)} "
+            + ("peaks match" if len(comparison.unmatched) > 1 else "peak matches")
+            + " no product "
+            f"(strongest {strongest.level_dbm:+.2f} dBm at {strongest.freq_hz / 1e6:.6f} MHz)"
+        )
+    text = "; ".join(parts)
+    if style == "report":
+        return f"Against the plan: {text}."
+    return f"BENCH AGAINST PLAN: {text}"
