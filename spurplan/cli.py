@@ -185,13 +185,6 @@ def _plot_size_option(f):
     )(f)
 
 
-def _load(path):
-    from spurplan.io.lineup_file import load
-    from spurplan.io.resources import example_path
-
-    return load(path if path is not None else example_path())
-
-
 def _mode_option(f):
     return click.option(
         "--mode",
@@ -576,6 +569,7 @@ def check(
 @main.command(epilog=EPILOG)
 @click.argument("lineup", type=click.Path(dir_okay=False))
 @click.argument("trace_file", metavar="TRACE", type=click.Path(dir_okay=False))
+@_mode_option
 @_trace_options
 @click.option(
     "--threshold",
@@ -591,6 +585,7 @@ def check(
 def compare(
     lineup,
     trace_file,
+    mode,
     rbw,
     detector,
     reference_level,
@@ -628,7 +623,11 @@ def compare(
     )
     # The trace first: a malformed one is refused before the lineup's models are fitted.
     trace = _read_trace(trace_file, rbw, detector, reference_level, columns)
-    loaded = _load(lineup)
+    modes = _load_modes(lineup, mode)
+    if len(modes) > 1:
+        names = ", ".join(repr(m.name) for m in modes)
+        raise click.UsageError(f"a trace is measured in one mode: give --mode NAME (one of {names})")
+    loaded = modes[0].lineup
     found = run_compare(loaded, trace, threshold_db=threshold_db, tolerance_hz=tolerance_hz, combine=combine)
     _warn_model(loaded)
     _echo_lines(note_lines(compare_notes(found)), err=True)

@@ -277,3 +277,16 @@ def test_check_plot_draws_the_trace_in_the_limit_lines_rbw(tmp_path):
     close(fig)
     code, _, err, _, _ = run_in_process(["check", str(lineup), "--trace", str(trace_path)])
     assert code == 2 and "--plot" in err
+
+
+def test_compare_on_a_file_with_modes_needs_one_mode(tmp_path):
+    from helpers import invoke
+
+    from spurplan.io.resources import example_path
+
+    # A trace is measured in one operating mode: over several the command asks which.
+    trace = tmp_path / "t.csv"
+    rows = "\n".join(f"{100 + 0.01 * i:.2f},-90" for i in range(200))
+    trace.write_text(f"# rbw = 100 kHz\n# detector = peak\nfreq_mhz,level_dbm\n{rows}\n")
+    r = invoke("compare", example_path("two_band_radio.toml"), trace, expect=2)
+    assert "--mode" in r.stderr and len(r.stderr.strip().splitlines()) == 1
