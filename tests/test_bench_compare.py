@@ -290,3 +290,20 @@ def test_compare_on_a_file_with_modes_needs_one_mode(tmp_path):
     trace.write_text(f"# rbw = 100 kHz\n# detector = peak\nfreq_mhz,level_dbm\n{rows}\n")
     r = invoke("compare", example_path("two_band_radio.toml"), trace, expect=2)
     assert "--mode" in r.stderr and len(r.stderr.strip().splitlines()) == 1
+
+
+def test_a_line_between_points_is_read_at_its_own_level_and_frequency():
+    from spurplan.analyses.bench_compare import find_peaks
+
+    # A -40 dBm line at 100.0123 MHz seen through a Gaussian RBW filter (3 dB wide at the
+    # 100 kHz RBW: a parabola in dB, -12.04 (df/RBW)^2 dB; common practice, no source) on
+    # points 50 kHz apart.  The highest point (100.000 MHz, 12.3 kHz off) under-reads it by
+    # 12.04 x 0.123^2 = 0.18 dB; the vertex through the three highest points is exact.
+    f = np.arange(99e6, 101e6 + 1, 50e3)
+    line = -40.0 - 10 * math.log10(math.e) * 4 * math.log(2) * ((f - 100.0123e6) / 100e3) ** 2
+    level = 10 * np.log10(10 ** (line / 10) + 10 ** (-120 / 10))
+    trace = make_trace(f, level, 100e3, "peak", None, "synthetic (invented)")
+    (peak,) = find_peaks(trace, np.full(f.size, -120.0), 10.0)
+    assert float(np.max(level)) == pytest.approx(-40.0 - 12.04 * 0.123**2, abs=0.01)
+    assert peak.level_dbm == pytest.approx(-40.0, abs=1e-6)
+    assert peak.freq_hz == pytest.approx(100.0123e6, abs=1.0)

@@ -1,0 +1,93 @@
+"""Generate the invented bench session in examples/bench/ for the UHF telemetry example.
+
+Invented data for demonstration, not measurements.  It stands in for what an engineer
+brings back from the bench once the first prototype of examples/uhf_telemetry.toml
+exists:
+
+* ``bench/uhf_prototype_trace.csv``: a spectrum-analyser trace of the antenna port,
+  30 MHz to 2.5 GHz in a 100 kHz RBW (peak detector), made from the plan's own predicted
+  products with invented departures: the third harmonic 6 dB above the plan (as if the PA's
+  output network were less kind to it than its datasheet), the second 2 dB below, an
+  invented 600 MHz spur that the plan does not know (a clock harmonic, say), and a noise
+  floor at -100 dBm in the RBW with the scatter of a real trace;
+* ``bench/uhf_pa_sweep.csv``: a drive sweep of the PA on its own (written by
+  :func:`write_pa_sweep`; see its docstring).
+
+Every number the walk-through in README "A bench session" quotes comes from these files.
+Run from the repository root:  python examples/make_bench_session.py
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from spurplan.io.lineup_file import load
+
+HERE = Path(__file__).resolve().parent
+OUT = HERE / "bench"
+LINEUP = HERE / "uhf_telemetry.toml"
+SEED = 20261202
+
+RBW_HZ = 100e3
+START_HZ, STOP_HZ, STEP_HZ = 30e6, 2.5e9, 50e3  # points closer than the RBW
+FLOOR_DBM = -100.0  # the displayed noise floor in the RBW (invented; a preamplified analyser)
+# The invented departures from the plan, dB, by product label; what is not listed is as
+# planned (within the trace's own scatter).
+DEPARTURES_DB = {"3f1": +6.0, "2f1": -2.0}
+EXTRA_SPURS = ((600e6, -58.0),)  # (Hz, dBm): a spur the plan does not model
+
+
+def _gaussian_rbw_db(offset_hz: np.ndarray) -> np.ndarray:
+    """An analyser's Gaussian RBW filter, 3 dB wide at the RBW (common practice, no source)."""
+    return 10 * np.log10(np.exp(-4 * np.log(2) * (offset_hz / RBW_HZ) ** 2) + 1e-30)
+
+
+def trace_levels_dbm(freq_hz: np.ndarray, lines: list[tuple[float, float]], rng) -> np.ndarray:
+    """The trace: a noise floor with the scatter of a video-filtered display (the mean of
+    ten exponential power readings, about +-1.4 dB) plus each line through the RBW."""
+    floor_mw = 10 ** (FLOOR_DBM / 10) * rng.gamma(10.0, 0.1, freq_hz.shape)
+    power_mw = floor_mw
+    for f0, level in lines:
+        near = np.abs(freq_hz - f0) < 5 * RBW_HZ
+        power_mw[near] += 10 ** ((level + _gaussian_rbw_db(freq_hz[near] - f0)) / 10)
+    return 10 * np.log10(power_mw)
+
+
+def planned_lines(lineup) -> list[tuple[str, float, float]]:
+    """(label, Hz, dBm) of every product and carrier the plan puts at the output."""
+    rows = lineup.run().product_rows()
+    return [
+        (label, f, level)
+        for label, f, level in zip(rows["label"], rows["freq_hz"], rows["level_dbm"], strict=True)
+        if START_HZ <= f <= STOP_HZ and level > FLOOR_DBM - 20
+    ]
+
+
+def write_trace(lineup, rng) -> Path:
+    freq = np.arange(START_HZ, STOP_HZ + STEP_HZ / 2, STEP_HZ)
+    lines = [(f, level + DEPARTURES_DB.get(label, 0.0)) for label, f, level in planned_lines(lineup)]
+    lines += list(EXTRA_SPURS)
+    level = trace_levels_dbm(freq, lines, rng)
+    path = OUT / "uhf_prototype_trace.csv"
+    head = (
+        "# Invented data for the spurplan bench example: a made-up analyser trace of the UHF\n"
+        "# telemetry prototype (examples/make_bench_session.py), not a measurement.\n"
+        "# rbw = 100 kHz\n# detector = peak\n# reference_level = 40 dBm\n"
+        "freq_mhz,level_dbm\n"
+    )
+    body = "".join(f"{f / 1e6:.3f},{v:.2f}\n" for f, v in zip(freq, level, strict=True))
+    path.write_text(head + body)
+    return path
+
+
+def main() -> None:
+    OUT.mkdir(exist_ok=True)
+    rng = np.random.default_rng(SEED)
+    lineup = load(LINEUP)
+    print("wrote", write_trace(lineup, rng))
+
+
+if __name__ == "__main__":
+    main()
