@@ -31,7 +31,7 @@ LINEUP = HERE / "uhf_telemetry.toml"
 SEED = 20261202
 
 RBW_HZ = 100e3
-START_HZ, STOP_HZ, STEP_HZ = 30e6, 2.5e9, 50e3  # points closer than the RBW
+START_HZ, STOP_HZ, STEP_HZ = 30e6, 2.5e9, 50e3  # points half an RBW apart
 FLOOR_DBM = -100.0  # the displayed noise floor in the RBW (invented; a preamplified analyser)
 # The invented departures from the plan, dB, by product label; what is not listed is as
 # planned (within the trace's own scatter).
@@ -77,7 +77,7 @@ def write_trace(lineup, rng) -> Path:
         "# rbw = 100 kHz\n# detector = peak\n# reference_level = 40 dBm\n"
         "freq_mhz,level_dbm\n"
     )
-    body = "".join(f"{f / 1e6:.3f},{v:.2f}\n" for f, v in zip(freq, level, strict=True))
+    body = "".join(f"{f / 1e6:.3f},{v:.1f}\n" for f, v in zip(freq, level, strict=True))
     path.write_text(head + body)
     return path
 

@@ -1010,17 +1010,29 @@ def remedy(
     type=_OutputFile(),
     help="FILE.html (self-contained) or FILE.md (figures beside it).",
 )
-def report(lineup, mode, out_file):
+@click.option(
+    "--trace", "trace_file", type=click.Path(dir_okay=False), help="Add a measured trace of the output."
+)
+@_trace_options
+def report(lineup, mode, out_file, trace_file, rbw, detector, reference_level, columns):
     """Write a design-review report of LINEUP: budget, check, figures, assumptions, cautions.
 
     Sweeps are added where the lineup's [report] table asks for them.  Over several
     modes, one report with each mode's sections and the verdict over all of them.
+    With --trace, a "Bench against plan" section sets the measured spectrum beside the
+    prediction (one mode: give --mode NAME for a file with several).
     """
     from spurplan.output.modes import mode_marker
-    from spurplan.output.report import write_report
+    from spurplan.output.report import BenchSession, write_report
 
+    bench = None
+    if trace_file is not None:
+        bench = BenchSession(trace=_read_trace(trace_file, rbw, detector, reference_level, columns))
     modes = _load_modes(lineup, mode)
-    path = write_report(modes[0].lineup if len(modes) == 1 else modes, out_file)
+    if bench is not None and len(modes) > 1:
+        names = ", ".join(repr(m.name) for m in modes)
+        raise click.UsageError(f"a trace is measured in one mode: give --mode NAME (one of {names})")
+    path = write_report(modes[0].lineup if len(modes) == 1 else modes, out_file, bench=bench)
     for i, m in enumerate(modes, start=1):
         if len(modes) > 1:
             _mark_mode(mode_marker(m.label, i, len(modes)))

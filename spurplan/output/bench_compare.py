@@ -130,6 +130,22 @@ def _mhz(values):
     return [None if v is None else v / 1e6 for v in values]
 
 
+def match_display(comparison: BenchComparison) -> dict[str, list]:
+    """:func:`match_rows` with the frequencies in MHz, for :data:`MATCH_TABLE`."""
+    rows = match_rows(comparison)
+    return {**rows, "freq_mhz": _mhz(rows["freq_hz"]), "measured_freq_mhz": _mhz(rows["measured_freq_hz"])}
+
+
+def trace_rule_display(comparison: BenchComparison) -> dict[str, list]:
+    """:func:`trace_rule_rows` with RBW in kHz and frequencies in MHz, for :data:`TRACE_RULE_TABLE`."""
+    rules = trace_rule_rows(comparison)
+    return {
+        **rules,
+        "rbw_khz": [None if v is None else v / 1e3 for v in rules["rbw_hz"]],
+        "freq_mhz": _mhz(rules["freq_hz"]),
+    }
+
+
 def compare_text(comparison: BenchComparison) -> str:
     """The terminal text of a comparison: the match table, the rules on the trace, the lines.
 
@@ -144,8 +160,7 @@ def compare_text(comparison: BenchComparison) -> str:
         Heading, tables (MHz, dBm, dB), the verdict lines and the planning notice.
     """
     t = comparison.trace
-    rows = match_rows(comparison)
-    shown = {**rows, "freq_mhz": _mhz(rows["freq_hz"]), "measured_freq_mhz": _mhz(rows["measured_freq_hz"])}
+    shown = match_display(comparison)
     rbw = (t.rbw_hz or 0.0) / 1e3  # compare() refuses a trace without one
     head = (
         f"{comparison.lineup_name}: measured trace {t.source} (RBW {rbw:.6g} kHz, detector "
@@ -155,14 +170,8 @@ def compare_text(comparison: BenchComparison) -> str:
     text = head + text_table(shown, MATCH_TABLE)
     lines = [bench_verdict(comparison)]
     if comparison.mask is not None:
-        rules = trace_rule_rows(comparison)
-        shown_rules = {
-            **rules,
-            "rbw_khz": [None if v is None else v / 1e3 for v in rules["rbw_hz"]],
-            "freq_mhz": _mhz(rules["freq_hz"]),
-        }
         text += "\nthe trace against the mask (each rule in its own reference bandwidth)\n"
-        text += text_table(shown_rules, TRACE_RULE_TABLE)
+        text += text_table(trace_rule_display(comparison), TRACE_RULE_TABLE)
         lines.append(trace_mask_verdict(comparison.mask))
     carrier = comparison.carrier_dbm
     notice = power_notice(carrier) if carrier is not None else ""

@@ -219,8 +219,31 @@ def _figure_png(fig) -> bytes:
     return buf.getvalue()
 
 
-def build_report(lineup) -> Report:
-    """Compute everything the report shows for ``lineup`` (which must have a mask)."""
+@dataclass(frozen=True)
+class BenchSession:
+    """What the bench brought back, for the report's "Bench against plan" section.
+
+    Attributes
+    ----------
+    trace : MeasuredTrace or None
+        A spectrum-analyser trace of the output (:func:`spurplan.io.traces.read_trace`).
+    threshold_db : float
+        Peaks stand this far above the trace's floor (dB).
+    tolerance_hz : float or None
+        Largest frequency difference of a match (Hz; ``None``: the default, 3 RBW).
+    fits : tuple
+        Stage figures fitted from bench sweeps (:mod:`spurplan.analyses.figure_fit`).
+    """
+
+    trace: object = None
+    threshold_db: float = 10.0
+    tolerance_hz: float | None = None
+    fits: tuple = ()
+
+
+def build_report(lineup, bench: BenchSession | None = None) -> Report:
+    """Compute everything the report shows for ``lineup`` (which must have a mask), and
+    the bench session beside the plan when one is given."""
     from spurplan.output.plots import check_figure, drive_figure, tune_figure
 
     outcome = check(lineup)
@@ -266,6 +289,8 @@ def build_report(lineup) -> Report:
         sections.append(filters)
     if has_tolerances(lineup):
         sections.append(_yield_section(lineup))
+    if bench is not None:
+        sections.append(_bench_section(lineup, outcome, bench))
     sections.append(_assumptions_section(lineup))
     sections.append(_cautions_section(outcome))
     return Report(
@@ -275,6 +300,62 @@ def build_report(lineup) -> Report:
         sections=sections,
         status=outcome.status,
     )
+
+
+def _bench_section(lineup, outcome, bench: BenchSession) -> Section:
+    """The measured trace beside the plan (overlay, match table, the trace against the
+    mask) and the fitted figures beside the stated ones."""
+    from spurplan.output.bench_compare import (
+        MATCH_TABLE,
+        TRACE_RULE_TABLE,
+        match_display,
+        trace_rule_display,
+    )
+    from spurplan.output.plots import check_figure
+    from spurplan.output.verdicts import bench_verdict, trace_mask_verdict
+
+    sec = Section("Bench against plan")
+    if bench.trace is not None:
+        from spurplan.analyses.bench_compare import compare
+
+        found = compare(
+            lineup,
+            bench.trace,
+            threshold_db=bench.threshold_db,
+            tolerance_hz=bench.tolerance_hz,
+            outcome=outcome,
+        )
+        t = bench.trace
+        sec.parts.append(
+            (
+                "text",
+                f"Measured trace {t.source} (RBW {(t.rbw_hz or 0.0) / 1e3:.6g} kHz, detector "
+                f"{t.detector or 'not stated'}); peaks {found.threshold_db:g} dB above its floor, matched to the "
+                f"predicted products within {found.tolerance_hz / 1e3:.6g} kHz. "
+                + bench_verdict(found, "report"),
+            )
+        )
+        sec.parts.append(
+            (
+                "figure",
+                (
+                    _figure_png(check_figure(outcome, trace=t)),
+                    "The measured trace (in the limit line's RBW) beside the predicted products and the mask.",
+                ),
+            )
+        )
+        sec.parts.append(_table(match_display(found), MATCH_TABLE))
+        if found.mask is not None:
+            sec.parts.append(("text", trace_mask_verdict(found.mask, "report")))
+            sec.parts.append(_table(trace_rule_display(found), TRACE_RULE_TABLE))
+    for part in _fit_parts(bench.fits):
+        sec.parts.append(part)
+    return sec
+
+
+def _fit_parts(fits) -> list:
+    """The report's parts for the fitted figures (none yet)."""
+    return []
 
 
 def build_modes_report(modes) -> Report:
@@ -669,7 +750,7 @@ def _cautions_section(outcome) -> Section:
     return sec
 
 
-def write_report(lineup, path, now: datetime | None = None) -> Path:
+def write_report(lineup, path, now: datetime | None = None, bench: BenchSession | None = None) -> Path:
     """Build the report and write it atomically: ``.html`` self-contained, ``.md`` with figures beside it.
 
     Parameters
@@ -681,6 +762,8 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
         The report file; its suffix (``.html``, ``.htm`` or ``.md``) chooses the format.
     now : datetime, optional
         The time printed as made (default the current time, UTC).
+    bench : BenchSession, optional
+        A bench session to set beside the plan (one lineup only).
 
     Returns
     -------
@@ -708,7 +791,7 @@ def write_report(lineup, path, now: datetime | None = None) -> Path:
     if suffix == ".md":
         check_folder(path.parent / folder, MARKDOWN_FIGURE)
     made_at = (now or datetime.now(UTC)).strftime("%Y-%m-%d %H:%M:%S UTC")
-    report = build_report(lineup) if hasattr(lineup, "stages") else build_modes_report(lineup)
+    report = build_report(lineup, bench) if hasattr(lineup, "stages") else build_modes_report(lineup)
     if suffix in (".html", ".htm"):
         return write_atomic(path, report.to_html(made_at))
     text, figures = report.to_markdown(made_at, folder)
