@@ -84,6 +84,7 @@ class _Group(click.Group):
 _OPTION_ALIASES = {
     "remedy": {"path": "write_file", "margin_db": "margin", "at": "at_stage"},
     "report": {"path": "out_file"},
+    "fit": {"path": "write_file", "harmonic_at_dbm": "h_at"},
     "if-windows": {"start": "rf_start", "stop": "rf_stop", "step": "rf_step"},
     "compare": {"rbw_hz": "rbw", "reference_level_dbm": "reference_level", "tolerance_hz": "tolerance"},
     "check": {"rbw_hz": "rbw", "reference_level_dbm": "reference_level"},
@@ -997,6 +998,81 @@ def remedy(
             click.echo(remedy_modes_hint(len(modes)))
     # Exit 1 only when products fall short and no filter is enough.
     sys.exit(1 if found.needed["freq_hz"] and not found.found else 0)
+
+
+@main.command("fit", epilog=EPILOG)
+@click.argument("sweeps", nargs=-1, required=True, type=click.Path(dir_okay=False))
+@click.option(
+    "--stage", default=None, help="The stage measured (default: the sweeps' '# stage' header line)."
+)
+@click.option(
+    "--lineup",
+    "lineup_file",
+    type=click.Path(dir_okay=False),
+    help="A lineup with that amplifier stage: its other figures are held, and start the fit.",
+)
+@click.option(
+    "--figures",
+    default=None,
+    help="Figures to fit, e.g. gain,oip3,h2,h3,p1db,psat (default: what the sweeps measure).",
+)
+@click.option(
+    "--column",
+    "columns",
+    multiple=True,
+    metavar="THEIRS=OURS",
+    help="Read the file's column THEIRS as our OURS, e.g. 'Pin (dBm)=pin_dbm' (repeatable).",
+)
+@click.option(
+    "--h-at", "h_at", default=None, help="Output power the fitted hN are stated at, e.g. '+20 dBm'."
+)
+@click.option(
+    "--write",
+    "write_file",
+    type=_OutputFile(),
+    help="Write the lineup with the stage's fitted figures to this file.",
+)
+@click.option("--format", "fmt", type=click.Choice(("table", "json")), default="table", show_default=True)
+def fit_cmd(sweeps, stage, lineup_file, figures, columns, h_at, write_file, fmt):
+    """Fit an amplifier stage's figures to bench sweeps (CSV files of levels against drive).
+
+    The figures (gain, oip3, oip2, h2..h9, p1db, psat) are fitted by least squares in dB
+    with the model the engine uses, each with its uncertainty; a figure the sweeps do not
+    determine is said to be poorly determined, never given as known. Prints the
+    [[stage]] table to paste and the residuals; --write puts the figures into the lineup.
+
+    Exit status: 0 every figure determined, 1 a figure poorly determined or the fit not
+    converged, 2 bad input.
+    """
+    from spurplan.analyses.figure_fit import fit_figures
+    from spurplan.io.bench_sweeps import read_sweep
+    from spurplan.output.figure_fit import fit_document, fit_text
+    from spurplan.output.fit_file import write_fitted
+
+    if write_file and not lineup_file:
+        raise click.UsageError("--write needs --lineup (the file whose stage gets the fitted figures)")
+    mapping = {}
+    for item in columns:
+        theirs, sep, ours = item.rpartition("=")
+        if not sep or not theirs.strip() or not ours.strip():
+            raise click.BadParameter(
+                f"{item!r}: expected THEIRS=OURS, e.g. 'Pin (dBm)=pin_dbm'", param_hint="--column"
+            )
+        mapping[theirs.strip()] = ours.strip()
+    at_dbm = None if h_at is None else _parse("power", h_at, "--h-at")
+    names = None if figures is None else tuple(f.strip() for f in figures.split(",") if f.strip())
+    read = [read_sweep(path, mapping) for path in sweeps]
+    lu = _load(lineup_file) if lineup_file else None
+    found = fit_figures(read, stage=stage, lineup=lu, figures=names, harmonic_at_dbm=at_dbm)
+    # Written before anything is printed: a refusal is one error line and nothing else.
+    edited = write_fitted(found, lu, write_file) if write_file else None
+    if lu is not None:
+        _warn_model(lu)
+    if fmt == "json":
+        click.echo(fit_document(found, lu).json(), nl=False)
+    else:
+        click.echo(fit_text(found, edited, write_file), nl=False)
+    sys.exit(0 if found.status == "FITTED" else 1)
 
 
 @main.command(epilog=EPILOG)

@@ -415,3 +415,120 @@ def _followed(doc, key: str) -> bool:
     body = doc.body
     last = max(i for i, (k, _) in enumerate(body) if k is not None and k.key == key)
     return any(item.as_string().strip() for _, item in body[last + 1 :])
+
+
+# --- replacing keys of one stage ------------------------------------------------------------------
+
+
+def replace_stage_keys(
+    source: str | Path, target: str | Path, position: int, values: dict[str, str | None]
+) -> EditedLineup:
+    """The lineup file ``source`` with keys of one stage set to new strings, or removed.
+
+    ``spurplan fit --write`` puts fitted figures into the user's own file: each key of
+    ``values`` is set (kept where it stands, with its comment, when the stage has it;
+    added after the stage's last key otherwise) or, for ``None``, removed.  Everything
+    else is kept and checked as for :func:`insert_stage`: the new text, read by tomllib,
+    must be the source's document with exactly these keys of that stage changed (and
+    relative data paths rewritten for another folder).
+
+    Parameters
+    ----------
+    source : str or Path
+        The lineup file as the user wrote it.
+    target : str or Path
+        Where the result will be written (may be ``source``).
+    position : int
+        The stage's index in the ``stage`` array (0-based).
+    values : dict of str -> str or None
+        Key -> new string value (``"+40.02 dBm"``), or ``None`` to remove the key.
+
+    Returns
+    -------
+    EditedLineup
+
+    Raises
+    ------
+    LineupError
+        With a one-line message when the file cannot be edited without changing anything
+        but those keys (nothing is written).
+    """
+    import tomllib
+
+    import tomlkit
+    from tomlkit.exceptions import TOMLKitError
+
+    source, target = Path(source), Path(target)
+    text, bom, original, doc, before = _parse(source)
+    ids: dict = {}
+    marked = _marked(doc, ids) if before != text else ""
+    stages = original.get("stage", [])
+    if (
+        not isinstance(stages, list)
+        or not 0 <= position < len(stages)
+        or not isinstance(stages[position], dict)
+    ):
+        raise _refusal(source, f"no stage at position {position + 1}: expected the stage that was fitted")
+    moves = _moves(original, source, target)
+    expected = copy.deepcopy(original)
+    for where, _, new in moves:
+        _set(expected, where, new)
+        _set_styled(doc, where, new)
+    for key, value in values.items():
+        if value is None:
+            expected["stage"][position].pop(key, None)
+        else:
+            expected["stage"][position][key] = value
+    try:
+        table = doc["stage"][position]
+        for key, value in values.items():
+            if value is None:
+                if key in table:
+                    del table[key]
+            elif key in table:
+                table[key] = value
+            else:
+                _add_key(table, key, value)
+        out = tomlkit.dumps(doc) if before == text else _transplant(text, marked, _marked(doc, ids))
+    except (TOMLKitError, ValueError, KeyError) as exc:
+        raise _refusal(
+            source, f"the TOML editor cannot change the stage's keys ({exc}): nothing written"
+        ) from None
+    if "\n" in text and text.count("\r\n") == text.count("\n"):
+        out = re.sub(r"(?<!\r)\n", "\r\n", out)
+    try:
+        written = tomllib.loads(out)
+    except tomllib.TOMLDecodeError as exc:
+        raise _refusal(source, f"the edited text would not be valid TOML ({exc}): nothing written") from None
+    if written != expected:
+        raise _refusal(
+            source, "the edited file would differ from the lineup with the new figures: nothing written"
+        )
+    data = (BOM if bom else b"") + out.encode("utf-8")
+    return EditedLineup(data=data, doc=written, moved=tuple((old, new) for _, old, new in moves))
+
+
+def _add_key(table, key: str, value: str) -> None:
+    """Add ``key = value`` after the table's last plain key (before its sub-tables and the
+    comments and blank lines that end it), indented like its other keys."""
+    import tomlkit
+    from tomlkit.items import InlineTable
+
+    if isinstance(table, InlineTable):
+        table[key] = value
+        return
+    keyed = [(k, it) for k, it in table.value.body if k is not None and not _is_table(it)]
+    item = tomlkit.item(value)
+    if not keyed:
+        table[key] = item
+        return
+    last_key, last = keyed[-1]
+    if hasattr(last, "trivia"):
+        item.trivia.indent = last.trivia.indent
+    table.value._insert_after(last_key, key, item)
+
+
+def _is_table(item) -> bool:
+    from tomlkit.items import AoT, Table
+
+    return isinstance(item, (Table, AoT))
