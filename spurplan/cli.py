@@ -1062,7 +1062,7 @@ def fit_cmd(sweeps, stage, lineup_file, figures, columns, h_at, write_file, fmt)
     at_dbm = None if h_at is None else _parse("power", h_at, "--h-at")
     names = None if figures is None else tuple(f.strip() for f in figures.split(",") if f.strip())
     read = [read_sweep(path, mapping) for path in sweeps]
-    lu = _load(lineup_file) if lineup_file else None
+    lu = _load_modes(lineup_file, None)[0].lineup if lineup_file else None
     found = fit_figures(read, stage=stage, lineup=lu, figures=names, harmonic_at_dbm=at_dbm)
     # Written before anything is printed: a refusal is one error line and nothing else.
     edited = write_fitted(found, lu, write_file) if write_file else None

@@ -25,6 +25,7 @@ import re
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from spurplan.analyses.budget import budget_rows
 from spurplan.analyses.check import check, figure_check_rows
@@ -49,6 +50,9 @@ from spurplan.output.verdicts import (
     unsettled_caveat,
     yield_verdict,
 )
+
+if TYPE_CHECKING:  # annotations only
+    from spurplan.io.traces import MeasuredTrace
 
 FIGURE_DPI = 100
 # Monte Carlo samples of the report's yield section: enough for a yield to a few per cent
@@ -235,15 +239,26 @@ class BenchSession:
         Stage figures fitted from bench sweeps (:mod:`spurplan.analyses.figure_fit`).
     """
 
-    trace: object = None
+    trace: MeasuredTrace | None = None
     threshold_db: float = 10.0
     tolerance_hz: float | None = None
     fits: tuple = ()
 
 
 def build_report(lineup, bench: BenchSession | None = None) -> Report:
-    """Compute everything the report shows for ``lineup`` (which must have a mask), and
-    the bench session beside the plan when one is given."""
+    """Compute everything the report shows for ``lineup``, and the bench session beside the plan.
+
+    Parameters
+    ----------
+    lineup : Lineup
+        With a mask.
+    bench : BenchSession, optional
+        What the bench brought back (a "Bench against plan" section when given).
+
+    Returns
+    -------
+    Report
+    """
     from spurplan.output.plots import check_figure, drive_figure, tune_figure
 
     outcome = check(lineup)
