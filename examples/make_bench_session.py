@@ -82,11 +82,55 @@ def write_trace(lineup, rng) -> Path:
     return path
 
 
+# The invented PA on the bench, in closed form (not spurplan's model): gain 24 dB, an output
+# rail of Rapp form (smoothness 2) at +38.5 dBm, the second harmonic -30 dBc and the third
+# -40 dBc at +37 dBm out, falling by 1 and 2 dB per dB of output below it (slope-of-n;
+# common practice, no source).  The datasheet states no h3; the bench measures it.
+PA_GAIN_DB, PA_PSAT_DBM, RAPP_P = 24.0, 38.5, 2.0
+PA_H2_DBC, PA_H3_DBC, PA_AT_DBM = -30.0, -40.0, 37.0
+READ_NOISE_DB = 0.05  # the scatter of the bench's power readings (invented)
+
+
+def pa_output_dbm(pin_dbm: np.ndarray) -> np.ndarray:
+    """Rapp's AM/AM, |Vout| = G |Vin| / (1 + (G |Vin| / Vsat)^(2p))^(1/(2p)) (Rapp 1991; from memory)."""
+    linear_mw = 10 ** ((pin_dbm + PA_GAIN_DB) / 10)
+    sat_mw = 10 ** (PA_PSAT_DBM / 10)
+    return 10 * np.log10(linear_mw / (1 + (linear_mw / sat_mw) ** RAPP_P) ** (1 / RAPP_P))
+
+
+def write_pa_sweep(rng) -> Path:
+    """A one-tone drive sweep of the PA at 455 MHz: output and, below +30 dBm out (where the
+    slope-of-n holds and the analyser's range allows), the 2nd and 3rd harmonics in dBc."""
+    pin = np.arange(-20.0, 14.0 + 0.5, 1.0)
+    pout = pa_output_dbm(pin)
+    rows = []
+    for p_in, p_out in zip(pin, pout, strict=True):
+        read = p_out + rng.normal(0.0, READ_NOISE_DB)
+        h = ""
+        if p_out <= 30.0:
+            h2 = PA_H2_DBC + (p_out - PA_AT_DBM) + rng.normal(0.0, READ_NOISE_DB)
+            h3 = PA_H3_DBC + 2 * (p_out - PA_AT_DBM) + rng.normal(0.0, READ_NOISE_DB)
+            h = f"{h2:.2f},{h3:.2f}"
+        else:
+            h = ","
+        rows.append(f"{p_in:.2f},{read:.2f},{h}\n")
+    path = OUT / "uhf_pa_sweep.csv"
+    head = (
+        "# Invented data for the spurplan bench example: a made-up drive sweep of the UHF\n"
+        "# telemetry PA (examples/make_bench_session.py), not a measurement.\n"
+        "# stage = pa\n# freq = 455 MHz\n"
+        "pin_dbm,pout_dbm,h2_dbc,h3_dbc\n"
+    )
+    path.write_text(head + "".join(rows))
+    return path
+
+
 def main() -> None:
     OUT.mkdir(exist_ok=True)
     rng = np.random.default_rng(SEED)
     lineup = load(LINEUP)
     print("wrote", write_trace(lineup, rng))
+    print("wrote", write_pa_sweep(rng))
 
 
 if __name__ == "__main__":

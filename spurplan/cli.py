@@ -1090,7 +1090,14 @@ def fit_cmd(sweeps, stage, lineup_file, figures, columns, h_at, write_file, fmt)
     "--trace", "trace_file", type=click.Path(dir_okay=False), help="Add a measured trace of the output."
 )
 @_trace_options
-def report(lineup, mode, out_file, trace_file, rbw, detector, reference_level, columns):
+@click.option(
+    "--fit",
+    "fit_files",
+    multiple=True,
+    type=click.Path(dir_okay=False),
+    help="Add figures fitted from this bench sweep of a stage (repeatable; its # stage line names the stage).",
+)
+def report(lineup, mode, out_file, trace_file, rbw, detector, reference_level, columns, fit_files):
     """Write a design-review report of LINEUP: budget, check, figures, assumptions, cautions.
 
     Sweeps are added where the lineup's [report] table asks for them.  Over several
@@ -1101,13 +1108,21 @@ def report(lineup, mode, out_file, trace_file, rbw, detector, reference_level, c
     from spurplan.output.modes import mode_marker
     from spurplan.output.report import BenchSession, write_report
 
-    bench = None
-    if trace_file is not None:
-        bench = BenchSession(trace=_read_trace(trace_file, rbw, detector, reference_level, columns))
+    trace = None if trace_file is None else _read_trace(trace_file, rbw, detector, reference_level, columns)
     modes = _load_modes(lineup, mode)
-    if bench is not None and len(modes) > 1:
-        names = ", ".join(repr(m.name) for m in modes)
-        raise click.UsageError(f"a trace is measured in one mode: give --mode NAME (one of {names})")
+    bench = None
+    if trace is not None or fit_files:
+        if len(modes) > 1:
+            names = ", ".join(repr(m.name) for m in modes)
+            raise click.UsageError(
+                f"a bench session is measured in one mode: give --mode NAME (one of {names})"
+            )
+        from spurplan.analyses.figure_fit import fit_figures
+        from spurplan.io.bench_sweeps import read_sweep
+
+        sweeps = [read_sweep(path) for path in fit_files]
+        fits = tuple(fit_figures([sw], lineup=modes[0].lineup) for sw in sweeps)
+        bench = BenchSession(trace=trace, fits=fits)
     path = write_report(modes[0].lineup if len(modes) == 1 else modes, out_file, bench=bench)
     for i, m in enumerate(modes, start=1):
         if len(modes) > 1:

@@ -8,6 +8,7 @@ commented out with the reason, and the verdict line names it.
 
 from __future__ import annotations
 
+import math
 from typing import TYPE_CHECKING
 
 from spurplan.analyses.figure_fit import MAX_SIGMA_DB, FigureFit, FittedFigure, format_db
@@ -301,3 +302,68 @@ def fit_document(fit: FigureFit, lineup=None) -> Document:
         **(provenance(lineup) if lineup is not None else {}),
     }
     return Document(summary, "readings", residual_rows(fit))
+
+
+BESIDE_TABLE = [
+    ("figure", "figure", None),
+    ("stated", "stated in the lineup", None),
+    ("fitted", "fitted from the bench", None),
+    ("sigma", "+-1 sigma (dB)", None),
+    ("difference_db", "fitted - stated (dB)", "+.2f"),
+    ("status", "status", None),
+]
+
+
+def _stated_at(base, f: FittedFigure) -> float | None:
+    """The lineup's value of ``f``'s figure in the fit's terms; an ``hN`` carried to the
+    fitted point along its small-signal slope, ``(n - 1)`` dB per dB of output (slope-of-n;
+    common practice, no source)."""
+    if f.name.startswith("h"):
+        n = int(f.name[1:])
+        if n in base.harmonics:
+            dbc, at = base.harmonics[n]
+            return dbc + (n - 1) * (f.at_dbm - at)
+        ohip = base.ohip_dbm.get(n)
+        return None if ohip is None else (n - 1) * (f.at_dbm - ohip)
+    return {
+        "gain": base.gain_db,
+        "oip3": base.oip3_dbm,
+        "oip2": base.oip2_dbm,
+        "p1db": base.p1db_dbm,
+        "psat": base.psat_dbm,
+    }.get(f.name)
+
+
+def beside_stated_rows(fit: FigureFit, lineup) -> dict[str, list]:
+    """Each fitted figure beside the one the lineup states for the stage (the report's table).
+
+    Parameters
+    ----------
+    fit : FigureFit
+        What :func:`spurplan.analyses.figure_fit.fit_figures` found.
+    lineup : Lineup
+        The lineup whose stage the fit is of.
+
+    Returns
+    -------
+    dict of str -> list
+        Columns of :data:`BESIDE_TABLE` (dB, dBm, dBc); "not stated" where the lineup gives
+        no such figure, the difference ``None`` there.
+    """
+    stage = next((s for s in lineup.stages if s.name == fit.stage), None)
+    base = getattr(stage, "figures", None)
+    rows: dict[str, list] = {c: [] for c, _, _ in BESIDE_TABLE}
+    for f in fit.figures:
+        stated = None if base is None else _stated_at(base, f)
+        unit = "dBc" if f.name.startswith("h") else f.unit
+        rows["figure"].append(f.name + (f" at {f.at_dbm:+.2f} dBm out" if f.at_dbm is not None else ""))
+        rows["stated"].append("not stated" if stated is None else format_db(stated, unit))
+        rows["fitted"].append(format_db(f.value, unit))
+        rows["sigma"].append("unbounded" if not math.isfinite(f.sigma_db) else f"{f.sigma_db:.2f}")
+        rows["difference_db"].append(None if stated is None else f.value - stated)
+        rows["status"].append(
+            "determined"
+            if f.determined and fit.converged
+            else f"POORLY DETERMINED: {f.why_poorly_determined}"
+        )
+    return rows

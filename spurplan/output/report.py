@@ -135,6 +135,8 @@ class Report:
                     body.append(f"<p>{_e(value)}</p>")
                 elif kind == "caution":
                     body.append(f'<p class="caution">{_e(value)}</p>')
+                elif kind == "code":
+                    body.append(f"<pre>{_e(value)}</pre>")
                 elif kind == "table":
                     body.append(value[0])
                 elif kind == "figure":
@@ -182,6 +184,9 @@ class Report:
             for kind, value in sec.parts:
                 if kind in ("text", "caution"):
                     lines += [("> " if kind == "caution" else "") + md(value), ""]
+                elif kind == "code":
+                    # An indented block: every line indented, so no text can end it early.
+                    lines += ["    " + line for line in value.splitlines()] + [""]
                 elif kind == "table":
                     lines += [value[1], ""]  # formatting.markdown_table escapes every cell
                 elif kind == "figure":
@@ -363,14 +368,28 @@ def _bench_section(lineup, outcome, bench: BenchSession) -> Section:
         if found.mask is not None:
             sec.parts.append(("text", trace_mask_verdict(found.mask, "report")))
             sec.parts.append(_table(trace_rule_display(found), TRACE_RULE_TABLE))
-    for part in _fit_parts(bench.fits):
-        sec.parts.append(part)
+    sec.parts.extend(_fit_parts(lineup, bench.fits))
     return sec
 
 
-def _fit_parts(fits) -> list:
-    """The report's parts for the fitted figures (none yet)."""
-    return []
+def _fit_parts(lineup, fits) -> list:
+    """Each fit's figures beside the lineup's, its verdict line and its table to paste."""
+    from spurplan.output.figure_fit import BESIDE_TABLE, beside_stated_rows, fit_snippet, verdict_line
+
+    parts: list = []
+    for fit in fits:
+        files = ", ".join(str(s.path) for s in fit.sweeps)
+        parts.append(
+            (
+                "text",
+                f"Stage '{fit.stage}' fitted to the bench sweep(s) {files}, with the engine's own amplifier model, "
+                f"by least squares in dB: {verdict_line(fit)}",
+            )
+        )
+        parts.append(_table(beside_stated_rows(fit, lineup), BESIDE_TABLE))
+        parts.append(("text", "The fitted figures as a [[stage]] table (uncertainties as comments):"))
+        parts.append(("code", fit_snippet(fit)))
+    return parts
 
 
 def build_modes_report(modes) -> Report:
