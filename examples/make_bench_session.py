@@ -65,12 +65,12 @@ def planned_lines(lineup) -> list[tuple[str, float, float]]:
     ]
 
 
-def write_trace(lineup, rng) -> Path:
+def write_trace(lineup, rng, out: Path = OUT) -> Path:
     freq = np.arange(START_HZ, STOP_HZ + STEP_HZ / 2, STEP_HZ)
     lines = [(f, level + DEPARTURES_DB.get(label, 0.0)) for label, f, level in planned_lines(lineup)]
     lines += list(EXTRA_SPURS)
     level = trace_levels_dbm(freq, lines, rng)
-    path = OUT / "uhf_prototype_trace.csv"
+    path = out / "uhf_prototype_trace.csv"
     head = (
         "# Invented data for the spurplan bench example: a made-up analyser trace of the UHF\n"
         "# telemetry prototype (examples/make_bench_session.py), not a measurement.\n"
@@ -98,7 +98,7 @@ def pa_output_dbm(pin_dbm: np.ndarray) -> np.ndarray:
     return 10 * np.log10(linear_mw / (1 + (linear_mw / sat_mw) ** RAPP_P) ** (1 / RAPP_P))
 
 
-def write_pa_sweep(rng) -> Path:
+def write_pa_sweep(rng, out: Path = OUT) -> Path:
     """A one-tone drive sweep of the PA at 455 MHz: output and, below +30 dBm out (where the
     slope-of-n holds and the analyser's range allows), the 2nd and 3rd harmonics in dBc."""
     pin = np.arange(-20.0, 14.0 + 0.5, 1.0)
@@ -114,7 +114,7 @@ def write_pa_sweep(rng) -> Path:
         else:
             h = ","
         rows.append(f"{p_in:.2f},{read:.2f},{h}\n")
-    path = OUT / "uhf_pa_sweep.csv"
+    path = out / "uhf_pa_sweep.csv"
     head = (
         "# Invented data for the spurplan bench example: a made-up drive sweep of the UHF\n"
         "# telemetry PA (examples/make_bench_session.py), not a measurement.\n"
@@ -125,13 +125,14 @@ def write_pa_sweep(rng) -> Path:
     return path
 
 
-def main() -> None:
-    OUT.mkdir(exist_ok=True)
+def main(out: Path = OUT) -> list[Path]:
+    """Write both files into ``out`` (the trace first: one generator, one order)."""
+    out.mkdir(exist_ok=True)
     rng = np.random.default_rng(SEED)
     lineup = load(LINEUP)
-    print("wrote", write_trace(lineup, rng))
-    print("wrote", write_pa_sweep(rng))
+    return [write_trace(lineup, rng, out), write_pa_sweep(rng, out)]
 
 
 if __name__ == "__main__":
-    main()
+    for path in main():
+        print("wrote", path)
