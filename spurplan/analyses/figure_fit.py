@@ -819,16 +819,35 @@ def consistency_db(amp: Amplifier, names: Sequence[str]) -> np.ndarray:
     return np.array(rows, dtype=float)
 
 
-def _stated_value(base: AmplifierFigures | None, name: str, at_dbm: dict) -> float | None:
-    """The lineup's value of a figure, in the fit's terms (hN as dBc at its point)."""
+def stated_value(base: AmplifierFigures | None, name: str, at_dbm: dict) -> float | None:
+    """The lineup's value of a figure, in the fit's terms.
+
+    Parameters
+    ----------
+    base : AmplifierFigures or None
+        The stage's stated figures.
+    name : str
+        A figure of :data:`FIGURES`.
+    at_dbm : dict of int -> float
+        For ``hN``: the output power (dBm) to state it at.  A stated ``hN`` is carried
+        there along its small-signal slope, ``(n - 1)`` dB per dB of output; one stated
+        as ``ohipN`` is ``(n - 1) (P - OHIPn)`` (slope-of-n; common practice, no source).
+        Without an entry, a stated ``hN`` stays at its own point.
+
+    Returns
+    -------
+    float or None
+        dB, dBm or dBc; ``None`` where the stage states no such figure.
+    """
     if base is None:
         return None
     if name.startswith("h"):
         n = int(name[1:])
         if n in base.harmonics:
-            return base.harmonics[n][0]
+            dbc, at = base.harmonics[n]
+            return dbc if n not in at_dbm else dbc + (n - 1) * (at_dbm[n] - at)
         ohip = base.small_signal_ohip_dbm().get(n)
-        return None if ohip is None else (n - 1) * (at_dbm[n] - ohip)
+        return None if ohip is None or n not in at_dbm else (n - 1) * (at_dbm[n] - ohip)
     return {
         "gain": base.gain_db,
         "oip3": base.oip3_dbm,
@@ -890,7 +909,7 @@ def _start(names, closed: dict, base, at_dbm: dict, sweeps) -> dict[str, float]:
         if name in closed:
             values[name] = closed[name][0]
             continue
-        stated = _stated_value(base, name, at_dbm)
+        stated = stated_value(base, name, at_dbm)
         values[name] = stated if stated is not None else rough.get(name, -40.0)
     if "psat" in values and "p1db" in values:
         values["psat"] = max(values["psat"], values["p1db"] + 1.0)
@@ -1082,7 +1101,7 @@ def _held(base: AmplifierFigures | None, names) -> dict:
         return {}
     out: dict = {}
     for key in ("gain", "oip3", "oip2", "p1db", "psat"):
-        v = _stated_value(base, key, {})
+        v = stated_value(base, key, {})
         if key not in names and v is not None:
             out[key] = v
     for n, (dbc, at) in base.harmonics.items():

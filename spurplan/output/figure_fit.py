@@ -11,7 +11,7 @@ from __future__ import annotations
 import math
 from typing import TYPE_CHECKING
 
-from spurplan.analyses.figure_fit import MAX_SIGMA_DB, FigureFit, FittedFigure, format_db
+from spurplan.analyses.figure_fit import MAX_SIGMA_DB, FigureFit, FittedFigure, format_db, stated_value
 from spurplan.notices import PLANNING_NOTICE, power_notice
 from spurplan.output.documents import Document
 from spurplan.output.formatting import text_table
@@ -314,26 +314,6 @@ BESIDE_TABLE = [
 ]
 
 
-def _stated_at(base, f: FittedFigure) -> float | None:
-    """The lineup's value of ``f``'s figure in the fit's terms; an ``hN`` carried to the
-    fitted point along its small-signal slope, ``(n - 1)`` dB per dB of output (slope-of-n;
-    common practice, no source)."""
-    if f.name.startswith("h"):
-        n = int(f.name[1:])
-        if n in base.harmonics:
-            dbc, at = base.harmonics[n]
-            return dbc + (n - 1) * (f.at_dbm - at)
-        ohip = base.ohip_dbm.get(n)
-        return None if ohip is None else (n - 1) * (f.at_dbm - ohip)
-    return {
-        "gain": base.gain_db,
-        "oip3": base.oip3_dbm,
-        "oip2": base.oip2_dbm,
-        "p1db": base.p1db_dbm,
-        "psat": base.psat_dbm,
-    }.get(f.name)
-
-
 def beside_stated_rows(fit: FigureFit, lineup) -> dict[str, list]:
     """Each fitted figure beside the one the lineup states for the stage (the report's table).
 
@@ -347,14 +327,16 @@ def beside_stated_rows(fit: FigureFit, lineup) -> dict[str, list]:
     Returns
     -------
     dict of str -> list
-        Columns of :data:`BESIDE_TABLE` (dB, dBm, dBc); "not stated" where the lineup gives
-        no such figure, the difference ``None`` there.
+        Columns of :data:`BESIDE_TABLE` (dB, dBm, dBc; a stated ``hN`` carried to the
+        fitted point, :func:`spurplan.analyses.figure_fit.stated_value`); "not stated" where
+        the lineup gives no such figure, the difference ``None`` there.
     """
     stage = next((s for s in lineup.stages if s.name == fit.stage), None)
     base = getattr(stage, "figures", None)
     rows: dict[str, list] = {c: [] for c, _, _ in BESIDE_TABLE}
     for f in fit.figures:
-        stated = None if base is None else _stated_at(base, f)
+        at = {} if f.at_dbm is None else {int(f.name[1:]): f.at_dbm}
+        stated = stated_value(base, f.name, at)
         unit = "dBc" if f.name.startswith("h") else f.unit
         rows["figure"].append(f.name + (f" at {f.at_dbm:+.2f} dBm out" if f.at_dbm is not None else ""))
         rows["stated"].append("not stated" if stated is None else format_db(stated, unit))
