@@ -8,8 +8,9 @@ exists:
   30 MHz to 2.5 GHz in a 100 kHz RBW (peak detector), made from the plan's own predicted
   products with invented departures: the third harmonic 6 dB above the plan (as if the PA's
   output network were less kind to it than its datasheet), the second 2 dB below, an
-  invented 600 MHz spur that the plan does not know (a clock harmonic, say), and a noise
-  floor at -100 dBm in the RBW with the scatter of a real trace;
+  invented 600 MHz spur that the plan does not know (a clock harmonic, say), the
+  transmitter's own output noise as the plan predicts it, and an analyser floor at
+  -100 dBm in the RBW, with the scatter of a real trace;
 * ``bench/uhf_pa_sweep.csv``: a drive sweep of the PA on its own (written by
   :func:`write_pa_sweep`; see its docstring).
 
@@ -23,6 +24,7 @@ from pathlib import Path
 
 import numpy as np
 
+from spurplan.engine.noise import output_noise_dbm_hz
 from spurplan.io.lineup_file import load
 
 HERE = Path(__file__).resolve().parent
@@ -44,10 +46,16 @@ def _gaussian_rbw_db(offset_hz: np.ndarray) -> np.ndarray:
     return 10 * np.log10(np.exp(-4 * np.log(2) * (offset_hz / RBW_HZ) ** 2) + 1e-30)
 
 
-def trace_levels_dbm(freq_hz: np.ndarray, lines: list[tuple[float, float]], rng) -> np.ndarray:
-    """The trace: a noise floor with the scatter of a video-filtered display (the mean of
-    ten exponential power readings, about +-1.4 dB) plus each line through the RBW."""
-    floor_mw = 10 ** (FLOOR_DBM / 10) * rng.gamma(10.0, 0.1, freq_hz.shape)
+def trace_levels_dbm(
+    freq_hz: np.ndarray, lines: list[tuple[float, float]], rng, noise_dbm_hz: np.ndarray | None = None
+) -> np.ndarray:
+    """The trace: the analyser's own floor plus the transmitter's output noise in the RBW,
+    with the scatter of a video-filtered display (the mean of ten exponential power
+    readings, about +-1.4 dB), plus each line through the RBW."""
+    floor_mw = 10 ** (FLOOR_DBM / 10)
+    if noise_dbm_hz is not None:
+        floor_mw = floor_mw + 10 ** ((noise_dbm_hz + 10 * np.log10(RBW_HZ)) / 10)
+    floor_mw = floor_mw * rng.gamma(10.0, 0.1, freq_hz.shape)
     power_mw = floor_mw
     for f0, level in lines:
         near = np.abs(freq_hz - f0) < 5 * RBW_HZ
@@ -69,7 +77,9 @@ def write_trace(lineup, rng, out: Path = OUT) -> Path:
     freq = np.arange(START_HZ, STOP_HZ + STEP_HZ / 2, STEP_HZ)
     lines = [(f, level + DEPARTURES_DB.get(label, 0.0)) for label, f, level in planned_lines(lineup)]
     lines += list(EXTRA_SPURS)
-    level = trace_levels_dbm(freq, lines, rng)
+    # The transmitter's own output noise (the plan's, as check predicts it) where it rises
+    # above the analyser's floor: below the harmonic filter's cutoff.
+    level = trace_levels_dbm(freq, lines, rng, output_noise_dbm_hz(lineup, freq))
     path = out / "uhf_prototype_trace.csv"
     head = (
         "# Invented data for the spurplan bench example: a made-up analyser trace of the UHF\n"

@@ -50,13 +50,16 @@ def test_the_comparison_finds_the_planted_departures():
     ((f_hz, level_dbm),) = script.EXTRA_SPURS
     assert [round(p.freq_hz / 1e3) for p in found.unmatched] == [round(f_hz / 1e3)]
     assert found.unmatched[0].level_dbm == pytest.approx(level_dbm, abs=0.06)
-    # The floor as planted, -100 dBm in the RBW, read as the running median of a display
-    # whose power scatters as the mean of ten exponential readings: its median sits
-    # 10 log10(median of Gamma(10, 1/10)) = -0.14 dB below the mean (scipy.stats.gamma).
+    # The analyser's floor as planted, -100 dBm in the RBW, read above 1.2 GHz (where the
+    # transmitter's own noise, below the harmonic filter's stopband, adds under 0.05 dB)
+    # as the running median of a display whose power scatters as the mean of ten
+    # exponential readings: its median sits 10 log10(median of Gamma(10, 1/10)) = -0.14 dB
+    # below the mean (scipy.stats.gamma).
     from scipy.stats import gamma
 
     expected = script.FLOOR_DBM + 10 * math.log10(gamma(10, scale=0.1).median())
-    assert float(np.median(found.floor_dbm)) == pytest.approx(expected, abs=0.05)
+    high = np.asarray(found.trace.freq_hz) > 1.2e9
+    assert float(np.median(found.floor_dbm[high])) == pytest.approx(expected, abs=0.07)
 
 
 @pytest.mark.slow

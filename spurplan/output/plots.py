@@ -121,7 +121,12 @@ def check_figure(outcome, size_px=(1200, 700), dpi: int = 100, trace=None):
         dtype=float,
     )
     carriers = list(outcome.result.carrier_freqs_hz()[0])
-    top = max(float(freq.max()) if freq.size else 0.0, max(carriers)) * 1.08
+    # The axis spans the products and carriers; the noise rows (read at points of every rule
+    # and protected band, up to hundreds of GHz) stay in the table, not on the axis.
+    from spurplan.analyses.check import NOISE_LABEL
+
+    products = freq[np.asarray([label != NOISE_LABEL for label in rows["label"]], dtype=bool)]
+    top = max(float(products.max()) if products.size else 0.0, max(carriers)) * 1.08
     if trace is not None:
         top = max(top, float(trace.freq_hz[-1]))
     scale, unit = _freq_axis(np.array([top]))
