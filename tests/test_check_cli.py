@@ -355,3 +355,21 @@ def test_high_power_check_carries_the_rf_safety_notice():
         invoke("check", example_path("uhf_telemetry.toml"), "--format", "json", expect=None).stdout
     )
     assert "power_notice" not in low["summary"]
+
+
+def test_check_plot_spans_the_products_not_the_noise_points():
+    from spurplan.analyses.check import check
+    from spurplan.io.lineup_file import load
+    from spurplan.io.resources import example_path
+    from spurplan.output.plots import check_figure
+
+    # The bundled example's noise rows are read in protected bands up to 252 GHz (RR 5.340);
+    # its listed products end a few GHz up.  The axis ends 8 % beyond the highest product
+    # (or carrier), in GHz, not at the noise points.
+    outcome = check(load(example_path()))
+    rows = outcome.rows
+    noise = [f for f, lab in zip(rows["freq_hz"], rows["label"], strict=True) if lab == "noise"]
+    products = [f for f, lab in zip(rows["freq_hz"], rows["label"], strict=True) if lab != "noise"]
+    assert max(noise) > 200e9 and max(products) < 10e9
+    fig = check_figure(outcome)
+    assert fig.axes[0].get_xlim()[1] == pytest.approx(max(products) * 1.08 / 1e9, rel=0.06)
