@@ -657,6 +657,16 @@ def yield_modes_verdict(labels, results) -> str:
     from spurplan.analyses.modes import joint_yield, lowest_yield
     from spurplan.analyses.montecarlo import wilson_interval
 
+    # What any mode's model does not know qualifies the line over all of them too.
+    doubts = [
+        f"{label}{caveat}"
+        for label, r in zip(labels, results, strict=True)
+        if (
+            caveat := model_caveat(r.lineup, channels=bool(r.by_channel))
+            + unsettled_caveat(r.unsettled_passing, r.samples, "samples (counted as passing)")
+        )
+    ]
+    tail = PRODUCTS_ONLY + ("; " + " / ".join(doubts) if doubts else "")
     joint = joint_yield(results)
     if joint is not None:
         passed, n = joint
@@ -664,12 +674,13 @@ def yield_modes_verdict(labels, results) -> str:
         return (
             f"YIELD OVER ALL {len(results)} MODES: {100 * passed / n:.3f} % ({passed} of {n} simulated units pass "
             f"in every mode: the same units in each); 95 % Wilson interval {100 * lo:.3f} - {100 * hi:.3f} %"
+            + tail
         )
     k = lowest_yield(results)
     return (
         f"YIELD OVER ALL {len(results)} MODES: at most {100 * results[k].yield_fraction:.3f} % "
         f"({labels[k]}, the lowest: a unit must pass in every mode, and each mode's samples are "
-        "other units, so the yield over all modes is not computed)"
+        "other units, so the yield over all modes is not computed)" + tail
     )
 
 
